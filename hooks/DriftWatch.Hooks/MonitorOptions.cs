@@ -1,0 +1,89 @@
+using System.Collections.Immutable;
+using DriftWatch.Attribution;
+using DriftWatch.Model;
+using DriftWatch.Probing;
+
+namespace DriftWatch.Hooks;
+
+/// <summary>How a <see cref="TrainingMonitor"/> watches a run. Build once, then the monitor validates and keeps it.</summary>
+public sealed record MonitorOptions
+{
+    /// <summary>Path of the LiteDB store file; created when missing.</summary>
+    public required string StorePath { get; init; }
+
+    /// <summary>The run's name in the store. Reusing a name resumes that run (same schema and probe set required).</summary>
+    public required string RunName { get; init; }
+
+    /// <summary>The feature schema of the watched model.</summary>
+    public required FeatureSchema Schema { get; init; }
+
+    /// <summary>The probe set attributed at every epoch.</summary>
+    public required ProbeSet Probe { get; init; }
+
+    /// <summary>Attribution methods. Default: Integrated Gradients, 64 midpoint steps.</summary>
+    public ImmutableArray<IAttributionMethod> Methods { get; init; } = [new IntegratedGradients()];
+
+    /// <summary>The attributed output. Default: the logit of a binary classifier.</summary>
+    public AttributionTarget Target { get; init; } = AttributionTarget.Logit;
+
+    /// <summary>The baseline of path and difference methods. Default: zero.</summary>
+    public Baseline Baseline { get; init; } = Baseline.Zero;
+
+    /// <summary>At most this many expanded rows go through the model at once. Default 8192.</summary>
+    public int ChunkRows { get; init; } = 8192;
+
+    /// <summary>Attribute every k-th epoch (metrics and snapshots are still kept every epoch). Default 1.</summary>
+    public int AttributeEvery { get; init; } = 1;
+
+    /// <summary>Save a weight snapshot every epoch. Default true.</summary>
+    public bool SaveSnapshots { get; init; } = true;
+
+    /// <summary>Rethrow failures inside monitoring instead of recording them. Default false: training is never interrupted.</summary>
+    public bool Strict { get; init; }
+
+    /// <summary>Mean convergence delta, as a fraction of mean |F(x) − F(x′)|, beyond which an epoch's path maps are not trusted. Default 0.05.</summary>
+    public double DeltaTolerance { get; init; } = 0.05;
+
+    /// <summary>Free text stored with the run: model, data, settings.</summary>
+    public string Description { get; init; } = "";
+
+    /// <summary>Per categorical feature name, how many training rows have each value; lets the detector recognise identifier-like features.</summary>
+    public ImmutableDictionary<string, ImmutableDictionary<long, int>> TrainingValueCounts { get; init; } =
+        ImmutableDictionary<string, ImmutableDictionary<long, int>>.Empty;
+
+    /// <summary>The clock. Default: the system clock.</summary>
+    public TimeProvider Time { get; init; } = TimeProvider.System;
+
+    /// <summary>Checks every setting, naming the first bad one.</summary>
+    /// <exception cref="DriftWatchException">A setting is out of range or the probe set does not fit the schema.</exception>
+    public void Validate()
+    {
+        if (string.IsNullOrWhiteSpace(StorePath))
+            throw new DriftWatchException("StorePath is empty; give the monitor a store file path such as 'runs.litedb'");
+        if (string.IsNullOrWhiteSpace(RunName))
+            throw new DriftWatchException("RunName is empty; give the run a name");
+        if (Schema is null || Probe is null)
+            throw new DriftWatchException("Schema and Probe must both be set");
+        if (Methods.IsDefaultOrEmpty)
+            throw new DriftWatchException("Methods is empty; configure at least one attribution method");
+        var duplicate = Methods.GroupBy(m => m.Name).FirstOrDefault(g => g.Count() > 1);
+        if (duplicate is not null)
+            throw new DriftWatchException($"method '{duplicate.Key}' is configured twice; each method may appear once");
+        if (ChunkRows < 1)
+            throw new DriftWatchException($"ChunkRows must be at least 1; got {ChunkRows}");
+        if (AttributeEvery < 1)
+            throw new DriftWatchException($"AttributeEvery must be at least 1; got {AttributeEvery}");
+        if (!(DeltaTolerance > 0))
+            throw new DriftWatchException($"DeltaTolerance must be above 0; got {DeltaTolerance}");
+        if (Probe.Rows.DenseCount != Schema.DenseCount || Probe.Rows.CategoricalCount != Schema.CategoricalCount)
+            throw new DriftWatchException(
+                $"probe rows have {Probe.Rows.DenseCount} dense and {Probe.Rows.CategoricalCount} categorical inputs but the schema has {Schema.DenseCount} and {Schema.CategoricalCount}; build the probe from the model's own input rows");
+        if (Baseline.Kind == BaselineKind.Given && Baseline.Values!.Length != Schema.ColumnCount)
+            throw new DriftWatchException($"given baseline has {Baseline.Values.Length} values but the schema has {Schema.ColumnCount} feature-space columns");
+        foreach (var name in TrainingValueCounts.Keys)
+        {
+            if (!Schema.Features.Any(f => f.Name == name && f.Kind == FeatureKind.Categorical))
+                throw new DriftWatchException($"TrainingValueCounts names '{name}', which is not a categorical feature of the schema");
+        }
+    }
+}

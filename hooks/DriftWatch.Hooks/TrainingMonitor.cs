@@ -1,0 +1,328 @@
+using System.Collections.Immutable;
+using System.Diagnostics;
+using System.Globalization;
+using DriftWatch.Attribution;
+using DriftWatch.Detection;
+using DriftWatch.Model;
+using DriftWatch.Storage;
+using TorchSharp;
+using static TorchSharp.torch;
+
+namespace DriftWatch.Hooks;
+
+/// <summary>
+/// Watches a training run: at each <see cref="EndEpoch"/> it snapshots the weights, attributes the probe set,
+/// stores the maps and metrics, and returns the gate's verdict.
+/// </summary>
+/// <remarks>
+/// Never throws into the training loop from <see cref="EndEpoch"/> unless <see cref="MonitorOptions.Strict"/> is on:
+/// a failure is recorded with the epoch and reported in the verdict. Configuration errors throw from the constructor.
+/// Not thread-safe: call it from the training loop's thread.
+/// </remarks>
+public sealed class TrainingMonitor : IDisposable
+{
+    private readonly MonitorOptions _options;
+    private readonly RunStore _store;
+    private readonly RunDocument _run;
+    private int _lastEpoch;
+    private bool _modelChecked;
+
+    /// <summary>Validates the options, opens the store and registers the run (or resumes it).</summary>
+    /// <exception cref="DriftWatchException">Bad options, an unusable store, or a resumed run whose schema, probe set or methods differ.</exception>
+    public TrainingMonitor(MonitorOptions options)
+    {
+        ArgumentNullException.ThrowIfNull(options);
+        options.Validate();
+        _options = options;
+        _store = RunStore.OpenForWriting(options.StorePath);
+        try
+        {
+            var wanted = Describe(options);
+            var existing = _store.FindRun(options.RunName);
+            _run = existing is null ? _store.AddRun(wanted) : Resume(existing, wanted);
+            _lastEpoch = _store.Epochs(_run.Id).Select(e => e.Epoch).DefaultIfEmpty(-1).Max();
+        }
+        catch
+        {
+            _store.Dispose();
+            throw;
+        }
+    }
+
+    /// <summary>The run's stored record.</summary>
+    public RunDocument Run => _run;
+
+    /// <summary>The last complete epoch in the store (−1 before the first), so a resumed loop knows where to start.</summary>
+    public int LastEpoch => _lastEpoch;
+
+    /// <summary>The store this monitor writes; share it only for reading.</summary>
+    public RunStore Store => _store;
+
+    /// <summary>Records the epoch: snapshot, attribution maps, metrics, verdict. Call once per epoch, after validation.</summary>
+    /// <param name="model">The model being trained, in whatever mode the loop left it (restored afterwards).</param>
+    /// <param name="epoch">The epoch number, increasing; repeating the last epoch replaces it (a resumed run).</param>
+    /// <param name="metrics">The epoch's losses and other metrics.</param>
+    /// <returns>The gate's verdict; stop training on <see cref="VerdictKind.Halt"/> if you wish.</returns>
+    public Verdict EndEpoch(IWatchedModel model, int epoch, EpochMetrics metrics)
+    {
+        var clock = Stopwatch.StartNew();
+        var findings = new List<Finding>();
+        try
+        {
+            ArgumentNullException.ThrowIfNull(model);
+            ArgumentNullException.ThrowIfNull(metrics);
+            if (epoch < _lastEpoch)
+                throw new DriftWatchException($"epoch {epoch} comes after epoch {_lastEpoch}; epochs must increase (repeat the last one to replace it)");
+            CheckLosses(epoch, metrics, findings);
+            CheckModel(model);
+
+            if (epoch % _options.AttributeEvery == 0)
+                Attribute(model, epoch, findings);
+            string? snapshot = _options.SaveSnapshots ? SaveSnapshot(model, epoch, findings) : null;
+
+            _store.WriteEpoch(new EpochDocument
+            {
+                RunId = _run.Id,
+                Epoch = epoch,
+                Metrics = metrics.ToDictionary(),
+                SnapshotId = snapshot,
+                RecordedUtc = _options.Time.GetUtcNow().UtcDateTime,
+                Problems = findings.Where(f => f.Kind == FindingKind.MonitoringFailure).Select(f => f.Evidence).ToList(),
+                MonitorSeconds = clock.Elapsed.TotalSeconds,
+            });
+            _lastEpoch = epoch;
+            var verdict = Judge(epoch, findings);
+            _store.WriteVerdict(ToDocument(verdict));
+            return verdict;
+        }
+        catch (Exception e) when (!_options.Strict)
+        {
+            findings.Add(Failure(epoch, "monitoring", e));
+            return Judge(epoch, findings);
+        }
+    }
+
+    /// <inheritdoc />
+    public void Dispose() => _store.Dispose();
+
+    private void Attribute(IWatchedModel model, int epoch, List<Finding> findings)
+    {
+        var module = model.Module;
+        bool wasTraining = module.training;
+        var parameters = module.parameters().ToList();
+        var requiresGrad = parameters.Select(p => p.requires_grad).ToList();
+        try
+        {
+            // Eval mode (no dropout, fixed batch-norm statistics) and frozen weights: the backward pass then
+            // computes input gradients only.
+            module.eval();
+            foreach (var p in parameters)
+                p.requires_grad = false;
+
+            using var scope = torch.NewDisposeScope();
+            var probe = _options.Probe;
+            Tensor features;
+            using (torch.no_grad())
+            {
+                var dense = torch.tensor(probe.Rows.Dense, [probe.Count, probe.Rows.DenseCount]);
+                var categorical = torch.tensor(probe.Rows.Categorical, [probe.Count, probe.Rows.CategoricalCount]);
+                features = model.Encode(dense, categorical).detach().to(ScalarType.Float32);
+            }
+            if (features.dim() != 2 || features.shape[0] != probe.Count || features.shape[1] != _options.Schema.ColumnCount)
+                throw new DriftWatchException($"encode returned shape [{string.Join(", ", features.shape)}]; expected [{probe.Count}, {_options.Schema.ColumnCount}] as the schema says");
+            var baseline = _options.Baseline.Resolve(features[TensorIndex.Slice(probe.HeldOutCount, probe.Count)], _options.Schema.ColumnCount);
+            var target = _options.Target;
+            var input = new AttributionInput(f => target.Select(model.Score(f)), features, baseline, _options.ChunkRows);
+
+            foreach (var method in _options.Methods)
+            {
+                try
+                {
+                    var watch = Stopwatch.StartNew();
+                    var columns = method.Attribute(input);
+                    var map = AttributionMap.FromColumns(columns, _options.Schema);
+                    double seconds = watch.Elapsed.TotalSeconds;
+                    CheckMap(epoch, method.Name, map, findings);
+                    var (heldOut, training) = HalfImportance.ForHalves(map, probe);
+                    _store.WriteMap(new MapDocument
+                    {
+                        RunId = _run.Id,
+                        Epoch = epoch,
+                        Method = method.Name,
+                        Target = target.Label,
+                        Rows = map.Rows,
+                        Features = map.Features,
+                        Scores = FloatBytes.FromFloats(map.Scores),
+                        Deltas = map.Deltas is null ? null : FloatBytes.FromFloats(map.Deltas),
+                        OutputGaps = map.OutputGaps is null ? null : FloatBytes.FromFloats(map.OutputGaps),
+                        HeldOut = ToDocument(heldOut),
+                        Training = ToDocument(training),
+                        Seconds = seconds,
+                        Evaluations = columns.Evaluations,
+                    });
+                }
+                catch (Exception e) when (!_options.Strict)
+                {
+                    findings.Add(Failure(epoch, method.Name, e));
+                }
+            }
+        }
+        finally
+        {
+            for (int i = 0; i < parameters.Count; i++)
+                parameters[i].requires_grad = requiresGrad[i];
+            module.train(wasTraining);
+        }
+    }
+
+    private string? SaveSnapshot(IWatchedModel model, int epoch, List<Finding> findings)
+    {
+        try
+        {
+            using var weights = new MemoryStream();
+            model.Module.save(weights);
+            weights.Position = 0;
+            return _store.SaveSnapshot(_run.Id, epoch, weights);
+        }
+        catch (Exception e) when (!_options.Strict)
+        {
+            findings.Add(Failure(epoch, "snapshot", e));
+            return null;
+        }
+    }
+
+    private void CheckModel(IWatchedModel model)
+    {
+        if (_modelChecked)
+            return;
+        if (!model.Schema.Names.SequenceEqual(_options.Schema.Names) || model.Schema.ColumnCount != _options.Schema.ColumnCount)
+            throw new DriftWatchException("the model's schema differs from the schema the monitor was configured with; pass model.Schema in MonitorOptions");
+        string shape = ModelShape(model.Module);
+        if (_run.ModelShape.Length == 0)
+        {
+            _run.ModelShape = shape;
+            _store.UpdateRun(_run);
+        }
+        else if (_run.ModelShape != shape)
+        {
+            throw new DriftWatchException($"run '{_run.Name}' was recorded with a model of another shape; use a new run name for a different model");
+        }
+        _modelChecked = true;
+    }
+
+    private void CheckMap(int epoch, string method, AttributionMap map, List<Finding> findings)
+    {
+        int bad = map.Scores.Count(v => !float.IsFinite(v));
+        if (bad > 0)
+        {
+            findings.Add(new Finding(FindingKind.NumericalTrouble, VerdictKind.Caution, "", bad, 0, [epoch],
+                $"{method}: {bad} of {map.Scores.Length} attribution scores are NaN or infinite at epoch {epoch}; this epoch's maps are not trusted"));
+            return;
+        }
+        double? relative = map.RelativeMeanDelta();
+        if (relative is double r && r > _options.DeltaTolerance)
+        {
+            findings.Add(new Finding(FindingKind.NumericalTrouble, VerdictKind.Caution, "", r, _options.DeltaTolerance, [epoch],
+                string.Create(CultureInfo.InvariantCulture, $"{method}: mean convergence delta is {r:P1} of mean |F(x) − F(x′)| at epoch {epoch}, above {_options.DeltaTolerance:P0}; use more steps — this epoch's maps are not trusted")));
+        }
+    }
+
+    private static void CheckLosses(int epoch, EpochMetrics metrics, List<Finding> findings)
+    {
+        foreach (var (name, value) in metrics.ToDictionary())
+        {
+            if (!double.IsFinite(value))
+            {
+                findings.Add(new Finding(FindingKind.NumericalTrouble, VerdictKind.Caution, "", double.NaN, 0, [epoch],
+                    $"metric '{name}' is {value.ToString(CultureInfo.InvariantCulture)} at epoch {epoch}"));
+            }
+        }
+    }
+
+    private static Finding Failure(int epoch, string where, Exception e) =>
+        new(FindingKind.MonitoringFailure, VerdictKind.Caution, "", 0, 0, [epoch],
+            $"{where} failed at epoch {epoch}: {e.GetType().Name}: {e.Message}");
+
+    private static Verdict Judge(int epoch, List<Finding> findings)
+    {
+        var kind = findings.Count == 0 ? VerdictKind.Continue : findings.Max(f => f.Severity);
+        return new Verdict(epoch, kind, findings.Select(f => f.Evidence).ToImmutableArray(), [.. findings]);
+    }
+
+    private VerdictDocument ToDocument(Verdict verdict) => new()
+    {
+        RunId = _run.Id,
+        Epoch = verdict.Epoch,
+        Kind = verdict.Kind.ToString(),
+        Reasons = [.. verdict.Reasons],
+        Findings = verdict.Findings.Select(f => new FindingDocument
+        {
+            Kind = f.Kind.ToString(),
+            Feature = f.Feature,
+            Severity = f.Severity.ToString(),
+            Size = f.Size,
+            NoiseFloor = f.NoiseFloor,
+            Epochs = [.. f.Epochs],
+            Evidence = f.Evidence,
+        }).ToList(),
+    };
+
+    private static ImportanceDocument ToDocument(HalfImportance half) => new()
+    {
+        MeanAbsolute = half.MeanAbsolute,
+        MeanSigned = half.MeanSigned,
+        Share = half.Share,
+        Alignment = half.Alignment,
+    };
+
+    private static string ModelShape(nn.Module module) =>
+        string.Join(";", module.named_parameters().Select(p => $"{p.name}[{string.Join("x", p.parameter.shape)}]"));
+
+    private static RunDocument Describe(MonitorOptions options)
+    {
+        var probe = options.Probe;
+        return new RunDocument
+        {
+            Name = options.RunName,
+            CreatedUtc = options.Time.GetUtcNow().UtcDateTime,
+            Description = options.Description,
+            Features = options.Schema.Features.Select(f => new FeatureDocument
+            {
+                Name = f.Name,
+                Kind = f.Kind.ToString(),
+                FirstColumn = f.FirstColumn,
+                ColumnCount = f.ColumnCount,
+            }).ToList(),
+            ProbeHash = probe.Hash,
+            HeldOutRows = probe.HeldOutCount,
+            TrainingRows = probe.TrainingCount,
+            DenseCount = probe.Rows.DenseCount,
+            CategoricalCount = probe.Rows.CategoricalCount,
+            ProbeDense = FloatBytes.FromFloats(probe.Rows.Dense),
+            ProbeCategorical = FloatBytes.FromLongs(probe.Rows.Categorical),
+            ProbeLabels = probe.Rows.Labels is null ? null : FloatBytes.FromFloats(probe.Rows.Labels),
+            Methods = options.Methods.Select(m => new MethodDocument { Name = m.Name, Settings = new Dictionary<string, string>(m.Settings) }).ToList(),
+            Target = options.Target.Label,
+            Baseline = options.Baseline.Label,
+            TrainingValueCounts = options.TrainingValueCounts.ToDictionary(
+                kv => kv.Key,
+                kv => kv.Value.ToDictionary(v => v.Key.ToString(CultureInfo.InvariantCulture), v => v.Value)),
+        };
+    }
+
+    private RunDocument Resume(RunDocument existing, RunDocument wanted)
+    {
+        string Mismatch(string what) =>
+            $"run '{existing.Name}' already exists in '{_store.Path}' with a different {what}; resume it with the same settings or choose a new run name";
+        if (!existing.Features.SequenceEqual(wanted.Features))
+            throw new DriftWatchException(Mismatch("feature schema"));
+        if (existing.ProbeHash != wanted.ProbeHash)
+            throw new DriftWatchException(Mismatch("probe set (hash " + existing.ProbeHash[..12] + " stored, " + wanted.ProbeHash[..12] + " given)"));
+        if (existing.Target != wanted.Target || existing.Baseline != wanted.Baseline)
+            throw new DriftWatchException(Mismatch("target or baseline"));
+        static string Methods(RunDocument r) => string.Join("; ", r.Methods.Select(m => m.Name + "(" + string.Join(",", m.Settings.OrderBy(s => s.Key, StringComparer.Ordinal).Select(s => s.Key + "=" + s.Value)) + ")"));
+        if (Methods(existing) != Methods(wanted))
+            throw new DriftWatchException(Mismatch("attribution method settings"));
+        return existing;
+    }
+}

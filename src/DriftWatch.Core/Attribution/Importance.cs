@@ -1,0 +1,68 @@
+using DriftWatch.Probing;
+
+namespace DriftWatch.Attribution;
+
+/// <summary>A feature's importance aggregated over one half of the probe set.</summary>
+/// <remarks>All arrays are indexed by feature.</remarks>
+public sealed record HalfImportance
+{
+    /// <summary>Mean |score| per feature.</summary>
+    public required double[] MeanAbsolute { get; init; }
+
+    /// <summary>Mean signed score per feature.</summary>
+    public required double[] MeanSigned { get; init; }
+
+    /// <summary>Share of the half's total mean |score| per feature; sums to 1 unless every score is 0.</summary>
+    public required double[] Share { get; init; }
+
+    /// <summary>Label alignment per feature: mean(score × ±1 label) / mean |score|, in [−1, 1]; null without binary labels.</summary>
+    public double[]? Alignment { get; init; }
+
+    /// <summary>Aggregates the rows <paramref name="rows"/> of <paramref name="map"/>.</summary>
+    /// <param name="map">The attribution map.</param>
+    /// <param name="rows">The rows of the half.</param>
+    /// <param name="labels">Labels of every probe row (0/1 for binary); alignment is computed only when every label in the half is 0 or 1.</param>
+    public static HalfImportance Compute(AttributionMap map, IReadOnlyList<int> rows, float[]? labels)
+    {
+        ArgumentNullException.ThrowIfNull(map);
+        ArgumentNullException.ThrowIfNull(rows);
+        int f = map.Features;
+        var abs = new double[f];
+        var signed = new double[f];
+        bool binary = labels is not null && rows.All(r => labels[r] is 0f or 1f);
+        double[]? aligned = binary ? new double[f] : null;
+        foreach (int r in rows)
+        {
+            double sign = binary ? 2 * labels![r] - 1 : 0;
+            for (int j = 0; j < f; j++)
+            {
+                double v = map[r, j];
+                abs[j] += Math.Abs(v);
+                signed[j] += v;
+                if (aligned is not null)
+                    aligned[j] += v * sign;
+            }
+        }
+        int n = Math.Max(1, rows.Count);
+        double total = 0;
+        for (int j = 0; j < f; j++)
+        {
+            abs[j] /= n;
+            signed[j] /= n;
+            total += abs[j];
+        }
+        var share = abs.Select(a => total > 0 ? a / total : 0).ToArray();
+        double[]? alignment = aligned?.Select((a, j) => abs[j] > 0 ? a / n / abs[j] : 0).ToArray();
+        return new HalfImportance { MeanAbsolute = abs, MeanSigned = signed, Share = share, Alignment = alignment };
+    }
+
+    /// <summary>Aggregates both halves of a probe set.</summary>
+    public static (HalfImportance HeldOut, HalfImportance Training) ForHalves(AttributionMap map, ProbeSet probe)
+    {
+        ArgumentNullException.ThrowIfNull(map);
+        ArgumentNullException.ThrowIfNull(probe);
+        var heldOut = Enumerable.Range(0, probe.HeldOutCount).ToArray();
+        var training = Enumerable.Range(probe.HeldOutCount, probe.TrainingCount).ToArray();
+        return (Compute(map, heldOut, probe.Rows.Labels), Compute(map, training, probe.Rows.Labels));
+    }
+}

@@ -1,0 +1,250 @@
+using LiteDB;
+
+namespace DriftWatch.Storage;
+
+#pragma warning disable CA2227 // LiteDB maps documents through settable collection properties.
+
+/// <summary>A stored document with a unique key; writing the same key again replaces it.</summary>
+public interface IKeyedDocument
+{
+    /// <summary>Store-assigned id.</summary>
+    int Id { get; set; }
+
+    /// <summary>The unique key.</summary>
+    string Key { get; }
+}
+
+/// <summary>One feature of a stored schema.</summary>
+public sealed record FeatureDocument
+{
+    /// <summary>Feature name.</summary>
+    public string Name { get; set; } = "";
+
+    /// <summary><c>Dense</c> or <c>Categorical</c>.</summary>
+    public string Kind { get; set; } = "";
+
+    /// <summary>First feature-space column.</summary>
+    public int FirstColumn { get; set; }
+
+    /// <summary>Columns owned.</summary>
+    public int ColumnCount { get; set; }
+}
+
+/// <summary>One configured attribution method and the settings that shaped its maps.</summary>
+public sealed record MethodDocument
+{
+    /// <summary>The method's stable name.</summary>
+    public string Name { get; set; } = "";
+
+    /// <summary>Its settings, invariant culture.</summary>
+    public Dictionary<string, string> Settings { get; set; } = [];
+}
+
+/// <summary>A training run: its schema, probe set and attribution settings.</summary>
+public sealed record RunDocument
+{
+    /// <summary>Store-assigned id.</summary>
+    [BsonId(autoId: true)]
+    public int Id { get; set; }
+
+    /// <summary>The run's unique name in the store.</summary>
+    public string Name { get; set; } = "";
+
+    /// <summary>When the run was first registered (UTC).</summary>
+    public DateTime CreatedUtc { get; set; }
+
+    /// <summary>A free-text description of the model, data and settings.</summary>
+    public string Description { get; set; } = "";
+
+    /// <summary>The feature schema, in feature-space order.</summary>
+    public List<FeatureDocument> Features { get; set; } = [];
+
+    /// <summary>SHA-256 of the probe set.</summary>
+    public string ProbeHash { get; set; } = "";
+
+    /// <summary>Rows in the held-out half (stored first).</summary>
+    public int HeldOutRows { get; set; }
+
+    /// <summary>Rows in the training half.</summary>
+    public int TrainingRows { get; set; }
+
+    /// <summary>Dense inputs per probe row.</summary>
+    public int DenseCount { get; set; }
+
+    /// <summary>Categorical inputs per probe row.</summary>
+    public int CategoricalCount { get; set; }
+
+    /// <summary>Probe dense values, row-major float32 little-endian.</summary>
+    public byte[] ProbeDense { get; set; } = [];
+
+    /// <summary>Probe categorical ids, row-major int64 little-endian.</summary>
+    public byte[] ProbeCategorical { get; set; } = [];
+
+    /// <summary>Probe labels, float32 little-endian, or null.</summary>
+    public byte[]? ProbeLabels { get; set; }
+
+    /// <summary>The attribution methods and their settings.</summary>
+    public List<MethodDocument> Methods { get; set; } = [];
+
+    /// <summary>The attributed target, e.g. <c>logit</c>.</summary>
+    public string Target { get; set; } = "";
+
+    /// <summary>The baseline, e.g. <c>zero</c>.</summary>
+    public string Baseline { get; set; } = "";
+
+    /// <summary>A fingerprint of the model's parameter names and shapes, to refuse resuming with a different model.</summary>
+    public string ModelShape { get; set; } = "";
+
+    /// <summary>Per categorical feature: how many training rows each value has (value → count), for identifier-like checks.</summary>
+    public Dictionary<string, Dictionary<string, int>> TrainingValueCounts { get; set; } = [];
+}
+
+/// <summary>Per-feature aggregates over one half of the probe set.</summary>
+public sealed record ImportanceDocument
+{
+    /// <summary>Mean |score| per feature.</summary>
+    public double[] MeanAbsolute { get; set; } = [];
+
+    /// <summary>Mean signed score per feature.</summary>
+    public double[] MeanSigned { get; set; } = [];
+
+    /// <summary>Share of total mean |score| per feature.</summary>
+    public double[] Share { get; set; } = [];
+
+    /// <summary>Label alignment per feature, or null without binary labels.</summary>
+    public double[]? Alignment { get; set; }
+}
+
+/// <summary>One attribution map: rows × features for (run, epoch, method, target).</summary>
+public sealed record MapDocument : IKeyedDocument
+{
+    /// <summary>Store-assigned id.</summary>
+    [BsonId(autoId: true)]
+    public int Id { get; set; }
+
+    /// <summary>Unique key <c>run/epoch/method/target</c>; writing the same key again replaces the map.</summary>
+    public string Key { get; set; } = "";
+
+    /// <summary>The run's id.</summary>
+    public int RunId { get; set; }
+
+    /// <summary>The epoch.</summary>
+    public int Epoch { get; set; }
+
+    /// <summary>The method's name.</summary>
+    public string Method { get; set; } = "";
+
+    /// <summary>The target label.</summary>
+    public string Target { get; set; } = "";
+
+    /// <summary>Probe rows.</summary>
+    public int Rows { get; set; }
+
+    /// <summary>Features.</summary>
+    public int Features { get; set; }
+
+    /// <summary>Row-major scores, float32 little-endian.</summary>
+    public byte[] Scores { get; set; } = [];
+
+    /// <summary>Per-row convergence delta, float32, or null.</summary>
+    public byte[]? Deltas { get; set; }
+
+    /// <summary>Per-row F(x) − F(x′), float32, or null.</summary>
+    public byte[]? OutputGaps { get; set; }
+
+    /// <summary>Aggregates over the held-out half.</summary>
+    public ImportanceDocument HeldOut { get; set; } = new();
+
+    /// <summary>Aggregates over the training half.</summary>
+    public ImportanceDocument Training { get; set; } = new();
+
+    /// <summary>Wall-clock seconds the attribution took.</summary>
+    public double Seconds { get; set; }
+
+    /// <summary>Model evaluations spent.</summary>
+    public long Evaluations { get; set; }
+}
+
+/// <summary>One finished epoch: its metrics, snapshot and any monitoring problems. Written last, so it marks the epoch complete.</summary>
+public sealed record EpochDocument : IKeyedDocument
+{
+    /// <summary>Store-assigned id.</summary>
+    [BsonId(autoId: true)]
+    public int Id { get; set; }
+
+    /// <summary>Unique key <c>run/epoch</c>.</summary>
+    public string Key { get; set; } = "";
+
+    /// <summary>The run's id.</summary>
+    public int RunId { get; set; }
+
+    /// <summary>The epoch.</summary>
+    public int Epoch { get; set; }
+
+    /// <summary>Metrics the training loop reported (train_loss, validation_loss, others).</summary>
+    public Dictionary<string, double> Metrics { get; set; } = [];
+
+    /// <summary>File-storage id of the weight snapshot, or null when snapshots are off or failed.</summary>
+    public string? SnapshotId { get; set; }
+
+    /// <summary>When the epoch was recorded (UTC).</summary>
+    public DateTime RecordedUtc { get; set; }
+
+    /// <summary>Problems met while monitoring this epoch (the training went on).</summary>
+    public List<string> Problems { get; set; } = [];
+
+    /// <summary>Seconds the monitor spent on this epoch.</summary>
+    public double MonitorSeconds { get; set; }
+}
+
+/// <summary>One finding as stored.</summary>
+public sealed record FindingDocument
+{
+    /// <summary>The finding kind.</summary>
+    public string Kind { get; set; } = "";
+
+    /// <summary>The feature it concerns, or empty for run-level findings.</summary>
+    public string Feature { get; set; } = "";
+
+    /// <summary>Severity: the verdict this finding alone would ask for.</summary>
+    public string Severity { get; set; } = "";
+
+    /// <summary>The statistic's size.</summary>
+    public double Size { get; set; }
+
+    /// <summary>The noise floor it was judged against.</summary>
+    public double NoiseFloor { get; set; }
+
+    /// <summary>Epochs the finding covers.</summary>
+    public int[] Epochs { get; set; } = [];
+
+    /// <summary>Plain-language evidence.</summary>
+    public string Evidence { get; set; } = "";
+}
+
+/// <summary>The gate's verdict at an epoch, with the findings behind it.</summary>
+public sealed record VerdictDocument : IKeyedDocument
+{
+    /// <summary>Store-assigned id.</summary>
+    [BsonId(autoId: true)]
+    public int Id { get; set; }
+
+    /// <summary>Unique key <c>run/epoch</c>.</summary>
+    public string Key { get; set; } = "";
+
+    /// <summary>The run's id.</summary>
+    public int RunId { get; set; }
+
+    /// <summary>The epoch.</summary>
+    public int Epoch { get; set; }
+
+    /// <summary>Continue, Caution or Halt.</summary>
+    public string Kind { get; set; } = "";
+
+    /// <summary>Reasons, one line each.</summary>
+    public List<string> Reasons { get; set; } = [];
+
+    /// <summary>The findings behind the verdict.</summary>
+    public List<FindingDocument> Findings { get; set; } = [];
+}
+#pragma warning restore CA2227
