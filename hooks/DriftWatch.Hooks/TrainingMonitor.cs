@@ -180,7 +180,8 @@ public sealed class TrainingMonitor : IDisposable
         try
         {
             using var weights = new MemoryStream();
-            model.Module.save(weights);
+            using (var writer = new BinaryWriter(weights, System.Text.Encoding.UTF8, leaveOpen: true))
+                model.Module.save(writer);
             weights.Position = 0;
             return _store.SaveSnapshot(_run.Id, epoch, weights);
         }

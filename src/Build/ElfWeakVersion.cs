@@ -8,6 +8,7 @@
 // This file is compiled twice: by MSBuild's RoslynCodeTaskFactory as a build task, and by the test project
 // (with ELF_WEAK_VERSION_NO_TASK defined) so the byte-level logic is tested on its own.
 #nullable enable
+#pragma warning disable IDE0161 // block namespace: this file is also compiled by MSBuild's task factory
 using System;
 using System.Collections.Generic;
 using System.IO;

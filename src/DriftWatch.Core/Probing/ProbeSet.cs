@@ -4,7 +4,7 @@ using System.Security.Cryptography;
 namespace DriftWatch.Probing;
 
 /// <summary>Which part of the probe set a row belongs to.</summary>
-public enum Half
+public enum ProbeHalf
 {
     /// <summary>Rows the model never trains on.</summary>
     HeldOut = 0,
@@ -48,13 +48,13 @@ public sealed class ProbeSet
     public string Hash { get; }
 
     /// <summary>The half of row <paramref name="row"/>.</summary>
-    public Half HalfOf(int row) => row < HeldOutCount ? Half.HeldOut : Half.Training;
+    public ProbeHalf HalfOf(int row) => row < HeldOutCount ? ProbeHalf.HeldOut : ProbeHalf.Training;
 
     /// <summary>The half of every row, as bytes (0 held-out, 1 training), for storage.</summary>
     public byte[] HalfMarkers()
     {
         var markers = new byte[Count];
-        Array.Fill(markers, (byte)Half.Training, HeldOutCount, TrainingCount);
+        Array.Fill(markers, (byte)ProbeHalf.Training, HeldOutCount, TrainingCount);
         return markers;
     }
 

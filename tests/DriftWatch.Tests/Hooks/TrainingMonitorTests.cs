@@ -1,0 +1,270 @@
+using System.Collections.Immutable;
+using DriftWatch.Attribution;
+using DriftWatch.Detection;
+using DriftWatch.Hooks;
+using DriftWatch.Probing;
+using DriftWatch.Storage;
+using DriftWatch.Tests.Support;
+using TorchSharp;
+using Xunit;
+using static TorchSharp.torch;
+
+namespace DriftWatch.Tests.Hooks;
+
+public sealed class TrainingMonitorTests
+{
+    private static ProbeSet Probe(int perHalf = 12) => ProbeSet.Select(
+        new RowsBuilder().WithRows(60).WithSeed(1).Build(),
+        new RowsBuilder().WithRows(60).WithSeed(2).Build(),
+        perHalf,
+        seed: 4);
+
+    private static MonitorOptions Options(string store, SmallNet model, string run = "test-run") => new()
+    {
+        StorePath = store,
+        RunName = run,
+        Schema = model.Schema,
+        Probe = Probe(),
+        Methods = [new IntegratedGradients(32)],
+    };
+
+    private static void TrainOneEpoch(SmallNet model, ProbeRows rows, optim.Optimizer optimizer)
+    {
+        using var scope = torch.NewDisposeScope();
+        model.train();
+        optimizer.zero_grad();
+        var logits = model.call(torch.tensor(rows.Dense, [rows.Count, rows.DenseCount]), torch.tensor(rows.Categorical, [rows.Count, 1])).squeeze(1);
+        var loss = nn.functional.binary_cross_entropy_with_logits(logits, torch.tensor(rows.Labels!));
+        loss.backward();
+        optimizer.step();
+    }
+
+    [Fact]
+    public void EveryEpochIsStoredWithMapsMetricsAndSnapshot()
+    {
+        using var temp = new TempFolder();
+        using var model = new SmallNet(3, 5, 4);
+        var data = new RowsBuilder().WithRows(80).WithSeed(3).Build();
+        var optimizer = optim.Adam(model.parameters(), 0.01);
+        using (var monitor = new TrainingMonitor(Options(temp.File("s.litedb"), model)))
+        {
+            for (int epoch = 0; epoch < 4; epoch++)
+            {
+                TrainOneEpoch(model, data, optimizer);
+                var verdict = monitor.EndEpoch(model, epoch, new EpochMetrics(1.0 / (epoch + 1), 0.9).With("accuracy", 0.5));
+                Assert.True(verdict.Kind == VerdictKind.Continue, string.Join("; ", verdict.Reasons));
+            }
+        }
+
+        using var store = RunStore.OpenForReading(temp.File("s.litedb"));
+        var run = store.GetRun("test-run");
+        var epochs = store.Epochs(run.Id);
+        Assert.Equal([0, 1, 2, 3], epochs.Select(e => e.Epoch));
+        Assert.All(epochs, e => Assert.NotNull(e.SnapshotId));
+        Assert.Equal(0.25, epochs[3].Metrics[EpochMetrics.TrainLossKey]);
+        Assert.Equal(0.5, epochs[3].Metrics["accuracy"]);
+        var maps = store.Maps(run.Id);
+        Assert.Equal(4, maps.Count);
+        Assert.All(maps, m => Assert.Equal(24 * 4, FloatBytes.ToFloats(m.Scores).Length));
+        Assert.All(maps, m => Assert.Equal(1.0, m.HeldOut.Share.Sum(), 6));
+        Assert.Equal(Probe().Hash, run.ProbeHash);
+    }
+
+    [Fact]
+    public void StoreWrittenClosedAndReopenedReturnsIdenticalMaps()
+    {
+        using var temp = new TempFolder();
+        using var model = new SmallNet(3, 5, 4);
+        float[] written;
+        using (var monitor = new TrainingMonitor(Options(temp.File("s.litedb"), model)))
+        {
+            monitor.EndEpoch(model, 0, new EpochMetrics(0.7, 0.7));
+            written = FloatBytes.ToFloats(monitor.Store.Maps(monitor.Run.Id)[0].Scores);
+        }
+
+        // Recompute independently from the same weights to show the stored numbers are the attribution's own.
+        using var scope = torch.NewDisposeScope();
+        model.eval();
+        var probe = Probe();
+        var features = model.Encode(torch.tensor(probe.Rows.Dense, [probe.Count, 3]), torch.tensor(probe.Rows.Categorical, [probe.Count, 1])).detach();
+        var columns = new IntegratedGradients(32).Attribute(new AttributionInput(f => model.Score(f).squeeze(1), features, torch.zeros(7), 8192));
+        var expected = AttributionMap.FromColumns(columns, model.Schema).Scores;
+
+        using var store = RunStore.OpenForReading(temp.File("s.litedb"));
+        var read = FloatBytes.ToFloats(store.Maps(store.GetRun("test-run").Id)[0].Scores);
+        Assert.Equal(written, read);
+        for (int i = 0; i < expected.Length; i++)
+            Assert.Equal(expected[i], read[i], 1e-6);
+    }
+
+    [Fact]
+    public void SnapshotReadBackReproducesTheModelsOutputsExactly()
+    {
+        using var temp = new TempFolder();
+        using var model = new SmallNet(3, 5, 4, seed: 1);
+        var data = new RowsBuilder().WithRows(80).WithSeed(3).Build();
+        TrainOneEpoch(model, data, optim.Adam(model.parameters(), 0.05));
+        string snapshotId;
+        using (var monitor = new TrainingMonitor(Options(temp.File("s.litedb"), model)))
+        {
+            monitor.EndEpoch(model, 0, new EpochMetrics(0.7, 0.7));
+            snapshotId = monitor.Store.Epochs(monitor.Run.Id)[0].SnapshotId!;
+        }
+
+        using var restored = new SmallNet(3, 5, 4, seed: 99);
+        using (var store = RunStore.OpenForReading(temp.File("s.litedb")))
+        using (var weights = store.ReadSnapshot(snapshotId))
+            restored.load(weights);
+
+        using var scope = torch.NewDisposeScope();
+        model.eval();
+        restored.eval();
+        var dense = torch.tensor(data.Dense, [80, 3]);
+        var cats = torch.tensor(data.Categorical, [80, 1]);
+        Assert.Equal(model.call(dense, cats).data<float>().ToArray(), restored.call(dense, cats).data<float>().ToArray());
+    }
+
+    [Fact]
+    public void AnExceptionInsideAttributionDoesNotEscapeAndIsRecorded()
+    {
+        using var temp = new TempFolder();
+        using var model = new SmallNet(3, 5, 4);
+        var options = Options(temp.File("s.litedb"), model) with { Methods = [new ThrowingMethod(), new Saliency()] };
+        using var monitor = new TrainingMonitor(options);
+
+        var verdict = monitor.EndEpoch(model, 0, new EpochMetrics(0.7, 0.7));
+        var next = monitor.EndEpoch(model, 1, new EpochMetrics(0.6, 0.7));
+
+        Assert.Equal(VerdictKind.Caution, verdict.Kind);
+        var failure = Assert.Single(verdict.Findings);
+        Assert.Equal(FindingKind.MonitoringFailure, failure.Kind);
+        Assert.Contains("boom at the probe", failure.Evidence);
+        var epochs = monitor.Store.Epochs(monitor.Run.Id);
+        Assert.Equal(2, epochs.Count);
+        Assert.Contains(epochs[0].Problems, p => p.Contains("boom at the probe", StringComparison.Ordinal));
+        Assert.Equal(2, monitor.Store.Maps(monitor.Run.Id, "saliency").Count); // the other method still ran
+        Assert.Equal("Caution", monitor.Store.Verdicts(monitor.Run.Id)[0].Kind);
+        Assert.Single(next.Findings);
+    }
+
+    [Fact]
+    public void StrictModeRethrows()
+    {
+        using var temp = new TempFolder();
+        using var model = new SmallNet(3, 5, 4);
+        using var monitor = new TrainingMonitor(Options(temp.File("s.litedb"), model) with { Methods = [new ThrowingMethod()], Strict = true });
+
+        Assert.Throws<InvalidOperationException>(() => monitor.EndEpoch(model, 0, new EpochMetrics(0.7, 0.7)));
+    }
+
+    [Fact]
+    public void NaNLossAndNaNScoresBecomeFindingsNotCrashes()
+    {
+        using var temp = new TempFolder();
+        using var model = new SmallNet(3, 5, 4);
+        using var monitor = new TrainingMonitor(Options(temp.File("s.litedb"), model) with { Methods = [new NaNMethod()] });
+
+        var verdict = monitor.EndEpoch(model, 0, new EpochMetrics(double.NaN, 0.7));
+
+        Assert.Equal(2, verdict.Findings.Count(f => f.Kind == FindingKind.NumericalTrouble));
+        Assert.Contains(verdict.Reasons, r => r.Contains("train_loss", StringComparison.Ordinal));
+        Assert.Contains(verdict.Reasons, r => r.Contains("not trusted", StringComparison.Ordinal));
+    }
+
+    [Fact]
+    public void OutOfOrderEpochIsRecordedNotThrown()
+    {
+        using var temp = new TempFolder();
+        using var model = new SmallNet(3, 5, 4);
+        using var monitor = new TrainingMonitor(Options(temp.File("s.litedb"), model));
+        monitor.EndEpoch(model, 5, new EpochMetrics(0.7, 0.7));
+
+        var verdict = monitor.EndEpoch(model, 3, new EpochMetrics(0.7, 0.7));
+
+        Assert.Contains("epochs must increase", Assert.Single(verdict.Reasons));
+        Assert.Equal([5], monitor.Store.Epochs(monitor.Run.Id).Select(e => e.Epoch));
+    }
+
+    [Fact]
+    public void ResumedRunContinuesWithoutDuplicates()
+    {
+        using var temp = new TempFolder();
+        using var model = new SmallNet(3, 5, 4);
+        using (var first = new TrainingMonitor(Options(temp.File("s.litedb"), model)))
+        {
+            first.EndEpoch(model, 0, new EpochMetrics(0.7, 0.7));
+            first.EndEpoch(model, 1, new EpochMetrics(0.6, 0.7));
+        }
+
+        using var resumed = new TrainingMonitor(Options(temp.File("s.litedb"), model));
+        Assert.Equal(1, resumed.LastEpoch);
+        resumed.EndEpoch(model, 1, new EpochMetrics(0.55, 0.7)); // the interrupted epoch again
+        resumed.EndEpoch(model, 2, new EpochMetrics(0.5, 0.7));
+
+        Assert.Single(resumed.Store.Runs());
+        Assert.Equal([0, 1, 2], resumed.Store.Epochs(resumed.Run.Id).Select(e => e.Epoch));
+        Assert.Equal(0.55, resumed.Store.Epochs(resumed.Run.Id)[1].Metrics[EpochMetrics.TrainLossKey]);
+        Assert.Equal(3, resumed.Store.Maps(resumed.Run.Id).Count);
+    }
+
+    [Fact]
+    public void ResumingWithAnotherProbeSetIsRefusedAtConfiguration()
+    {
+        using var temp = new TempFolder();
+        using var model = new SmallNet(3, 5, 4);
+        using (var first = new TrainingMonitor(Options(temp.File("s.litedb"), model)))
+            first.EndEpoch(model, 0, new EpochMetrics(0.7, 0.7));
+
+        var e = Assert.Throws<DriftWatchException>(() => new TrainingMonitor(Options(temp.File("s.litedb"), model) with { Probe = Probe(perHalf: 10) }));
+
+        Assert.Contains("different probe set", e.Message);
+    }
+
+    [Fact]
+    public void ProbeWidthThatDoesNotMatchTheSchemaIsRefused()
+    {
+        using var temp = new TempFolder();
+        using var model = new SmallNet(3, 5, 4);
+        var wide = new RowsBuilder().WithDense(4).Build();
+
+        var e = Assert.Throws<DriftWatchException>(() => new TrainingMonitor(Options(temp.File("s.litedb"), model) with { Probe = new ProbeSet(wide, wide) }));
+
+        Assert.Contains("4 dense", e.Message);
+        Assert.False(File.Exists(temp.File("s.litedb")));
+    }
+
+    [Fact]
+    public void TwoHundredEpochsLeaveNoTensorBehind()
+    {
+        using var temp = new TempFolder();
+        using var model = new SmallNet(3, 5, 4);
+        using var monitor = new TrainingMonitor(Options(temp.File("s.litedb"), model) with { SaveSnapshots = false, Methods = [new IntegratedGradients(4)] });
+        monitor.EndEpoch(model, 0, new EpochMetrics(0.7, 0.7));
+        long before = torch.Tensor.TotalCount;
+
+        for (int epoch = 1; epoch <= 200; epoch++)
+            monitor.EndEpoch(model, epoch, new EpochMetrics(0.7, 0.7));
+
+        Assert.Equal(before, torch.Tensor.TotalCount);
+        Assert.Equal(201, monitor.Store.Epochs(monitor.Run.Id).Count);
+    }
+
+    private sealed class ThrowingMethod : IAttributionMethod
+    {
+        public string Name => "throwing";
+
+        public ImmutableSortedDictionary<string, string> Settings => ImmutableSortedDictionary<string, string>.Empty;
+
+        public ColumnAttribution Attribute(AttributionInput input) => throw new InvalidOperationException("boom at the probe");
+    }
+
+    private sealed class NaNMethod : IAttributionMethod
+    {
+        public string Name => "nan";
+
+        public ImmutableSortedDictionary<string, string> Settings => ImmutableSortedDictionary<string, string>.Empty;
+
+        public ColumnAttribution Attribute(AttributionInput input) =>
+            new(input.Rows, input.Columns, Enumerable.Repeat(float.NaN, input.Rows * input.Columns).ToArray(), null, 0);
+    }
+}
