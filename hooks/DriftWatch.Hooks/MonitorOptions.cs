@@ -1,5 +1,6 @@
 using System.Collections.Immutable;
 using DriftWatch.Attribution;
+using DriftWatch.Detection;
 using DriftWatch.Model;
 using DriftWatch.Probing;
 
@@ -41,8 +42,8 @@ public sealed record MonitorOptions
     /// <summary>Rethrow failures inside monitoring instead of recording them. Default false: training is never interrupted.</summary>
     public bool Strict { get; init; }
 
-    /// <summary>Mean convergence delta, as a fraction of mean |F(x) − F(x′)|, beyond which an epoch's path maps are not trusted. Default 0.05.</summary>
-    public double DeltaTolerance { get; init; } = 0.05;
+    /// <summary>The gate's policy: thresholds, warm-up, patience, which findings may Halt. Default: <see cref="GatePolicy.Default"/>.</summary>
+    public GatePolicy Policy { get; init; } = GatePolicy.Default;
 
     /// <summary>Free text stored with the run: model, data, settings.</summary>
     public string Description { get; init; } = "";
@@ -73,8 +74,8 @@ public sealed record MonitorOptions
             throw new DriftWatchException($"ChunkRows must be at least 1; got {ChunkRows}");
         if (AttributeEvery < 1)
             throw new DriftWatchException($"AttributeEvery must be at least 1; got {AttributeEvery}");
-        if (!(DeltaTolerance > 0))
-            throw new DriftWatchException($"DeltaTolerance must be above 0; got {DeltaTolerance}");
+        if (Policy is null)
+            throw new DriftWatchException("Policy is null; leave it out for the built-in policy");
         if (Probe.Rows.DenseCount != Schema.DenseCount || Probe.Rows.CategoricalCount != Schema.CategoricalCount)
             throw new DriftWatchException(
                 $"probe rows have {Probe.Rows.DenseCount} dense and {Probe.Rows.CategoricalCount} categorical inputs but the schema has {Schema.DenseCount} and {Schema.CategoricalCount}; build the probe from the model's own input rows");

@@ -24,6 +24,7 @@ public sealed class TrainingMonitor : IDisposable
     private readonly MonitorOptions _options;
     private readonly RunStore _store;
     private readonly RunDocument _run;
+    private DivergenceDetector _detector;
     private int _lastEpoch;
     private bool _modelChecked;
 
@@ -41,6 +42,7 @@ public sealed class TrainingMonitor : IDisposable
             var existing = _store.FindRun(options.RunName);
             _run = existing is null ? _store.AddRun(wanted) : Resume(existing, wanted);
             _lastEpoch = _store.Epochs(_run.Id).Select(e => e.Epoch).DefaultIfEmpty(-1).Max();
+            _detector = CatchUp(before: int.MaxValue);
         }
         catch
         {
@@ -66,47 +68,55 @@ public sealed class TrainingMonitor : IDisposable
     public Verdict EndEpoch(IWatchedModel model, int epoch, EpochMetrics metrics)
     {
         var clock = Stopwatch.StartNew();
-        var findings = new List<Finding>();
+        var failures = new List<Finding>();
         try
         {
             ArgumentNullException.ThrowIfNull(model);
             ArgumentNullException.ThrowIfNull(metrics);
             if (epoch < _lastEpoch)
                 throw new DriftWatchException($"epoch {epoch} comes after epoch {_lastEpoch}; epochs must increase (repeat the last one to replace it)");
-            CheckLosses(epoch, metrics, findings);
+            if (epoch == _lastEpoch)
+                _detector = CatchUp(before: epoch); // a repeated epoch: the detector's state must not include its earlier attempt
             CheckModel(model);
 
-            if (epoch % _options.AttributeEvery == 0)
-                Attribute(model, epoch, findings);
-            string? snapshot = _options.SaveSnapshots ? SaveSnapshot(model, epoch, findings) : null;
+            var maps = epoch % _options.AttributeEvery == 0 ? Attribute(model, epoch, failures) : [];
+            string? snapshot = _options.SaveSnapshots ? SaveSnapshot(model, epoch, failures) : null;
+            var values = metrics.ToDictionary();
+            var primary = maps.FirstOrDefault(m => m.Method == _options.Methods[0].Name);
+            var assessment = _detector.Observe(new EpochEvidence(epoch, values, primary?.Map, [.. failures]));
 
+            // The epoch's document goes last: it marks the epoch complete for readers and for a resumed run.
+            _store.WriteStatistics(new StatisticsDocument { RunId = _run.Id, Epoch = epoch, Statistics = assessment.Statistics });
+            _store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, _run.Id));
             _store.WriteEpoch(new EpochDocument
             {
                 RunId = _run.Id,
                 Epoch = epoch,
-                Metrics = metrics.ToDictionary(),
+                Metrics = values,
                 SnapshotId = snapshot,
                 RecordedUtc = _options.Time.GetUtcNow().UtcDateTime,
-                Problems = findings.Where(f => f.Kind == FindingKind.MonitoringFailure).Select(f => f.Evidence).ToList(),
+                Problems = failures.Select(f => f.Evidence).ToList(),
                 MonitorSeconds = clock.Elapsed.TotalSeconds,
             });
             _lastEpoch = epoch;
-            var verdict = Judge(epoch, findings);
-            _store.WriteVerdict(ToDocument(verdict));
-            return verdict;
+            return assessment.Verdict;
         }
         catch (Exception e) when (!_options.Strict)
         {
-            findings.Add(Failure(epoch, "monitoring", e));
-            return Judge(epoch, findings);
+            failures.Add(Failure(epoch, "monitoring", e));
+            var kind = failures.Max(f => f.Severity);
+            return new Verdict(epoch, kind, failures.Select(f => f.Evidence).ToImmutableArray(), [.. failures]);
         }
     }
 
     /// <inheritdoc />
     public void Dispose() => _store.Dispose();
 
-    private void Attribute(IWatchedModel model, int epoch, List<Finding> findings)
+    private sealed record StoredMap(string Method, AttributionMap Map);
+
+    private List<StoredMap> Attribute(IWatchedModel model, int epoch, List<Finding> failures)
     {
+        var stored = new List<StoredMap>();
         var module = model.Module;
         bool wasTraining = module.training;
         var parameters = module.parameters().ToList();
@@ -142,7 +152,6 @@ public sealed class TrainingMonitor : IDisposable
                     var columns = method.Attribute(input);
                     var map = AttributionMap.FromColumns(columns, _options.Schema);
                     double seconds = watch.Elapsed.TotalSeconds;
-                    CheckMap(epoch, method.Name, map, findings);
                     var (heldOut, training) = HalfImportance.ForHalves(map, probe);
                     _store.WriteMap(new MapDocument
                     {
@@ -160,10 +169,11 @@ public sealed class TrainingMonitor : IDisposable
                         Seconds = seconds,
                         Evaluations = columns.Evaluations,
                     });
+                    stored.Add(new StoredMap(method.Name, map));
                 }
                 catch (Exception e) when (!_options.Strict)
                 {
-                    findings.Add(Failure(epoch, method.Name, e));
+                    failures.Add(Failure(epoch, method.Name, e));
                 }
             }
         }
@@ -173,9 +183,10 @@ public sealed class TrainingMonitor : IDisposable
                 parameters[i].requires_grad = requiresGrad[i];
             module.train(wasTraining);
         }
+        return stored;
     }
 
-    private string? SaveSnapshot(IWatchedModel model, int epoch, List<Finding> findings)
+    private string? SaveSnapshot(IWatchedModel model, int epoch, List<Finding> failures)
     {
         try
         {
@@ -187,7 +198,7 @@ public sealed class TrainingMonitor : IDisposable
         }
         catch (Exception e) when (!_options.Strict)
         {
-            findings.Add(Failure(epoch, "snapshot", e));
+            failures.Add(Failure(epoch, "snapshot", e));
             return null;
         }
     }
@@ -211,62 +222,19 @@ public sealed class TrainingMonitor : IDisposable
         _modelChecked = true;
     }
 
-    private void CheckMap(int epoch, string method, AttributionMap map, List<Finding> findings)
+    // A fresh detector fed the stored epochs before the given one, so a resumed run judges as if never interrupted.
+    private DivergenceDetector CatchUp(int before)
     {
-        int bad = map.Scores.Count(v => !float.IsFinite(v));
-        if (bad > 0)
-        {
-            findings.Add(new Finding(FindingKind.NumericalTrouble, VerdictKind.Caution, "", bad, 0, [epoch],
-                $"{method}: {bad} of {map.Scores.Length} attribution scores are NaN or infinite at epoch {epoch}; this epoch's maps are not trusted"));
-            return;
-        }
-        double? relative = map.RelativeMeanDelta();
-        if (relative is double r && r > _options.DeltaTolerance)
-        {
-            findings.Add(new Finding(FindingKind.NumericalTrouble, VerdictKind.Caution, "", r, _options.DeltaTolerance, [epoch],
-                string.Create(CultureInfo.InvariantCulture, $"{method}: mean convergence delta is {r:P1} of mean |F(x) − F(x′)| at epoch {epoch}, above {_options.DeltaTolerance:P0}; use more steps — this epoch's maps are not trusted")));
-        }
-    }
-
-    private static void CheckLosses(int epoch, EpochMetrics metrics, List<Finding> findings)
-    {
-        foreach (var (name, value) in metrics.ToDictionary())
-        {
-            if (!double.IsFinite(value))
-            {
-                findings.Add(new Finding(FindingKind.NumericalTrouble, VerdictKind.Caution, "", double.NaN, 0, [epoch],
-                    $"metric '{name}' is {value.ToString(CultureInfo.InvariantCulture)} at epoch {epoch}"));
-            }
-        }
+        var detector = new DivergenceDetector(RunContext.FromRun(_run), _options.Policy);
+        var maps = _store.Maps(_run.Id, _options.Methods[0].Name).ToDictionary(m => m.Epoch);
+        foreach (var stored in _store.Epochs(_run.Id).Where(e => e.Epoch < before))
+            detector.Observe(RunReview.Evidence(stored, maps.GetValueOrDefault(stored.Epoch)));
+        return detector;
     }
 
     private static Finding Failure(int epoch, string where, Exception e) =>
         new(FindingKind.MonitoringFailure, VerdictKind.Caution, "", 0, 0, [epoch],
             $"{where} failed at epoch {epoch}: {e.GetType().Name}: {e.Message}");
-
-    private static Verdict Judge(int epoch, List<Finding> findings)
-    {
-        var kind = findings.Count == 0 ? VerdictKind.Continue : findings.Max(f => f.Severity);
-        return new Verdict(epoch, kind, findings.Select(f => f.Evidence).ToImmutableArray(), [.. findings]);
-    }
-
-    private VerdictDocument ToDocument(Verdict verdict) => new()
-    {
-        RunId = _run.Id,
-        Epoch = verdict.Epoch,
-        Kind = verdict.Kind.ToString(),
-        Reasons = [.. verdict.Reasons],
-        Findings = verdict.Findings.Select(f => new FindingDocument
-        {
-            Kind = f.Kind.ToString(),
-            Feature = f.Feature,
-            Severity = f.Severity.ToString(),
-            Size = f.Size,
-            NoiseFloor = f.NoiseFloor,
-            Epochs = [.. f.Epochs],
-            Evidence = f.Evidence,
-        }).ToList(),
-    };
 
     private static ImportanceDocument ToDocument(HalfImportance half) => new()
     {
@@ -305,6 +273,7 @@ public sealed class TrainingMonitor : IDisposable
             Methods = options.Methods.Select(m => new MethodDocument { Name = m.Name, Settings = new Dictionary<string, string>(m.Settings) }).ToList(),
             Target = options.Target.Label,
             Baseline = options.Baseline.Label,
+            Policy = options.Policy.ToJson(),
             TrainingValueCounts = options.TrainingValueCounts.ToDictionary(
                 kv => kv.Key,
                 kv => kv.Value.ToDictionary(v => v.Key.ToString(CultureInfo.InvariantCulture), v => v.Value)),

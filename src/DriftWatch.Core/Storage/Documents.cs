@@ -92,6 +92,9 @@ public sealed record RunDocument
     /// <summary>The baseline, e.g. <c>zero</c>.</summary>
     public string Baseline { get; set; } = "";
 
+    /// <summary>The gate policy the monitor used, as JSON.</summary>
+    public string Policy { get; set; } = "";
+
     /// <summary>A fingerprint of the model's parameter names and shapes, to refuse resuming with a different model.</summary>
     public string ModelShape { get; set; } = "";
 
@@ -246,5 +249,24 @@ public sealed record VerdictDocument : IKeyedDocument
 
     /// <summary>The findings behind the verdict.</summary>
     public List<FindingDocument> Findings { get; set; } = [];
+}
+/// <summary>The detector's statistics of one epoch, stored so charts and reports need not recompute noise floors.</summary>
+public sealed record StatisticsDocument : IKeyedDocument
+{
+    /// <summary>Store-assigned id.</summary>
+    [BsonId(autoId: true)]
+    public int Id { get; set; }
+
+    /// <summary>Unique key <c>run/epoch</c>.</summary>
+    public string Key { get; set; } = "";
+
+    /// <summary>The run's id.</summary>
+    public int RunId { get; set; }
+
+    /// <summary>The epoch.</summary>
+    public int Epoch { get; set; }
+
+    /// <summary>The statistics.</summary>
+    public DriftWatch.Detection.EpochStatistics? Statistics { get; set; }
 }
 #pragma warning restore CA2227

@@ -38,6 +38,8 @@ public sealed class RunStore : IDisposable
 
     private ILiteCollection<VerdictDocument> VerdictsCollection => _database.GetCollection<VerdictDocument>("verdicts");
 
+    private ILiteCollection<StatisticsDocument> StatisticsCollection => _database.GetCollection<StatisticsDocument>("statistics");
+
     /// <summary>Opens a store for writing, creating the file (and its folder) when missing.</summary>
     /// <exception cref="StoreException">The path is a folder, or the file is not a DriftWatch store.</exception>
     public static RunStore OpenForWriting(string path)
@@ -145,6 +147,23 @@ public sealed class RunStore : IDisposable
         Guard(() => Upsert(VerdictsCollection, verdict with { Key = EpochKey(verdict.RunId, verdict.Epoch) }));
     }
 
+    /// <summary>Writes an epoch's detector statistics, replacing earlier ones for the same epoch.</summary>
+    public void WriteStatistics(StatisticsDocument statistics)
+    {
+        ArgumentNullException.ThrowIfNull(statistics);
+        Guard(() => Upsert(StatisticsCollection, statistics with { Key = EpochKey(statistics.RunId, statistics.Epoch) }));
+    }
+
+    /// <summary>The detector statistics of a run's complete epochs, in epoch order.</summary>
+    public IReadOnlyList<StatisticsDocument> StatisticsOf(int runId)
+    {
+        return Guard(() =>
+        {
+            var complete = EpochsCollection.Find(e => e.RunId == runId).Select(e => e.Epoch).ToHashSet();
+            return StatisticsCollection.Find(s => s.RunId == runId).Where(s => complete.Contains(s.Epoch)).OrderBy(s => s.Epoch).ToList();
+        });
+    }
+
     /// <summary>Saves a weight snapshot and returns its file id.</summary>
     public string SaveSnapshot(int runId, int epoch, Stream weights)
     {
@@ -186,9 +205,15 @@ public sealed class RunStore : IDisposable
         });
     }
 
-    /// <summary>The verdicts of a run, in epoch order.</summary>
-    public IReadOnlyList<VerdictDocument> Verdicts(int runId) =>
-        Guard(() => VerdictsCollection.Find(v => v.RunId == runId).OrderBy(v => v.Epoch).ToList());
+    /// <summary>The verdicts of a run's complete epochs, in epoch order.</summary>
+    public IReadOnlyList<VerdictDocument> Verdicts(int runId)
+    {
+        return Guard(() =>
+        {
+            var complete = EpochsCollection.Find(e => e.RunId == runId).Select(e => e.Epoch).ToHashSet();
+            return VerdictsCollection.Find(v => v.RunId == runId).Where(v => complete.Contains(v.Epoch)).OrderBy(v => v.Epoch).ToList();
+        });
+    }
 
     /// <inheritdoc />
     public void Dispose() => _database.Dispose();
@@ -279,6 +304,8 @@ public sealed class RunStore : IDisposable
             MapsCollection.EnsureIndex(m => m.RunId);
             VerdictsCollection.EnsureIndex(v => v.Key, unique: true);
             VerdictsCollection.EnsureIndex(v => v.RunId);
+            StatisticsCollection.EnsureIndex(s => s.Key, unique: true);
+            StatisticsCollection.EnsureIndex(s => s.RunId);
         });
     }
 

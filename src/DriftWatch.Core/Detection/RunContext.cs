@@ -1,0 +1,97 @@
+using System.Collections.Immutable;
+using System.Globalization;
+using DriftWatch.Model;
+using DriftWatch.Storage;
+
+namespace DriftWatch.Detection;
+
+/// <summary>What the detector knows of a run that does not change between epochs: schema, probe rows and training value counts.</summary>
+public sealed class RunContext
+{
+    /// <summary>Creates the context.</summary>
+    /// <param name="schema">The feature schema; categorical inputs of a raw row are in the schema's order.</param>
+    /// <param name="heldOutCount">Probe rows in the held-out half (they come first).</param>
+    /// <param name="trainingCount">Probe rows in the training half.</param>
+    /// <param name="labels">Labels of every probe row, or null.</param>
+    /// <param name="categorical">Row-major categorical ids of every probe row.</param>
+    /// <param name="trainingValueCounts">Per categorical feature name, training rows per value.</param>
+    public RunContext(
+        FeatureSchema schema,
+        int heldOutCount,
+        int trainingCount,
+        float[]? labels,
+        long[] categorical,
+        IReadOnlyDictionary<string, IReadOnlyDictionary<long, int>> trainingValueCounts)
+    {
+        ArgumentNullException.ThrowIfNull(schema);
+        ArgumentNullException.ThrowIfNull(categorical);
+        ArgumentNullException.ThrowIfNull(trainingValueCounts);
+        Schema = schema;
+        HeldOutCount = heldOutCount;
+        TrainingCount = trainingCount;
+        Labels = labels;
+        Categorical = categorical;
+        TrainingValueCounts = trainingValueCounts;
+        int index = 0;
+        CategoricalInput = schema.Features.Select(f => f.Kind == FeatureKind.Categorical ? index++ : -1).ToImmutableArray();
+    }
+
+    /// <summary>The feature schema.</summary>
+    public FeatureSchema Schema { get; }
+
+    /// <summary>Rows in the held-out half.</summary>
+    public int HeldOutCount { get; }
+
+    /// <summary>Rows in the training half.</summary>
+    public int TrainingCount { get; }
+
+    /// <summary>Labels of every probe row, or null.</summary>
+    public float[]? Labels { get; }
+
+    /// <summary>Row-major categorical ids of every probe row.</summary>
+    public long[] Categorical { get; }
+
+    /// <summary>Training rows per value, per categorical feature name.</summary>
+    public IReadOnlyDictionary<string, IReadOnlyDictionary<long, int>> TrainingValueCounts { get; }
+
+    /// <summary>Per feature, its index among the raw categorical inputs, or −1 for dense features.</summary>
+    public ImmutableArray<int> CategoricalInput { get; }
+
+    /// <summary>Whether every label is 0 or 1 (label alignment needs a binary label).</summary>
+    public bool HasBinaryLabels => Labels is not null && Labels.All(l => l is 0f or 1f);
+
+    /// <summary>The categorical id of probe row <paramref name="row"/> for feature <paramref name="feature"/>.</summary>
+    public long IdOf(int row, int feature) => Categorical[row * Schema.CategoricalCount + CategoricalInput[feature]];
+
+    /// <summary>
+    /// Whether a categorical feature looks like an identifier: at least <paramref name="rareFraction"/> of its training rows carry
+    /// a value that appears in 1–3 training rows.
+    /// </summary>
+    public bool IsIdentifierLike(int feature, double rareFraction)
+    {
+        var definition = Schema.Features[feature];
+        if (definition.Kind != FeatureKind.Categorical || !TrainingValueCounts.TryGetValue(definition.Name, out var counts) || counts.Count == 0)
+            return false;
+        long total = counts.Values.Sum(c => (long)c);
+        long rare = counts.Values.Where(c => c is >= 1 and <= 3).Sum(c => (long)c);
+        return total > 0 && (double)rare / total >= rareFraction;
+    }
+
+    /// <summary>Builds the context from a stored run.</summary>
+    public static RunContext FromRun(RunDocument run)
+    {
+        ArgumentNullException.ThrowIfNull(run);
+        var schema = FeatureSchema.FromDefinitions(run.Features.Select(f =>
+            new FeatureDefinition(f.Name, Enum.Parse<FeatureKind>(f.Kind), f.FirstColumn, f.ColumnCount)));
+        var counts = run.TrainingValueCounts.ToDictionary(
+            kv => kv.Key,
+            kv => (IReadOnlyDictionary<long, int>)kv.Value.ToDictionary(v => long.Parse(v.Key, CultureInfo.InvariantCulture), v => v.Value));
+        return new RunContext(
+            schema,
+            run.HeldOutRows,
+            run.TrainingRows,
+            run.ProbeLabels is null ? null : FloatBytes.ToFloats(run.ProbeLabels),
+            FloatBytes.ToLongs(run.ProbeCategorical),
+            counts);
+    }
+}

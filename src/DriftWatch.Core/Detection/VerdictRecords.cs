@@ -1,0 +1,46 @@
+using System.Collections.Immutable;
+using DriftWatch.Storage;
+
+namespace DriftWatch.Detection;
+
+/// <summary>Converts verdicts and findings to and from their stored documents.</summary>
+public static class VerdictRecords
+{
+    /// <summary>The stored form of a verdict.</summary>
+    public static VerdictDocument ToDocument(Verdict verdict, int runId)
+    {
+        ArgumentNullException.ThrowIfNull(verdict);
+        return new VerdictDocument
+        {
+            RunId = runId,
+            Epoch = verdict.Epoch,
+            Kind = verdict.Kind.ToString(),
+            Reasons = [.. verdict.Reasons],
+            Findings = verdict.Findings.Select(f => new FindingDocument
+            {
+                Kind = f.Kind.ToString(),
+                Feature = f.Feature,
+                Severity = f.Severity.ToString(),
+                Size = f.Size,
+                NoiseFloor = f.NoiseFloor,
+                Epochs = [.. f.Epochs],
+                Evidence = f.Evidence,
+            }).ToList(),
+        };
+    }
+
+    /// <summary>A verdict read back from the store.</summary>
+    public static Verdict FromDocument(VerdictDocument document)
+    {
+        ArgumentNullException.ThrowIfNull(document);
+        var findings = document.Findings.Select(f => new Finding(
+            Enum.Parse<FindingKind>(f.Kind),
+            Enum.Parse<VerdictKind>(f.Severity),
+            f.Feature,
+            f.Size,
+            f.NoiseFloor,
+            [.. f.Epochs],
+            f.Evidence)).ToImmutableArray();
+        return new Verdict(document.Epoch, Enum.Parse<VerdictKind>(document.Kind), [.. document.Reasons], findings);
+    }
+}
