@@ -22,6 +22,7 @@ namespace DriftWatch.Detection;
 public sealed class DivergenceDetector
 {
     private const int TopK = 5;
+    private const double OneSided95 = 1.645; // the normal quantile of a one-sided 95% lower bound
     private readonly RunContext _context;
     private readonly GatePolicy _policy;
     private readonly int[] _heldOutRows;
@@ -322,7 +323,7 @@ public sealed class DivergenceDetector
         if (purity is { } pure && pure.LowerBound >= _policy.PurityLowerBound)
         {
             findings.Add(new Finding(FindingKind.ProbableLeak, _policy.SeverityOf(FindingKind.ProbableLeak), name, pure.LowerBound, _policy.PurityLowerBound, Epochs(since, epoch),
-                Format($"'{name}' decides on both halves ({s.ShareHeldOut[top]:P1} held-out share, next {s.ShareHeldOut[runnerUp]:P1}), and on held-out rows its value {pure.Value} pushes towards the true label in {pure.Agree} of {pure.Rows} rows (Wilson lower bound {pure.LowerBound:0.00}): a value that nearly fixes the label suggests a leak present in validation data too, which the loss cannot show")));
+                Format($"'{name}' decides on both halves ({s.ShareHeldOut[top]:P1} held-out share, next {s.ShareHeldOut[runnerUp]:P1}), and on held-out rows its value {pure.Value} pushes towards the true label in {pure.Agree} of {pure.Rows} rows (one-sided 95% Wilson lower bound {pure.LowerBound:0.00}): a value that nearly fixes the label suggests a leak present in validation data too, which the loss cannot show")));
             return;
         }
         findings.Add(new Finding(FindingKind.DominantFeature, VerdictKind.Caution, name, lead, width, Epochs(since, epoch),
@@ -348,7 +349,7 @@ public sealed class DivergenceDetector
         }
         return byValue
             .Where(kv => kv.Value.Rows >= 5)
-            .Select(kv => new PurityResult(kv.Key, kv.Value.Agree, kv.Value.Rows, Statistics.WilsonLowerBound(kv.Value.Agree, kv.Value.Rows)))
+            .Select(kv => new PurityResult(kv.Key, kv.Value.Agree, kv.Value.Rows, Statistics.WilsonLowerBound(kv.Value.Agree, kv.Value.Rows, OneSided95)))
             .OrderByDescending(p => p.LowerBound)
             .FirstOrDefault();
     }

@@ -68,6 +68,11 @@ public sealed class TrainingMonitorTests
         Assert.All(maps, m => Assert.Equal(24 * 4, FloatBytes.ToFloats(m.Scores).Length));
         Assert.All(maps, m => Assert.Equal(1.0, m.HeldOut.Share.Sum(), 6));
         Assert.Equal(Probe().Hash, run.ProbeHash);
+        var statistics = store.StatisticsOf(run.Id);
+        Assert.Equal(4, statistics.Count);
+        Assert.All(statistics.Zip(maps), pair => Assert.Equal(pair.Second.HeldOut.Share, pair.First.Statistics!.ShareHeldOut));
+        Assert.All(statistics, s => Assert.True(s.Statistics!.ShareGapWidth.All(w => w > 0)));
+        Assert.Equal(4, store.Verdicts(run.Id).Count);
     }
 
     [Fact]

@@ -1,0 +1,132 @@
+using DriftWatch.Detection;
+using Xunit;
+
+namespace DriftWatch.Tests.Detection;
+
+// Synthetic histories built in the test (no training): each finding kind fires where planted and stays quiet elsewhere.
+public sealed class DivergenceDetectorTests
+{
+    private static IEnumerable<Finding> All(List<Assessment> run) => run.SelectMany(a => a.Verdict.Findings);
+
+    [Theory]
+    [InlineData(1)]
+    [InlineData(2)]
+    [InlineData(3)]
+    public void AStableHistoryRaisesNothing(int seed)
+    {
+        var run = new HistoryBuilder().WithSeed(seed).Run(12);
+
+        Assert.Empty(All(run));
+        Assert.All(run, a => Assert.Equal(VerdictKind.Continue, a.Verdict.Kind));
+    }
+
+    [Fact]
+    public void ALeakFiresOnItsSecondFlaggedEpochAndNamesTheFeature()
+    {
+        var run = new HistoryBuilder().WithLeak(feature: 1, fromEpoch: 4).Run(8);
+
+        Assert.All(run.Take(5), a => Assert.Equal(VerdictKind.Continue, a.Verdict.Kind));
+        var verdict = run[5].Verdict;
+        Assert.Equal(VerdictKind.Halt, verdict.Kind);
+        var leak = Assert.Single(verdict.Findings);
+        Assert.Equal(FindingKind.Leak, leak.Kind);
+        Assert.Equal("humidity", leak.Feature);
+        Assert.Equal(new[] { 4, 5 }, leak.Epochs.ToArray());
+        Assert.True(leak.Size > leak.NoiseFloor);
+    }
+
+    [Fact]
+    public void AChangeInsideTheNoiseFloorNeverFires()
+    {
+        var run = new HistoryBuilder().WithTrainingNudge(1.03).Run(12);
+        var noisy = run.Select(a => a.Statistics).ToList();
+
+        Assert.Empty(All(run));
+        Assert.All(noisy, s => Assert.True(Math.Abs(s.ShareGap[0]) < s.ShareGapWidth[0] * 1.5));
+    }
+
+    [Fact]
+    public void AMemorisedIdentifierIsNamedWhileItsShareGapStaysBlind()
+    {
+        var run = new HistoryBuilder().WithMemorisedCrate(fromEpoch: 3).Run(7);
+
+        var finding = Assert.Single(run[4].Verdict.Findings);
+        Assert.Equal(FindingKind.MemorisedIdentifier, finding.Kind);
+        Assert.Equal("crate id", finding.Feature);
+        Assert.DoesNotContain(All(run), f => f.Kind == FindingKind.Leak);
+        Assert.True(run[4].Statistics.AlignmentTraining[HistoryBuilder.Crate] > 0.9);
+        Assert.True(Math.Abs(run[4].Statistics.AlignmentHeldOut[HistoryBuilder.Crate]) < 0.2);
+    }
+
+    [Fact]
+    public void ADominantFeatureIsOnlyACaution()
+    {
+        var run = new HistoryBuilder().WithDominant(HistoryBuilder.Tray, fromEpoch: 2, pureValue: false).Run(6);
+
+        var finding = Assert.Single(run[3].Verdict.Findings);
+        Assert.Equal(FindingKind.DominantFeature, finding.Kind);
+        Assert.Equal(VerdictKind.Caution, run[3].Verdict.Kind);
+    }
+
+    [Fact]
+    public void ADominantCategoricalWithAPureValueIsAProbableLeak()
+    {
+        var run = new HistoryBuilder().WithDominant(HistoryBuilder.Tray, fromEpoch: 2, pureValue: true).Run(6);
+
+        var finding = Assert.Single(run[3].Verdict.Findings);
+        Assert.Equal(FindingKind.ProbableLeak, finding.Kind);
+        Assert.Equal("tray", finding.Feature);
+        Assert.Equal(VerdictKind.Halt, run[3].Verdict.Kind);
+    }
+
+    [Fact]
+    public void RisingValidationLossIsOverfittingAtTheGl5Epoch()
+    {
+        // Prechelt 1998: GL5 stops at the first epoch with GL > 5.
+        double[] validation = [0.9, 0.7, 0.6, 0.61, 0.625, 0.64, 0.66];
+        var run = new HistoryBuilder().Run(7, validation: e => validation[e]);
+
+        Assert.All(run.Take(5), a => Assert.Equal(VerdictKind.Continue, a.Verdict.Kind));
+        var finding = Assert.Single(run[5].Verdict.Findings);
+        Assert.Equal(FindingKind.Overfitting, finding.Kind);
+        Assert.Equal(100 * (0.64 / 0.6 - 1), finding.Size, 9);
+        Assert.Contains("diffuse", finding.Evidence);
+    }
+
+    [Fact]
+    public void APolicyThatDoesNotHaltOnLeaksMakesThemCautions()
+    {
+        var policy = GatePolicy.Default with { HaltOn = [FindingKind.Overfitting] };
+        var run = new HistoryBuilder().WithLeak(feature: 1, fromEpoch: 2).Run(5, policy);
+
+        Assert.Equal(VerdictKind.Caution, run[3].Verdict.Kind);
+        Assert.Equal(FindingKind.Leak, Assert.Single(run[3].Verdict.Findings).Kind);
+    }
+
+    [Fact]
+    public void NaNScoresMakeTheEpochUntrustedAndAreReported()
+    {
+        var builder = new HistoryBuilder();
+        var detector = new DivergenceDetector(builder.Context(), GatePolicy.Default);
+        var evidence = builder.Epoch(0);
+        evidence.Map!.Scores[5] = float.NaN;
+
+        var assessment = detector.Observe(evidence);
+
+        Assert.False(assessment.Statistics.Trusted);
+        Assert.Equal(FindingKind.NumericalTrouble, Assert.Single(assessment.Verdict.Findings).Kind);
+    }
+
+    [Fact]
+    public void DriftScoresAreBoundedAndZeroForAnUnchangedPicture()
+    {
+        var builder = new HistoryBuilder();
+        var detector = new DivergenceDetector(builder.Context(), GatePolicy.Default);
+        detector.Observe(builder.Epoch(0));
+        var same = detector.Observe(builder.Epoch(0) with { Epoch = 1 });
+
+        Assert.Equal(0, same.Statistics.Drift, 12);
+        Assert.Equal(0, same.Statistics.JensenShannonFromPrevious, 12);
+        Assert.Equal(1, same.Statistics.TopFiveJaccard);
+    }
+}
