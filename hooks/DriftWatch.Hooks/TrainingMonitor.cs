@@ -179,9 +179,10 @@ public sealed class TrainingMonitor : IDisposable
     {
         try
         {
-            using var weights = new MemoryStream();
-            model.Module.save(weights);
-            weights.Position = 0;
+            using var written = new MemoryStream();
+            model.Module.save(written);
+            // Module.save closes the stream it writes; a closed MemoryStream still hands out its bytes.
+            using var weights = new MemoryStream(written.ToArray(), writable: false);
             return _store.SaveSnapshot(_run.Id, epoch, weights);
         }
         catch (Exception e) when (!_options.Strict)
