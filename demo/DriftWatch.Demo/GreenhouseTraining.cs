@@ -98,14 +98,16 @@ internal static class GreenhouseTraining
     private static double TrainOneEpoch(GreenhouseNet model, optim.Optimizer optimizer, TrainingData data, Random shuffle)
     {
         model.train();
-        var order = Enumerable.Range(0, data.TrainingCount).ToArray();
+        var order = new long[data.TrainingCount];
+        for (int i = 0; i < order.Length; i++)
+            order[i] = i;
         shuffle.Shuffle(order);
         double sum = 0;
         for (int start = 0; start < order.Length; start += BatchSize)
         {
             using var scope = torch.NewDisposeScope();
             int count = Math.Min(BatchSize, order.Length - start);
-            var index = torch.tensor(order.AsSpan(start, count).ToArray().Select(i => (long)i).ToArray());
+            var index = torch.tensor(order[start..(start + count)]);
             var logits = model.call(data.TrainingDense.index_select(0, index), data.TrainingCategorical.index_select(0, index)).squeeze(1);
             var loss = nn.functional.binary_cross_entropy_with_logits(logits, data.TrainingLabels.index_select(0, index));
             optimizer.zero_grad();
