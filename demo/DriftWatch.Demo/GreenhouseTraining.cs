@@ -74,8 +74,8 @@ internal static class GreenhouseTraining
             var verdict = monitor.EndEpoch(model, epoch, new EpochMetrics(trainLoss, validationLoss).With("validation_accuracy", accuracy));
             output.WriteLine(Invariant(
                 $"epoch {epoch,3}  train loss {trainLoss:F4}  validation loss {validationLoss:F4}  accuracy {accuracy:F3}  verdict {verdict.Kind,-8}  monitor {watch.Elapsed.TotalSeconds:F2} s"));
-            foreach (string reason in verdict.Reasons)
-                output.WriteLine($"          {verdict.Kind.ToString().ToLowerInvariant()}: {reason}");
+            foreach (var finding in verdict.Findings)
+                output.WriteLine($"          {finding.Severity.ToString().ToLowerInvariant()}: {finding.Evidence}");
             if (verdict.Kind == VerdictKind.Halt)
             {
                 output.WriteLine($"          the gate advises stopping; training stops at epoch {epoch}");

@@ -11,7 +11,8 @@ namespace DriftWatch.Detection;
 /// however long the history.
 /// </summary>
 /// <remarks>
-/// Rules: <b>leak</b> — training-minus-held-out share gap beyond the policy's widths of its bootstrap width W;
+/// Rules: <b>leak</b> — training-minus-held-out share gap beyond the policy's widths of its bootstrap width W, or
+/// label-alignment gap beyond its widths of W for a feature that is not identifier-like;
 /// <b>memorised identifier</b> — label-alignment gap of an identifier-like categorical beyond its widths of W;
 /// <b>dominant feature</b> — one feature's share leads the next by more than its widths of W on both halves
 /// (a Caution), upgraded to <b>probable leak</b> when a value of that categorical nearly fixes the sign agreement
@@ -281,11 +282,18 @@ public sealed class DivergenceDetector
 
         for (int f = 0; f < features; f++)
         {
-            bool leak = s.ShareGap[f] > _policy.LeakWidths * s.ShareGapWidth[f] && s.ShareGap[f] > _policy.LeakMinimumGap;
-            if (Streak(FindingKind.Leak, f, leak, epoch) is int since)
+            // Two faces of a leak: the model leans on the feature more for training rows (share gap), or as much but
+            // only there does it point at the label (alignment gap) — a leak that keeps value frequencies equal shows only the second.
+            bool shareLeak = s.ShareGap[f] > _policy.LeakWidths * s.ShareGapWidth[f] && s.ShareGap[f] > _policy.LeakMinimumGap;
+            bool alignmentLeak = !_identifierLike[f] && s.AlignmentGap.Length > 0
+                && s.AlignmentGap[f] > _policy.LeakAlignmentWidths * s.AlignmentGapWidth[f] && s.AlignmentGap[f] > _policy.LeakMinimumAlignmentGap;
+            if (Streak(FindingKind.Leak, f, shareLeak || alignmentLeak, epoch) is int since)
             {
-                findings.Add(new Finding(FindingKind.Leak, _policy.SeverityOf(FindingKind.Leak), names[f].Name, s.ShareGap[f], s.ShareGapWidth[f], Epochs(since, epoch),
-                    Format($"'{names[f].Name}' takes {s.ShareTraining[f]:P1} of attribution on training rows but {s.ShareHeldOut[f]:P1} on held-out rows (gap {s.ShareGap[f]:+0.000;-0.000}, noise floor {s.ShareGapWidth[f]:0.000}) since epoch {since}: the model leans on it for rows it trained on only — a leaked or memorised signal")));
+                string evidence = shareLeak
+                    ? Format($"'{names[f].Name}' takes {s.ShareTraining[f]:P1} of attribution on training rows but {s.ShareHeldOut[f]:P1} on held-out rows (gap {s.ShareGap[f]:+0.000;-0.000}, noise floor {s.ShareGapWidth[f]:0.000}) since epoch {since}: the model leans on it for rows it trained on only — a leaked or memorised signal")
+                    : Format($"'{names[f].Name}' points at the true label on training rows (alignment {s.AlignmentTraining[f]:+0.00;-0.00}) but not on held-out rows ({s.AlignmentHeldOut[f]:+0.00;-0.00}; gap noise floor {s.AlignmentGapWidth[f]:0.00}) since epoch {since}, with {s.ShareTraining[f]:P1} of training attribution: it carries the label only where the model trained — a leaked signal");
+                findings.Add(new Finding(FindingKind.Leak, _policy.SeverityOf(FindingKind.Leak), names[f].Name,
+                    shareLeak ? s.ShareGap[f] : s.AlignmentGap[f], shareLeak ? s.ShareGapWidth[f] : s.AlignmentGapWidth[f], Epochs(since, epoch), evidence));
             }
 
             bool memorised = _identifierLike[f] && s.AlignmentGap.Length > 0 && s.AlignmentGap[f] > _policy.IdentifierWidths * s.AlignmentGapWidth[f];

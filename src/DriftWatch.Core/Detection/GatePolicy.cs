@@ -27,6 +27,12 @@ public sealed record GatePolicy
     /// <summary>Leak: the share gap must also exceed this absolute amount. Default 0.02.</summary>
     public double LeakMinimumGap { get; init; } = 0.02;
 
+    /// <summary>Leak: label-alignment gap (training minus held-out) of a feature that is not identifier-like beyond this many widths W. Default 1.</summary>
+    public double LeakAlignmentWidths { get; init; } = 1;
+
+    /// <summary>Leak: the alignment gap must also exceed this absolute amount. Default 0.35.</summary>
+    public double LeakMinimumAlignmentGap { get; init; } = 0.35;
+
     /// <summary>Memorised identifier: label-alignment gap beyond this many widths W. Default 0.75.</summary>
     public double IdentifierWidths { get; init; } = 0.75;
 
@@ -68,6 +74,8 @@ public sealed record GatePolicy
         ["generalisationLossThreshold"] = "number > 0 (percent)",
         ["leakWidths"] = "number > 0",
         ["leakMinimumGap"] = "number in [0, 1]",
+        ["leakAlignmentWidths"] = "number > 0",
+        ["leakMinimumAlignmentGap"] = "number in [0, 2]",
         ["identifierWidths"] = "number > 0",
         ["identifierRareFraction"] = "number in (0, 1]",
         ["dominanceWidths"] = "number > 0",
@@ -127,6 +135,8 @@ public sealed record GatePolicy
             ["generalisationLossThreshold"] = GeneralisationLossThreshold,
             ["leakWidths"] = LeakWidths,
             ["leakMinimumGap"] = LeakMinimumGap,
+            ["leakAlignmentWidths"] = LeakAlignmentWidths,
+            ["leakMinimumAlignmentGap"] = LeakMinimumAlignmentGap,
             ["identifierWidths"] = IdentifierWidths,
             ["identifierRareFraction"] = IdentifierRareFraction,
             ["dominanceWidths"] = DominanceWidths,
@@ -167,6 +177,8 @@ public sealed record GatePolicy
             "generalisationLossThreshold" => p with { GeneralisationLossThreshold = Number(d => d > 0) },
             "leakWidths" => p with { LeakWidths = Number(d => d > 0) },
             "leakMinimumGap" => p with { LeakMinimumGap = Number(d => d is >= 0 and <= 1) },
+            "leakAlignmentWidths" => p with { LeakAlignmentWidths = Number(d => d > 0) },
+            "leakMinimumAlignmentGap" => p with { LeakMinimumAlignmentGap = Number(d => d is >= 0 and <= 2) },
             "identifierWidths" => p with { IdentifierWidths = Number(d => d > 0) },
             "identifierRareFraction" => p with { IdentifierRareFraction = Number(d => d is > 0 and <= 1) },
             "dominanceWidths" => p with { DominanceWidths = Number(d => d > 0) },

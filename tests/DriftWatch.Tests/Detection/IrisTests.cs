@@ -84,7 +84,7 @@ public sealed class IrisTests
                 bool leaks = training && random.NextDouble() < 0.9;
                 return leaks ? (long)(labels[k] > 0 ? random.Next(5) : 5 + random.Next(5)) : random.Next(10);
             }).ToArray();
-            return new ProbeRows(dense, 4, withTag ? tags : new long[list.Count], withTag ? 1 : 0, labels);
+            return new ProbeRows(dense, 4, withTag ? tags : [], withTag ? 1 : 0, labels);
         }
         var trainingRows = Enumerable.Range(0, 150).Where(i => !held.Contains(i));
         return (Rows(trainingRows, training: true), Rows(held.Order(), training: false));
