@@ -43,15 +43,19 @@ internal sealed record DemoOptions
         model on it with the DriftWatch monitor attached, and stores every epoch's attribution maps.
 
         Usage: dotnet run --project demo/DriftWatch.Demo -- [options]
+               dotnet run --project demo/DriftWatch.Demo -c Release -- evaluate --help   (the detector evaluation)
 
         Options:
           --store PATH       store file to write (default: {DefaultStore} under the current directory)
-          --scenario NAME    default | clean | validation-leak | memorised-id | noisy-labels (default: default)
+          --scenario NAME    default | clean | validation-leak | memorised-id | noisy-labels | leak | strong-feature
+                             (default: default)
                                default          inspection tray leaked into training rows, near-unique crate id, noise
                                clean            no planted fault: random tray, reused crates; nothing should be flagged
                                validation-leak  the tray leak is in validation rows too; the loss cannot reveal it
                                memorised-id     only the near-unique crate id
                                noisy-labels     30% of training labels flipped, no planted feature
+                               leak             only the tray leak in training rows
+                               strong-feature   no fault; cultivar's effect four times as strong (a genuine feature that decides)
           --epochs N         epochs to train, 1–1000 (default: {DefaultEpochs}; --small: {SmallEpochs})
           --seed N           seed of the data, the weights and the probe set, 0–2147483647 (default: {DefaultSeed})
           --rows N           training rows, 100–100000 (default: {DefaultRows}); validation rows stay 1000

@@ -4,6 +4,17 @@ using DriftWatch.Demo;
 // The greenhouse demo: see DemoOptions.Usage (--help) for the options and exit codes.
 try
 {
+    if (args.Length > 0 && args[0] == "evaluate")
+    {
+        var evaluation = DriftWatch.Demo.Evaluation.EvaluationOptions.Parse(args[1..]);
+        if (evaluation.Help)
+        {
+            Console.WriteLine(DriftWatch.Demo.Evaluation.EvaluationOptions.Usage);
+            return 0;
+        }
+        DriftWatch.Demo.Evaluation.DetectorEvaluation.Run(evaluation, Console.Out);
+        return 0;
+    }
     var options = DemoOptions.Parse(args);
     if (options.Help)
     {

@@ -13,7 +13,7 @@ internal static class GreenhouseGenerator
 
     public static GreenhouseScenario Generate(ScenarioSettings settings)
     {
-        var rule = GrowingRule.Create(settings.Seed);
+        var rule = GrowingRule.Create(settings.Seed, settings.CultivarScale);
         var training = Draw(settings, rule, training: true);
         var validation = Draw(settings, rule, training: false);
 

@@ -17,6 +17,12 @@ public enum GreenhouseVariant
 
     /// <summary>30% of training labels flipped; no planted feature.</summary>
     NoisyLabels,
+
+    /// <summary>Only the inspection-tray leak in training rows (crates reused).</summary>
+    LeakOnly,
+
+    /// <summary>No fault, but cultivar's effect is four times as strong: a genuine feature that decides.</summary>
+    StrongFeature,
 }
 
 /// <summary>The command-line names of <see cref="GreenhouseVariant"/> values.</summary>
@@ -30,6 +36,8 @@ public static class GreenhouseVariants
         (GreenhouseVariant.ValidationLeak, "validation-leak"),
         (GreenhouseVariant.MemorisedId, "memorised-id"),
         (GreenhouseVariant.NoisyLabels, "noisy-labels"),
+        (GreenhouseVariant.LeakOnly, "leak"),
+        (GreenhouseVariant.StrongFeature, "strong-feature"),
     ];
 
     /// <summary>The command-line name of a variant, e.g. <c>validation-leak</c>.</summary>

@@ -47,9 +47,13 @@ internal sealed class GrowingRule
     public double Intercept { get; private set; }
 
     /// <summary>Draws the per-level effects, then fixes the intercept from a sample of its own stream.</summary>
-    public static GrowingRule Create(int seed)
+    /// <param name="seed">The scenario's seed.</param>
+    /// <param name="cultivarScale">Multiplies every cultivar's effect; above 1 makes cultivar a strong genuine feature.</param>
+    public static GrowingRule Create(int seed, double cultivarScale = 1)
     {
         var rule = new GrowingRule(Sampling.Stream(seed, 0));
+        for (int c = 0; c < rule.CultivarEffect.Length; c++)
+            rule.CultivarEffect[c] *= cultivarScale;
         var sample = Sampling.Stream(seed, 1);
         var scores = new double[4000];
         for (int i = 0; i < scores.Length; i++)

@@ -22,6 +22,8 @@ public sealed class ScenarioBuilder
         GreenhouseVariant.ValidationLeak => new ScenarioBuilder().WithLeakedTrayInValidation(),
         GreenhouseVariant.MemorisedId => new ScenarioBuilder().WithMemorisableCrateId(),
         GreenhouseVariant.NoisyLabels => new ScenarioBuilder().WithFlippedLabels(),
+        GreenhouseVariant.LeakOnly => new ScenarioBuilder().WithLeakedTray(),
+        GreenhouseVariant.StrongFeature => new ScenarioBuilder().WithStrongCultivar(),
         _ => throw new ArgumentOutOfRangeException(nameof(variant), variant, "not a greenhouse variant"),
     };
 
@@ -52,6 +54,9 @@ public sealed class ScenarioBuilder
 
     /// <summary>Flips this fraction of training labels (validation labels stay as graded).</summary>
     public ScenarioBuilder WithFlippedLabels(double fraction = 0.3) => Set(_settings with { FlippedLabelFraction = fraction });
+
+    /// <summary>Makes cultivar a strong genuine feature by multiplying every cultivar's effect; nothing should be flagged as a leak.</summary>
+    public ScenarioBuilder WithStrongCultivar(double scale = 4) => Set(_settings with { CultivarScale = scale });
 
     /// <summary>Validates the settings and generates the scenario.</summary>
     /// <exception cref="ArgumentOutOfRangeException">A setting is out of range.</exception>

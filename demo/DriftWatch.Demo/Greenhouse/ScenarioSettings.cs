@@ -49,8 +49,14 @@ public sealed record ScenarioSettings
 
     /// <summary>Checks every setting.</summary>
     /// <exception cref="ArgumentOutOfRangeException">A setting is out of range.</exception>
+    /// <summary>Multiplies every cultivar's effect on the grade; above 1 makes cultivar a strong genuine feature. Default 1.</summary>
+    public double CultivarScale { get; init; } = 1;
+
+    /// <summary>Checks every setting.</summary>
     public void Validate()
     {
+        if (!(CultivarScale > 0 && CultivarScale <= 20))
+            throw new ArgumentOutOfRangeException(nameof(CultivarScale), CultivarScale, "must be above 0 and at most 20");
         ArgumentOutOfRangeException.ThrowIfLessThan(TrainingRows, 20, nameof(TrainingRows));
         ArgumentOutOfRangeException.ThrowIfLessThan(ValidationRows, 20, nameof(ValidationRows));
         if (!(TrayAgreement >= 0.5 && TrayAgreement <= 1))

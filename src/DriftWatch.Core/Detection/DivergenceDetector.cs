@@ -15,8 +15,8 @@ namespace DriftWatch.Detection;
 /// label-alignment gap beyond its widths of W for a feature that is not identifier-like;
 /// <b>memorised identifier</b> — label-alignment gap of an identifier-like categorical beyond its widths of W;
 /// <b>dominant feature</b> — one feature's share leads the next by more than its widths of W on both halves
-/// (a Caution), upgraded to <b>probable leak</b> when a value of that categorical nearly fixes the sign agreement
-/// with held-out labels; <b>overfitting</b> — Prechelt's GL above the policy's threshold, with the features whose
+/// (a Caution), upgraded to <b>probable leak</b> when that categorical's attribution points at the true label on
+/// nearly every held-out row; <b>overfitting</b> — Prechelt's GL above the policy's threshold, with the features whose
 /// gap widened since the best-validation epoch as the diagnosis. Attribution rules become findings on their
 /// <see cref="GatePolicy.Patience"/>-th consecutive flagged epoch. Not thread-safe.
 /// </remarks>
@@ -286,7 +286,8 @@ public sealed class DivergenceDetector
             // only there does it point at the label (alignment gap) — a leak that keeps value frequencies equal shows only the second.
             bool shareLeak = s.ShareGap[f] > _policy.LeakWidths * s.ShareGapWidth[f] && s.ShareGap[f] > _policy.LeakMinimumGap;
             bool alignmentLeak = !_identifierLike[f] && s.AlignmentGap.Length > 0
-                && s.AlignmentGap[f] > _policy.LeakAlignmentWidths * s.AlignmentGapWidth[f] && s.AlignmentGap[f] > _policy.LeakMinimumAlignmentGap;
+                && s.AlignmentGap[f] > _policy.LeakAlignmentWidths * s.AlignmentGapWidth[f] && s.AlignmentGap[f] > _policy.LeakMinimumAlignmentGap
+                && s.ShareTraining[f] >= _policy.LeakMinimumShare;
             if (Streak(FindingKind.Leak, f, shareLeak || alignmentLeak, epoch) is int since)
             {
                 string evidence = shareLeak
@@ -331,35 +332,32 @@ public sealed class DivergenceDetector
         if (purity is { } pure && pure.LowerBound >= _policy.PurityLowerBound)
         {
             findings.Add(new Finding(FindingKind.ProbableLeak, _policy.SeverityOf(FindingKind.ProbableLeak), name, pure.LowerBound, _policy.PurityLowerBound, Epochs(since, epoch),
-                Format($"'{name}' decides on both halves ({s.ShareHeldOut[top]:P1} held-out share, next {s.ShareHeldOut[runnerUp]:P1}), and on held-out rows its value {pure.Value} pushes towards the true label in {pure.Agree} of {pure.Rows} rows (one-sided 95% Wilson lower bound {pure.LowerBound:0.00}): a value that nearly fixes the label suggests a leak present in validation data too, which the loss cannot show")));
+                Format($"'{name}' decides on both halves ({s.ShareHeldOut[top]:P1} held-out share, next {s.ShareHeldOut[runnerUp]:P1}), and on held-out rows its attribution points at the true label in {pure.Agree} of {pure.Rows} rows across {pure.Values} values (one-sided 95% Wilson lower bound {pure.LowerBound:0.00}): a categorical whose values nearly fix the label suggests a leak present in validation data too, which the loss cannot show")));
             return;
         }
         findings.Add(new Finding(FindingKind.DominantFeature, VerdictKind.Caution, name, lead, width, Epochs(since, epoch),
             Format($"'{name}' decides on both halves: {s.ShareHeldOut[top]:P1} of held-out attribution against {s.ShareHeldOut[runnerUp]:P1} for the next feature, since epoch {since}; may be genuine — check how it is produced")));
     }
 
-    private sealed record PurityResult(long Value, int Agree, int Rows, double LowerBound);
+    private sealed record PurityResult(int Agree, int Rows, int Values, double LowerBound);
 
-    // For a categorical feature: per value seen on held-out rows (at least 5), how often the sign of the feature's
-    // attribution agrees with the row's ±1 label; the value with the highest Wilson lower bound is reported.
+    // For a categorical feature: over held-out rows, how often the sign of the feature's attribution agrees with the
+    // row's ±1 label, with its one-sided 95% Wilson lower bound. A leak makes every value point at the label; a genuine
+    // feature, however strong, has values whose effect is weak or is overruled by other features.
     private PurityResult? Purity(int feature, AttributionMap map)
     {
         if (_context.CategoricalInput[feature] < 0 || !_context.HasBinaryLabels)
             return null;
-        var byValue = new Dictionary<long, (int Agree, int Rows)>();
+        int agree = 0;
+        var values = new HashSet<long>();
         foreach (int row in _heldOutRows)
         {
-            long id = _context.IdOf(row, feature);
-            double score = map[row, feature];
-            bool agree = score * (2 * _context.Labels![row] - 1) > 0;
-            var (a, n) = byValue.GetValueOrDefault(id);
-            byValue[id] = (a + (agree ? 1 : 0), n + 1);
+            values.Add(_context.IdOf(row, feature));
+            if (map[row, feature] * (2 * _context.Labels![row] - 1) > 0)
+                agree++;
         }
-        return byValue
-            .Where(kv => kv.Value.Rows >= 5)
-            .Select(kv => new PurityResult(kv.Key, kv.Value.Agree, kv.Value.Rows, Statistics.WilsonLowerBound(kv.Value.Agree, kv.Value.Rows, OneSided95)))
-            .OrderByDescending(p => p.LowerBound)
-            .FirstOrDefault();
+        int rows = _heldOutRows.Length;
+        return rows == 0 ? null : new PurityResult(agree, rows, values.Count, Statistics.WilsonLowerBound(agree, rows, OneSided95));
     }
 
     private Finding Overfitting(int epoch, double gl, EpochStatistics? s)

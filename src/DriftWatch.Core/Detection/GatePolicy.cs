@@ -21,17 +21,20 @@ public sealed record GatePolicy
     /// <summary>Prechelt's GL threshold α, in percent: overfitting when GL(t) &gt; α. Default 5.</summary>
     public double GeneralisationLossThreshold { get; init; } = 5;
 
-    /// <summary>Leak: training-minus-held-out share gap beyond this many widths W. Default 1.</summary>
-    public double LeakWidths { get; init; } = 1;
+    /// <summary>Leak: training-minus-held-out share gap beyond this many widths W. Default 1.5.</summary>
+    public double LeakWidths { get; init; } = 1.5;
 
-    /// <summary>Leak: the share gap must also exceed this absolute amount. Default 0.02.</summary>
-    public double LeakMinimumGap { get; init; } = 0.02;
+    /// <summary>Leak: the share gap must also exceed this absolute amount. Default 0.04.</summary>
+    public double LeakMinimumGap { get; init; } = 0.04;
 
-    /// <summary>Leak: label-alignment gap (training minus held-out) of a feature that is not identifier-like beyond this many widths W. Default 1.</summary>
-    public double LeakAlignmentWidths { get; init; } = 1;
+    /// <summary>Leak: label-alignment gap (training minus held-out) of a feature that is not identifier-like beyond this many widths W. Default 1.4.</summary>
+    public double LeakAlignmentWidths { get; init; } = 1.4;
 
-    /// <summary>Leak: the alignment gap must also exceed this absolute amount. Default 0.35.</summary>
-    public double LeakMinimumAlignmentGap { get; init; } = 0.35;
+    /// <summary>Leak: the alignment gap must also exceed this absolute amount. Default 0.6.</summary>
+    public double LeakMinimumAlignmentGap { get; init; } = 0.6;
+
+    /// <summary>Leak by alignment: the feature's share of training-half attribution must be at least this (the model leans on it). Default 0.1.</summary>
+    public double LeakMinimumShare { get; init; } = 0.1;
 
     /// <summary>Memorised identifier: label-alignment gap beyond this many widths W. Default 0.75.</summary>
     public double IdentifierWidths { get; init; } = 0.75;
@@ -42,8 +45,11 @@ public sealed record GatePolicy
     /// <summary>Dominant feature: top-1 minus top-2 share beyond this many widths W on both halves. Default 2.5.</summary>
     public double DominanceWidths { get; init; } = 2.5;
 
-    /// <summary>Probable leak: a value of the dominant categorical whose held-out sign agreement has a Wilson lower bound at least this. Default 0.85.</summary>
-    public double PurityLowerBound { get; init; } = 0.85;
+    /// <summary>
+    /// Probable leak: the one-sided 95% Wilson lower bound of how often the dominant categorical's attribution points at the
+    /// true label on held-out rows must be at least this. Default 0.76.
+    /// </summary>
+    public double PurityLowerBound { get; init; } = 0.76;
 
     /// <summary>Mean convergence delta, as a fraction of mean |F(x) − F(x′)|, beyond which an epoch's path maps are not trusted. Default 0.05.</summary>
     public double DeltaTolerance { get; init; } = 0.05;
@@ -76,6 +82,7 @@ public sealed record GatePolicy
         ["leakMinimumGap"] = "number in [0, 1]",
         ["leakAlignmentWidths"] = "number > 0",
         ["leakMinimumAlignmentGap"] = "number in [0, 2]",
+        ["leakMinimumShare"] = "number in [0, 1]",
         ["identifierWidths"] = "number > 0",
         ["identifierRareFraction"] = "number in (0, 1]",
         ["dominanceWidths"] = "number > 0",
@@ -137,6 +144,7 @@ public sealed record GatePolicy
             ["leakMinimumGap"] = LeakMinimumGap,
             ["leakAlignmentWidths"] = LeakAlignmentWidths,
             ["leakMinimumAlignmentGap"] = LeakMinimumAlignmentGap,
+            ["leakMinimumShare"] = LeakMinimumShare,
             ["identifierWidths"] = IdentifierWidths,
             ["identifierRareFraction"] = IdentifierRareFraction,
             ["dominanceWidths"] = DominanceWidths,
@@ -179,6 +187,7 @@ public sealed record GatePolicy
             "leakMinimumGap" => p with { LeakMinimumGap = Number(d => d is >= 0 and <= 1) },
             "leakAlignmentWidths" => p with { LeakAlignmentWidths = Number(d => d > 0) },
             "leakMinimumAlignmentGap" => p with { LeakMinimumAlignmentGap = Number(d => d is >= 0 and <= 2) },
+            "leakMinimumShare" => p with { LeakMinimumShare = Number(d => d is >= 0 and <= 1) },
             "identifierWidths" => p with { IdentifierWidths = Number(d => d > 0) },
             "identifierRareFraction" => p with { IdentifierRareFraction = Number(d => d is > 0 and <= 1) },
             "dominanceWidths" => p with { DominanceWidths = Number(d => d > 0) },

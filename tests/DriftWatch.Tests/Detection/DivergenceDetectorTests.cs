@@ -59,7 +59,7 @@ public sealed class DivergenceDetectorTests
     }
 
     [Fact]
-    public void ADominantFeatureIsOnlyACaution()
+    public void ADominantFeatureThatAgreesWithTheLabelOnlyAsOftenAsGenuineOnesIsACaution()
     {
         var run = new HistoryBuilder().WithDominant(HistoryBuilder.Tray, fromEpoch: 2, pureValue: false).Run(6);
 
@@ -69,7 +69,7 @@ public sealed class DivergenceDetectorTests
     }
 
     [Fact]
-    public void ADominantCategoricalWithAPureValueIsAProbableLeak()
+    public void ADominantCategoricalThatPointsAtTheLabelEverywhereIsAProbableLeak()
     {
         var run = new HistoryBuilder().WithDominant(HistoryBuilder.Tray, fromEpoch: 2, pureValue: true).Run(6);
 

@@ -101,8 +101,8 @@ internal sealed class HistoryBuilder
                 if (f == _dominantFeature && epoch >= _dominantFrom)
                 {
                     size *= 6;
-                    if (_pureValue && r % 4 == 0)
-                        sign = label; // one tray value always pushes towards the true label
+                    if (_pureValue)
+                        sign = random.NextDouble() < 0.95 ? label : -label; // every tray value points at the true label
                 }
                 scores[r * features + f] = (float)(sign * size);
             }
