@@ -18,7 +18,7 @@ public static class CliApp
         var parse = root.Parse(args);
         if (parse.Errors.Count > 0 && parse.Action is not HelpAction)
         {
-            error.WriteLine($"error: {OneLine(parse.Errors[0].Message)} (see '{CommandPath(parse)} --help')");
+            error.WriteLine($"error: {ParseProblem(root, parse)} (see '{CommandPath(parse)} --help')");
             return ExitCodes.BadInput;
         }
         try
@@ -59,6 +59,20 @@ public static class CliApp
             ChartCommand.Create(store),
         };
         return root;
+    }
+
+    // The parser's first error is not always the telling one: an unknown word is reported as a missing command.
+    private static string ParseProblem(RootCommand root, ParseResult parse)
+    {
+        if (parse.UnmatchedTokens.Count > 0)
+            return $"unknown command, option or extra argument '{OneLine(parse.UnmatchedTokens[0])}'";
+        var command = parse.CommandResult.Command;
+        if (command == root)
+            return "no command given; use one of: " + string.Join(", ", root.Subcommands.Select(c => c.Name));
+        var missing = command.Arguments.FirstOrDefault(a => !a.HasDefaultValue && parse.GetResult(a) is null or { Tokens.Count: 0 });
+        if (missing is not null)
+            return $"'{command.Name}' needs the <{missing.Name}> argument";
+        return OneLine(parse.Errors[0].Message).TrimEnd('.');
     }
 
     private static string OneLine(string message) => DisplayText.Clean(message.Trim());

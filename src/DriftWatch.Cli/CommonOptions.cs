@@ -1,4 +1,5 @@
 using System.CommandLine;
+using System.Globalization;
 using DriftWatch.Charts;
 using DriftWatch.Storage;
 
@@ -51,19 +52,28 @@ internal static class CommonOptions
     /// <summary>An integer option that must lie in <paramref name="minimum"/>..<paramref name="maximum"/>.</summary>
     public static Option<int> Bounded(string name, string description, int defaultValue, int minimum, int maximum, string helpName = "N")
     {
-        var option = new Option<int>(name)
+        string range = $"{name} must be a whole number between {minimum} and {maximum}";
+        return new Option<int>(name)
         {
             Description = description,
             HelpName = helpName,
             DefaultValueFactory = _ => defaultValue,
+            // Our own parser, so a word and a number out of range get the same kind of message.
+            CustomParser = result =>
+            {
+                if (result.Tokens.Count == 0)
+                    return defaultValue;
+                string text = result.Tokens[^1].Value;
+                if (!int.TryParse(text, NumberStyles.Integer, CultureInfo.InvariantCulture, out int value))
+                {
+                    result.AddError($"{range}; got '{text}'");
+                    return defaultValue;
+                }
+                if (value < minimum || value > maximum)
+                    result.AddError($"{range}; got {value}");
+                return value;
+            },
         };
-        option.Validators.Add(result =>
-        {
-            int value = result.GetValueOrDefault<int>();
-            if (value < minimum || value > maximum)
-                result.AddError($"{name} must be between {minimum} and {maximum}; got {value}");
-        });
-        return option;
     }
 
     /// <summary>The <c>run</c> argument: a run's name as stored.</summary>
