@@ -79,16 +79,18 @@ public sealed class TrendChart : IChart
 
         using var paint = Paint.NewDisposablePaint();
         float gap = 12 * scale.Factor;
-        var room = new PixelSize(size.Width / 2f, size.Height - 2 * gap);
-        var sharesKeyRect = Measure(sharesKey.Legend, room, paint);
-        var lossesKeyRect = Measure(lossesKey.Legend, room, paint);
+        // The legends stack in a column right of the panels; the feature legend gets the height the loss legend
+        // leaves and wraps into more columns if it needs more.
+        var lossesKeyRect = Measure(lossesKey.Legend, new PixelSize(size.Width / 2f, size.Height - 2 * gap), paint);
+        var sharesKeyRect = Measure(sharesKey.Legend, new PixelSize(size.Width / 2f, size.Height - 5 * gap - lossesKeyRect.Height), paint);
         float keyWidth = Math.Max(sharesKeyRect.Width, lossesKeyRect.Width) + 2 * gap;
         float panelWidth = size.Width - keyWidth;
         float left = 90 * scale.Factor;
         float right = 14 * scale.Factor;
 
-        // ScottPlot centres the title over the data area; lines are wrapped to fit its width.
-        var title = Wrap(Title(history, last, ranked.Length), scale.Title, panelWidth - left - right + 2 * right);
+        // ScottPlot centres the title over the data area, so a line may overhang it by the narrower margin on each side.
+        float dataWidth = panelWidth - left - right;
+        var title = Wrap(Title(history, last, ranked.Length), scale.Title, dataWidth + 2 * Math.Min(left, right));
         shares.Title(string.Join('\n', title), scale.Title);
         float titleHeight = title.Count * scale.Title * 1.3f + 22 * scale.Factor;
 
@@ -102,9 +104,12 @@ public sealed class TrendChart : IChart
         // Each panel renders on its own surface: a plot clears the whole canvas it is given.
         DrawPanel(surface.Canvas, shares, 0, (int)panelWidth, (int)split);
         DrawPanel(surface.Canvas, losses, split, (int)panelWidth, size.Height - (int)split);
-        // Each legend at the top of its panel; the loss legend moves down if a long feature legend reaches past the split.
-        float sharesKeyTop = titleHeight - gap;
-        float lossesKeyTop = Math.Max(split + 14 * scale.Factor - gap, sharesKeyTop + sharesKeyRect.Height + gap);
+        // The feature legend at the top, level with the title; the loss legend level with its panel, lower if the
+        // feature legend reaches past the split, but never off the picture.
+        float sharesKeyTop = gap;
+        float lossesKeyTop = Math.Min(
+            Math.Max(split + 14 * scale.Factor - gap, sharesKeyTop + sharesKeyRect.Height + 2 * gap),
+            size.Height - lossesKeyRect.Height - 2 * gap);
         if (sharesKey.Legend.ManualItems.Count > 0)
             sharesKey.Legend.Render(surface.Canvas, paint, new PixelRect(new Pixel(panelWidth, sharesKeyTop), keyWidth, sharesKeyRect.Height + 2 * gap), Alignment.UpperLeft);
         if (lossesKey.Legend.ManualItems.Count > 0)
