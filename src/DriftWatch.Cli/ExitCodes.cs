@@ -1,0 +1,26 @@
+namespace DriftWatch.Cli;
+
+/// <summary>The exit codes of every driftwatch command, in one place.</summary>
+public static class ExitCodes
+{
+    /// <summary>The command did what was asked.</summary>
+    public const int Fine = 0;
+
+    /// <summary>The gate's verdict is Halt (returned by verdict-checking commands only).</summary>
+    public const int Halt = 1;
+
+    /// <summary>Bad input: a missing or foreign store, an unknown run or method, an option out of range. Nothing was written to the store.</summary>
+    public const int BadInput = 2;
+
+    /// <summary>An internal error: a bug in DriftWatch; the message and stack trace are printed for a report.</summary>
+    public const int InternalError = 3;
+
+    /// <summary>The exit codes as help text lists them, for commands that never return <see cref="Halt"/>.</summary>
+    public const string ReadingCommandsHelp =
+        "Exit codes: 0 done; 2 bad input (missing or foreign store, unknown run or method, bad option); 3 internal error.";
+
+    /// <summary>The full list, for the root command's help.</summary>
+    public const string AllHelp =
+        "Exit codes: 0 done; 1 the verdict is Halt (verdict-checking commands only); "
+        + "2 bad input (missing or foreign store, unknown run or method, bad option), nothing written; 3 internal error.";
+}

@@ -1,0 +1,69 @@
+using System.CommandLine;
+using DriftWatch.Charts;
+using DriftWatch.Detection;
+using DriftWatch.Storage;
+
+namespace DriftWatch.Cli;
+
+/// <summary><c>driftwatch runs</c>: a table of the runs in the store.</summary>
+internal static class RunsCommand
+{
+    /// <summary>Builds the command.</summary>
+    public static Command Create(Option<string> store)
+    {
+        var command = new Command(
+            "runs",
+            "List the runs in the store: name, when created, epochs stored, the last epoch's losses, the last verdict and the most severe one.\n"
+            + ExitCodes.ReadingCommandsHelp);
+        command.SetAction(parse =>
+        {
+            var output = parse.InvocationConfiguration.Output;
+            using var runStore = CommonOptions.OpenStore(parse, store);
+            var runs = runStore.Runs();
+            if (runs.Count == 0)
+            {
+                output.WriteLine($"No runs in {DisplayText.Clean(runStore.Path)} yet.");
+                return ExitCodes.Fine;
+            }
+
+            var table = new TextTable("run", "created (UTC)", ">epochs", ">last epoch", ">train loss", ">validation loss", "status", "worst verdict");
+            foreach (var run in runs)
+            {
+                var epochs = runStore.Epochs(run.Id);
+                var verdicts = runStore.Verdicts(run.Id);
+                if (epochs.Count == 0)
+                {
+                    table.Add(run.Name, Formats.Utc(run.CreatedUtc), "0", "-", "-", "-", "no epochs", "-");
+                    continue;
+                }
+                var last = epochs[^1];
+                table.Add(
+                    run.Name,
+                    Formats.Utc(run.CreatedUtc),
+                    Formats.Integer(epochs.Count),
+                    Formats.Integer(last.Epoch),
+                    Formats.Loss(last.Metrics.TryGetValue("train_loss", out double train) ? train : null),
+                    Formats.Loss(last.Metrics.TryGetValue("validation_loss", out double validation) ? validation : null),
+                    verdicts.Count == 0 ? "no verdict" : verdicts[^1].Kind,
+                    Worst(verdicts));
+            }
+            output.WriteLine($"{runs.Count} run{(runs.Count == 1 ? "" : "s")} in {DisplayText.Clean(runStore.Path)}");
+            output.WriteLine();
+            table.Write(output);
+            return ExitCodes.Fine;
+        });
+        return command;
+    }
+
+    // The most severe verdict and the first epoch it was given, so a Halt earlier in the run is not hidden by a later Continue.
+    private static string Worst(IReadOnlyList<VerdictDocument> verdicts)
+    {
+        var worst = verdicts
+            .Select(v => (Verdict: v, Kind: Enum.TryParse<VerdictKind>(v.Kind, out var kind) ? kind : VerdictKind.Continue))
+            .Where(v => v.Kind != VerdictKind.Continue)
+            .OrderByDescending(v => v.Kind)
+            .ThenBy(v => v.Verdict.Epoch)
+            .FirstOrDefault();
+        return worst.Verdict is null ? "-" : $"{worst.Kind} at epoch {Formats.Integer(worst.Verdict.Epoch)}";
+    }
+}

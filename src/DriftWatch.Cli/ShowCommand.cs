@@ -1,0 +1,132 @@
+using System.CommandLine;
+using DriftWatch.Charts;
+
+namespace DriftWatch.Cli;
+
+/// <summary><c>driftwatch show RUN</c>: one line per epoch with losses, verdict and the features that carry the most importance.</summary>
+internal static class ShowCommand
+{
+    /// <summary>Most features per epoch the table shows.</summary>
+    public const int MaximumTop = 10;
+
+    private const int FeatureNameLength = 28;
+
+    /// <summary>Builds the command.</summary>
+    public static Command Create(Option<string> store)
+    {
+        var run = CommonOptions.Run();
+        var method = CommonOptions.Method();
+        var top = CommonOptions.Bounded("--top", $"How many features to list per epoch, by share of importance on the held-out half (1 to {MaximumTop}).", 3, 1, MaximumTop);
+        var command = new Command(
+            "show",
+            "Show a run epoch by epoch: train and validation loss, the verdict, the features with the largest share of "
+            + "importance on the held-out half, and how much larger each one's share is on the training half (percentage points). "
+            + "Verdict reasons and monitoring problems follow the table.\n"
+            + ExitCodes.ReadingCommandsHelp)
+        {
+            run,
+            method,
+            top,
+        };
+        command.SetAction(parse =>
+        {
+            var output = parse.InvocationConfiguration.Output;
+            RunHistory history;
+            string path;
+            using (var runStore = CommonOptions.OpenStore(parse, store))
+            {
+                history = RunHistory.Load(runStore, parse.GetValue(run)!, parse.GetValue(method)!);
+                path = runStore.Path;
+            }
+            WriteHeader(output, history, path);
+            if (history.Epochs.IsEmpty)
+            {
+                output.WriteLine();
+                output.WriteLine("No complete epochs stored yet.");
+                return ExitCodes.Fine;
+            }
+            output.WriteLine();
+            WriteTable(output, history, parse.GetValue(top));
+            output.WriteLine();
+            WriteReasons(output, history);
+            return ExitCodes.Fine;
+        });
+        return command;
+    }
+
+    private static void WriteHeader(TextWriter output, RunHistory history, string path)
+    {
+        output.WriteLine($"Run {DisplayText.Clean(history.RunName)}");
+        output.WriteLine($"  store        {DisplayText.Clean(path)}");
+        output.WriteLine($"  created      {Formats.Utc(history.CreatedUtc)} UTC");
+        if (history.Description.Length > 0)
+            output.WriteLine($"  description  {DisplayText.Clean(history.Description)}");
+        string hash = history.ProbeHash.Length > 12 ? history.ProbeHash[..12] : history.ProbeHash;
+        output.WriteLine($"  probe set    {Formats.Integer(history.HeldOutRows)} held-out + {Formats.Integer(history.TrainingRows)} training rows, hash {DisplayText.Clean(hash)}");
+        output.WriteLine($"  features     {Formats.Integer(history.FeatureNames.Length)}");
+        output.WriteLine($"  method       {DisplayText.Clean(history.Method)} (target {DisplayText.Clean(history.Target)}, baseline {DisplayText.Clean(history.Baseline)}); run's methods: {DisplayText.Clean(string.Join(", ", history.Methods))}");
+        if (!history.Epochs.IsEmpty)
+        {
+            int attributed = history.Epochs.Count(e => e.IsAttributed);
+            output.WriteLine($"  epochs       {Formats.Integer(history.Epochs.Length)} stored ({Formats.Integer(history.Epochs[0].Epoch)} to {Formats.Integer(history.Epochs[^1].Epoch)}), {Formats.Integer(attributed)} attributed with this method");
+        }
+    }
+
+    private static void WriteTable(TextWriter output, RunHistory history, int top)
+    {
+        var table = new TextTable(
+            ">epoch",
+            ">train loss",
+            ">validation loss",
+            "verdict",
+            $"top {top} by held-out share",
+            "training minus held-out (points)");
+        foreach (var epoch in history.Epochs)
+        {
+            string features;
+            string gaps;
+            if (epoch.IsAttributed)
+            {
+                var ranked = epoch.TopByHeldOutShare(top);
+                features = string.Join(", ", ranked.Select(f =>
+                    $"{DisplayText.Clean(history.FeatureNames[f], FeatureNameLength)} {Formats.Percent(epoch.HeldOutShare[f])}"));
+                gaps = string.Join(", ", ranked.Select(f => Formats.Points(epoch.TrainingShare[f] - epoch.HeldOutShare[f])));
+            }
+            else
+            {
+                features = "(not attributed)";
+                gaps = "-";
+            }
+            table.Add(
+                Formats.Integer(epoch.Epoch),
+                Formats.Loss(epoch.TrainLoss),
+                Formats.Loss(epoch.ValidationLoss),
+                epoch.Verdict?.ToString() ?? "-",
+                features,
+                gaps);
+        }
+        table.Write(output);
+    }
+
+    private static void WriteReasons(TextWriter output, RunHistory history)
+    {
+        var lines = new List<string>();
+        foreach (var epoch in history.Epochs)
+        {
+            string verdict = epoch.Verdict?.ToString() ?? "no verdict";
+            foreach (string reason in epoch.Reasons)
+                lines.Add($"  epoch {Formats.Integer(epoch.Epoch)}  {verdict}: {DisplayText.Clean(reason)}");
+            // The monitor also lists its own failures among the verdict's reasons; show each once.
+            foreach (string problem in epoch.Problems.Where(p => !epoch.Reasons.Contains(p)))
+                lines.Add($"  epoch {Formats.Integer(epoch.Epoch)}  problem: {DisplayText.Clean(problem)}");
+        }
+        if (lines.Count == 0)
+        {
+            output.WriteLine("No verdict reasons or monitoring problems stored.");
+            return;
+        }
+        output.WriteLine("Verdict reasons and monitoring problems:");
+        foreach (string line in lines)
+            output.WriteLine(line);
+    }
+}
