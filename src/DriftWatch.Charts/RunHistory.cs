@@ -11,7 +11,7 @@ namespace DriftWatch.Charts;
 /// <param name="HeldOutShare">Per feature, its share of mean |attribution| on the held-out half; empty when the epoch was not attributed with the history's method.</param>
 /// <param name="TrainingShare">Per feature, its share of mean |attribution| on the training half; empty like <paramref name="HeldOutShare"/>.</param>
 /// <param name="Verdict">The gate's verdict at this epoch, or null when none was stored.</param>
-/// <param name="Reasons">The verdict's reasons, one line each.</param>
+/// <param name="Reasons">The verdict's findings, one line each, led by the severity each one asks for (e.g. <c>Caution: …</c>).</param>
 /// <param name="Problems">Problems the monitor met at this epoch (training went on).</param>
 public sealed record EpochRecord(
     int Epoch,
@@ -150,11 +150,17 @@ public sealed class RunHistory
                 map is null ? [] : [.. map.HeldOut.Share],
                 map is null ? [] : [.. map.Training.Share],
                 verdict is null ? null : ParseVerdict(store, run, verdict),
-                verdict is null ? [] : [.. verdict.Reasons],
+                verdict is null ? [] : Reasons(verdict),
                 [.. e.Problems]);
         }).ToImmutableArray();
         return new RunHistory(run, method, features, epochs);
     }
+
+    // Each finding carries its own severity: a Caution beside a Halt must not read as a Halt.
+    private static ImmutableArray<string> Reasons(VerdictDocument verdict) =>
+        verdict.Findings.Count > 0
+            ? [.. verdict.Findings.Select(f => $"{f.Severity}: {f.Evidence}")]
+            : [.. verdict.Reasons.Select(r => $"{verdict.Kind}: {r}")];
 
     private static double? Metric(EpochDocument epoch, string key) =>
         epoch.Metrics.TryGetValue(key, out double value) ? value : null;

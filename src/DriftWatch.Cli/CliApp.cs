@@ -48,7 +48,8 @@ public static class CliApp
     {
         var store = CommonOptions.Store();
         var root = new RootCommand(
-            "DriftWatch: read the run store a monitored training wrote; list runs, show their epochs and findings, render charts.\n"
+            "DriftWatch: read the run store a monitored training wrote; list runs, show their epochs and findings, render charts, "
+            + "and check the gate's verdict (exit 1 on Halt) for a scheduler. Attributions describe the model, not causes; a Halt is advice, not proof.\n"
             + $"The store is --store PATH, else ${CommonOptions.StoreVariable}, else {CommonOptions.DefaultStoreFile} in the current folder; "
             + "it is only read, never created or changed.\n"
             + ExitCodes.AllHelp)
@@ -57,6 +58,7 @@ public static class CliApp
             RunsCommand.Create(store),
             ShowCommand.Create(store),
             ChartCommand.Create(store),
+            CheckCommand.Create(store),
         };
         return root;
     }

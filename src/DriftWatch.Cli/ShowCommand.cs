@@ -113,11 +113,10 @@ internal static class ShowCommand
         var lines = new List<string>();
         foreach (var epoch in history.Epochs)
         {
-            string verdict = epoch.Verdict?.ToString() ?? "no verdict";
             foreach (string reason in epoch.Reasons)
-                lines.Add($"  epoch {Formats.Integer(epoch.Epoch)}  {verdict}: {DisplayText.Clean(reason)}");
-            // The monitor also lists its own failures among the verdict's reasons; show each once.
-            foreach (string problem in epoch.Problems.Where(p => !epoch.Reasons.Contains(p)))
+                lines.Add($"  epoch {Formats.Integer(epoch.Epoch)}  {DisplayText.Clean(reason)}");
+            // The monitor also lists its own failures among the verdict's findings; show each once.
+            foreach (string problem in epoch.Problems.Where(p => !epoch.Reasons.Any(r => r.EndsWith(p, StringComparison.Ordinal))))
                 lines.Add($"  epoch {Formats.Integer(epoch.Epoch)}  problem: {DisplayText.Clean(problem)}");
         }
         if (lines.Count == 0)

@@ -19,6 +19,9 @@ public sealed class RunStore : IDisposable
     private const string MetaCollection = "driftwatch";
     private static readonly byte[] LiteDbSignature = Encoding.ASCII.GetBytes("** This is a LiteDB file **");
 
+    // LiteDB's global mapper turns "" into null and trims strings; names from users' data must come back exactly as written.
+    private static readonly BsonMapper Mapper = new() { EmptyStringToNull = false, TrimWhitespace = false };
+
     private readonly LiteDatabase _database;
 
     private RunStore(LiteDatabase database, string path)
@@ -246,7 +249,7 @@ public sealed class RunStore : IDisposable
                 Connection = ConnectionType.Shared,
                 ReadOnly = readOnly,
             };
-            return new RunStore(new LiteDatabase(connection), full);
+            return new RunStore(new LiteDatabase(connection, Mapper), full);
         }
         catch (LiteException e)
         {
