@@ -71,14 +71,27 @@ internal static class GreenhouseTraining
 
         output.WriteLine();
         output.WriteLine(Invariant($"lowest validation loss {bestLoss:F4} at epoch {bestEpoch}; {Math.Min(epoch, options.Epochs)} epochs in {total.Elapsed.TotalSeconds:F1} s"));
+        string chart = RenderTrend(monitor, options.RunName, monitorOptions.StorePath);
         string store = Quote(monitorOptions.StorePath);
         string run = Quote(options.RunName);
         output.WriteLine($"store     {monitorOptions.StorePath}");
+        output.WriteLine($"chart     {chart}");
         output.WriteLine("next      see what the monitor recorded:");
         output.WriteLine($"          dotnet run --project src/DriftWatch.Cli -- runs --store {store}");
         output.WriteLine($"          dotnet run --project src/DriftWatch.Cli -- show {run} --store {store}");
         output.WriteLine($"          dotnet run --project src/DriftWatch.Cli -- chart {run} --store {store}");
         return 0;
+    }
+
+    // The trend chart beside the store: share of importance per feature over the epochs, losses beneath.
+    private static string RenderTrend(TrainingMonitor monitor, string runName, string storePath)
+    {
+        var history = Charts.RunHistory.Load(monitor.Store, runName);
+        string folder = Path.Combine(Path.GetDirectoryName(storePath)!, "charts");
+        Directory.CreateDirectory(folder);
+        string path = Path.Combine(folder, Charts.ChartFiles.FileName(runName, "trend", history.Method));
+        new Charts.TrendChart().Render(history, path, Charts.ChartSize.Default);
+        return path;
     }
 
     private static string Invariant(FormattableString text) => text.ToString(CultureInfo.InvariantCulture);
