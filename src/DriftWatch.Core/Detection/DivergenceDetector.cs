@@ -13,7 +13,8 @@ namespace DriftWatch.Detection;
 /// <remarks>
 /// Rules: <b>leak</b> — training-minus-held-out share gap beyond the policy's widths of its bootstrap width W, or
 /// label-alignment gap beyond its widths of W for a feature that is not identifier-like;
-/// <b>memorised identifier</b> — label-alignment gap of an identifier-like categorical beyond its widths of W;
+/// <b>memorised identifier</b> — label-alignment gap of an identifier-like categorical beyond its widths of W, or a
+/// CUSUM of that gap in standard errors beyond the policy's threshold;
 /// <b>dominant feature</b> — one feature's share leads the next by more than its widths of W on both halves
 /// (a Caution), upgraded to <b>probable leak</b> when that categorical's attribution points at the true label on
 /// nearly every held-out row; <b>overfitting</b> — Prechelt's GL above the policy's threshold, with the features whose
@@ -31,6 +32,7 @@ public sealed class DivergenceDetector
     private readonly bool[] _identifierLike;
     private readonly Dictionary<(FindingKind Kind, int Feature), int> _streaks = [];
     private readonly Dictionary<(FindingKind Kind, int Feature), int> _firstFlagged = [];
+    private readonly Dictionary<int, (double Sum, int Since)> _identifierSums = [];
     private Cusum[]? _cusums;
     private bool[]? _shifted;
     private double[]? _previousShare;
@@ -297,12 +299,27 @@ public sealed class DivergenceDetector
                     shareLeak ? s.ShareGap[f] : s.AlignmentGap[f], shareLeak ? s.ShareGapWidth[f] : s.AlignmentGapWidth[f], Epochs(since, epoch), evidence));
             }
 
-            bool memorised = _identifierLike[f] && s.AlignmentGap.Length > 0 && s.AlignmentGap[f] > _policy.IdentifierWidths * s.AlignmentGapWidth[f];
-            if (Streak(FindingKind.MemorisedIdentifier, f, memorised, epoch) is int from)
-            {
-                findings.Add(new Finding(FindingKind.MemorisedIdentifier, _policy.SeverityOf(FindingKind.MemorisedIdentifier), names[f].Name, s.AlignmentGap[f], s.AlignmentGapWidth[f], Epochs(from, epoch),
-                    Format($"identifier-like '{names[f].Name}' agrees with the label on training rows (alignment {s.AlignmentTraining[f]:+0.00;-0.00}) far more than on held-out rows ({s.AlignmentHeldOut[f]:+0.00;-0.00}; gap noise floor {s.AlignmentGapWidth[f]:0.00}) since epoch {from}: the model is memorising its values")));
-            }
+            if (!_identifierLike[f] || s.AlignmentGap.Length == 0)
+                continue;
+            bool memorised = s.AlignmentGap[f] > _policy.IdentifierWidths * s.AlignmentGapWidth[f];
+            int? from = Streak(FindingKind.MemorisedIdentifier, f, memorised, epoch);
+            // Memorisation creeps in: a one-sided CUSUM of the gap in standard errors (W / 3.29) accumulates small,
+            // steady excesses that no single epoch shows beyond its noise floor (Page 1954).
+            double z = s.AlignmentGap[f] / Math.Max(s.AlignmentGapWidth[f] / 3.29, 1e-9);
+            var (sum, accumulating) = _identifierSums.GetValueOrDefault(f, (0, epoch));
+            double next = Math.Max(0, sum + z - _policy.IdentifierCusumAllowance);
+            if (sum == 0)
+                accumulating = epoch; // a new excursion starts here
+            _identifierSums[f] = (next, accumulating);
+            bool accumulated = next > _policy.IdentifierCusumThreshold;
+            if (from is null && !accumulated)
+                continue;
+            int start = from ?? accumulating;
+            string how = from is not null
+                ? Format($"beyond its noise floor ({s.AlignmentGapWidth[f]:0.00}) since epoch {start}")
+                : Format($"by a steady excess over its noise floor accumulated since epoch {start} (CUSUM {next:0.0} standard errors, threshold {_policy.IdentifierCusumThreshold:0.#})");
+            findings.Add(new Finding(FindingKind.MemorisedIdentifier, _policy.SeverityOf(FindingKind.MemorisedIdentifier), names[f].Name, s.AlignmentGap[f], s.AlignmentGapWidth[f], Epochs(start, epoch),
+                Format($"identifier-like '{names[f].Name}' agrees with the label on training rows (alignment {s.AlignmentTraining[f]:+0.00;-0.00}) more than on held-out rows ({s.AlignmentHeldOut[f]:+0.00;-0.00}), ") + how + ": the model is memorising its values"));
         }
 
         DominanceRule(epoch, s, map, findings);

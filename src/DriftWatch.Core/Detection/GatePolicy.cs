@@ -39,6 +39,12 @@ public sealed record GatePolicy
     /// <summary>Memorised identifier: label-alignment gap beyond this many widths W. Default 0.75.</summary>
     public double IdentifierWidths { get; init; } = 0.75;
 
+    /// <summary>Memorised identifier, accumulated: CUSUM allowance K on the alignment gap, in its standard errors. Default 0.5.</summary>
+    public double IdentifierCusumAllowance { get; init; } = 0.5;
+
+    /// <summary>Memorised identifier, accumulated: CUSUM decision interval H on the alignment gap, in its standard errors. Default 5.</summary>
+    public double IdentifierCusumThreshold { get; init; } = 5;
+
     /// <summary>A categorical is identifier-like when at least this fraction of training rows carry a value seen in at most 3 training rows. Default 0.5.</summary>
     public double IdentifierRareFraction { get; init; } = 0.5;
 
@@ -84,6 +90,8 @@ public sealed record GatePolicy
         ["leakMinimumAlignmentGap"] = "number in [0, 2]",
         ["leakMinimumShare"] = "number in [0, 1]",
         ["identifierWidths"] = "number > 0",
+        ["identifierCusumAllowance"] = "number ≥ 0",
+        ["identifierCusumThreshold"] = "number > 0",
         ["identifierRareFraction"] = "number in (0, 1]",
         ["dominanceWidths"] = "number > 0",
         ["purityLowerBound"] = "number in (0, 1]",
@@ -146,6 +154,8 @@ public sealed record GatePolicy
             ["leakMinimumAlignmentGap"] = LeakMinimumAlignmentGap,
             ["leakMinimumShare"] = LeakMinimumShare,
             ["identifierWidths"] = IdentifierWidths,
+            ["identifierCusumAllowance"] = IdentifierCusumAllowance,
+            ["identifierCusumThreshold"] = IdentifierCusumThreshold,
             ["identifierRareFraction"] = IdentifierRareFraction,
             ["dominanceWidths"] = DominanceWidths,
             ["purityLowerBound"] = PurityLowerBound,
@@ -189,6 +199,8 @@ public sealed record GatePolicy
             "leakMinimumAlignmentGap" => p with { LeakMinimumAlignmentGap = Number(d => d is >= 0 and <= 2) },
             "leakMinimumShare" => p with { LeakMinimumShare = Number(d => d is >= 0 and <= 1) },
             "identifierWidths" => p with { IdentifierWidths = Number(d => d > 0) },
+            "identifierCusumAllowance" => p with { IdentifierCusumAllowance = Number(d => d >= 0) },
+            "identifierCusumThreshold" => p with { IdentifierCusumThreshold = Number(d => d > 0) },
             "identifierRareFraction" => p with { IdentifierRareFraction = Number(d => d is > 0 and <= 1) },
             "dominanceWidths" => p with { DominanceWidths = Number(d => d > 0) },
             "purityLowerBound" => p with { PurityLowerBound = Number(d => d is > 0 and <= 1) },

@@ -59,6 +59,21 @@ public sealed class DivergenceDetectorTests
     }
 
     [Fact]
+    public void SlowMemorisationBelowTheNoiseFloorIsCaughtByAccumulation()
+    {
+        // Page 1954: a CUSUM accumulates a steady shift too small for any single observation to exceed its limits.
+        // Crate ids lean towards the training label in 60% of training rows: an alignment gap near 0.2, about half its noise floor.
+        var run = new HistoryBuilder().WithMemorisedCrate(fromEpoch: 1, agreement: 0.2).Run(14);
+
+        var gaps = run.Skip(1).Select(a => a.Statistics.AlignmentGap[HistoryBuilder.Crate] / a.Statistics.AlignmentGapWidth[HistoryBuilder.Crate]).ToList();
+        Assert.InRange(gaps.Average(), 0.2, 0.75);
+        var finding = run.SelectMany(a => a.Verdict.Findings).First(f => f.Kind == FindingKind.MemorisedIdentifier);
+        Assert.Equal("crate id", finding.Feature);
+        Assert.Contains("accumulated since epoch", finding.Evidence);
+        Assert.DoesNotContain(new HistoryBuilder().Run(14).SelectMany(a => a.Verdict.Findings), f => f.Kind == FindingKind.MemorisedIdentifier);
+    }
+
+    [Fact]
     public void ADominantFeatureThatAgreesWithTheLabelOnlyAsOftenAsGenuineOnesIsACaution()
     {
         var run = new HistoryBuilder().WithDominant(HistoryBuilder.Tray, fromEpoch: 2, pureValue: false).Run(6);

@@ -19,6 +19,7 @@ internal sealed class HistoryBuilder
     private double _leakFactor = 4;
     private int _leakFeature = 0;
     private int _memoriseFrom = int.MaxValue;
+    private double _memoriseAgreement = 1;
     private int _dominantFrom = int.MaxValue;
     private int _dominantFeature = Tray;
     private bool _pureValue;
@@ -38,9 +39,11 @@ internal sealed class HistoryBuilder
         return this;
     }
 
-    public HistoryBuilder WithMemorisedCrate(int fromEpoch)
+    /// <summary>From the epoch on, crate ids point at the label on training rows with this probability (1 = fully memorised).</summary>
+    public HistoryBuilder WithMemorisedCrate(int fromEpoch, double agreement = 1)
     {
         _memoriseFrom = fromEpoch;
+        _memoriseAgreement = agreement;
         return this;
     }
 
@@ -97,7 +100,7 @@ internal sealed class HistoryBuilder
                 if (f == 0 && training)
                     size *= _trainingNudge;
                 if (f == Crate && epoch >= _memoriseFrom)
-                    sign = training ? label : (random.NextDouble() < 0.5 ? 1 : -1);
+                    sign = training && random.NextDouble() < _memoriseAgreement ? label : (random.NextDouble() < 0.5 ? 1 : -1);
                 if (f == _dominantFeature && epoch >= _dominantFrom)
                 {
                     size *= 6;
