@@ -39,7 +39,7 @@ public sealed class DemoStoreFixture : IDisposable
             Variant = variant,
             Epochs = epochs,
             Seed = 3,
-            Steps = 32,
+            Steps = DemoOptions.DefaultSteps,
             ProbePerHalf = 128,
             RunName = run,
         };

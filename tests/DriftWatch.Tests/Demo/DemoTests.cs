@@ -61,6 +61,22 @@ public sealed class DemoTests : IClassFixture<DemoStoreFixture>
     }
 
     [Fact]
+    public void CompletenessHoldsWithinOnePercentOnTheDemoModelAtDefaultSteps()
+    {
+        // Sundararajan, Taly, Yan 2017, Prop. 1 (completeness): Σ IG = F(x) − F(x′); every row's gap is stored with the map.
+        using var store = RunStore.OpenForReading(_fixture.StorePath);
+        foreach (var run in store.Runs())
+        {
+            foreach (var document in store.Maps(run.Id))
+            {
+                var map = RunReview.ToMap(document);
+                Assert.Equal(map.Rows, map.Deltas!.Length);
+                Assert.True(map.RelativeMeanDelta() < 0.01, $"{run.Name} epoch {document.Epoch}: mean gap {map.RelativeMeanDelta():P2}");
+            }
+        }
+    }
+
+    [Fact]
     public void ScenariosAreReproducibleForASeedAndDifferAcrossSeeds()
     {
         var a = ScenarioBuilder.For(GreenhouseVariant.Default).WithSeed(4).Build();
