@@ -46,6 +46,20 @@ public sealed class IntegratedGradients : IAttributionMethod
     public ColumnAttribution Attribute(AttributionInput input)
     {
         ArgumentNullException.ThrowIfNull(input);
+        var scores = Integrate(input);
+        using var scope = torch.NewDisposeScope();
+        var atInput = Gradients.Scores(input.Score, input.Inputs.detach(), input.ChunkRows);
+        var atBaseline = Gradients.Scores(input.Score, input.BaselineRows().detach(), input.ChunkRows);
+        var gaps = new float[input.Rows];
+        for (int r = 0; r < gaps.Length; r++)
+            gaps[r] = atInput[r] - atBaseline[r];
+        return new ColumnAttribution(input.Rows, input.Columns, scores, gaps, (long)input.Rows * Steps + 2L * input.Rows);
+    }
+
+    /// <summary>The attributions alone, row-major, without evaluating F(x) and F(x′): steps × rows evaluations.</summary>
+    internal float[] Integrate(AttributionInput input)
+    {
+        ArgumentNullException.ThrowIfNull(input);
         Gradients.CheckChunk(input.ChunkRows);
         using var scope = torch.NewDisposeScope();
         int rows = input.Rows, columns = input.Columns;
@@ -72,12 +86,6 @@ public sealed class IntegratedGradients : IAttributionMethod
             integral.index_add_(0, row, gradient * weights.index_select(0, step).unsqueeze(1), 1);
         }
 
-        var scores = Gradients.ToArray(integral * difference);
-        var atInput = Gradients.Scores(input.Score, x, input.ChunkRows);
-        var atBaseline = Gradients.Scores(input.Score, baseline, input.ChunkRows);
-        var gaps = new float[rows];
-        for (int r = 0; r < rows; r++)
-            gaps[r] = atInput[r] - atBaseline[r];
-        return new ColumnAttribution(rows, columns, scores, gaps, total + 2L * rows);
+        return Gradients.ToArray(integral * difference);
     }
 }
