@@ -80,24 +80,40 @@ public sealed class TrainingMonitor : IDisposable
             CheckModel(model);
 
             var maps = epoch % _options.AttributeEvery == 0 ? Attribute(model, epoch, failures) : [];
-            string? snapshot = _options.SaveSnapshots ? SaveSnapshot(model, epoch, failures) : null;
+            using var weights = _options.SaveSnapshots ? Serialise(model, epoch, failures) : null;
             var values = metrics.ToDictionary();
-            var primary = maps.FirstOrDefault(m => m.Method == _options.Methods[0].Name);
+            var primary = maps.FirstOrDefault(m => m.Document.Method == _options.Methods[0].Name);
             var assessment = _detector.Observe(new EpochEvidence(epoch, values, primary?.Map, [.. failures]));
 
-            // The epoch's document goes last: it marks the epoch complete for readers and for a resumed run.
-            _store.WriteStatistics(new StatisticsDocument { RunId = _run.Id, Epoch = epoch, Statistics = assessment.Statistics });
-            _store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, _run.Id));
-            _store.WriteEpoch(new EpochDocument
+            // One transaction per epoch: maps, snapshot, statistics, verdict and the epoch's document (the marker
+            // readers and a resumed run look for) land together or not at all, and the file is opened once.
+            try
             {
-                RunId = _run.Id,
-                Epoch = epoch,
-                Metrics = values,
-                SnapshotId = snapshot,
-                RecordedUtc = _options.Time.GetUtcNow().UtcDateTime,
-                Problems = failures.Select(f => f.Evidence).ToList(),
-                MonitorSeconds = clock.Elapsed.TotalSeconds,
-            });
+                _store.InOneTransaction(() =>
+                {
+                    foreach (var map in maps)
+                        _store.WriteMap(map.Document);
+                    string? snapshot = weights is null ? null : _store.SaveSnapshot(_run.Id, epoch, weights);
+                    _store.WriteStatistics(new StatisticsDocument { RunId = _run.Id, Epoch = epoch, Statistics = assessment.Statistics });
+                    _store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, _run.Id));
+                    _store.WriteEpoch(new EpochDocument
+                    {
+                        RunId = _run.Id,
+                        Epoch = epoch,
+                        Metrics = values,
+                        SnapshotId = snapshot,
+                        RecordedUtc = _options.Time.GetUtcNow().UtcDateTime,
+                        Problems = failures.Select(f => f.Evidence).ToList(),
+                        MonitorSeconds = clock.Elapsed.TotalSeconds,
+                    });
+                });
+            }
+            catch
+            {
+                // Nothing of this epoch was stored: the detector must not remember it either.
+                _detector = CatchUp(before: epoch);
+                throw;
+            }
             _lastEpoch = epoch;
             return assessment.Verdict;
         }
@@ -112,7 +128,7 @@ public sealed class TrainingMonitor : IDisposable
     /// <inheritdoc />
     public void Dispose() => _store.Dispose();
 
-    private sealed record StoredMap(string Method, AttributionMap Map);
+    private sealed record StoredMap(MapDocument Document, AttributionMap Map);
 
     private List<StoredMap> Attribute(IWatchedModel model, int epoch, List<Finding> failures)
     {
@@ -153,7 +169,7 @@ public sealed class TrainingMonitor : IDisposable
                     var map = AttributionMap.FromColumns(columns, _options.Schema);
                     double seconds = watch.Elapsed.TotalSeconds;
                     var (heldOut, training) = HalfImportance.ForHalves(map, probe);
-                    _store.WriteMap(new MapDocument
+                    stored.Add(new StoredMap(new MapDocument
                     {
                         RunId = _run.Id,
                         Epoch = epoch,
@@ -168,8 +184,7 @@ public sealed class TrainingMonitor : IDisposable
                         Training = ToDocument(training),
                         Seconds = seconds,
                         Evaluations = columns.Evaluations,
-                    });
-                    stored.Add(new StoredMap(method.Name, map));
+                    }, map));
                 }
                 catch (Exception e) when (!_options.Strict)
                 {
@@ -186,18 +201,20 @@ public sealed class TrainingMonitor : IDisposable
         return stored;
     }
 
-    private string? SaveSnapshot(IWatchedModel model, int epoch, List<Finding> failures)
+    // The weights in memory, before the epoch's transaction: a model that cannot be saved costs the snapshot, not the epoch.
+    private MemoryStream? Serialise(IWatchedModel model, int epoch, List<Finding> failures)
     {
+        var weights = new MemoryStream();
         try
         {
-            using var weights = new MemoryStream();
             using (var writer = new BinaryWriter(weights, System.Text.Encoding.UTF8, leaveOpen: true))
                 model.Module.save(writer);
             weights.Position = 0;
-            return _store.SaveSnapshot(_run.Id, epoch, weights);
+            return weights;
         }
         catch (Exception e) when (!_options.Strict)
         {
+            weights.Dispose();
             failures.Add(Failure(epoch, "snapshot", e));
             return null;
         }

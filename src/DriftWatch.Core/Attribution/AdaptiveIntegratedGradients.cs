@@ -66,14 +66,7 @@ public sealed class AdaptiveIntegratedGradients : IAttributionMethod
         int rows = input.Rows, columns = input.Columns;
         var scores = new float[rows * columns];
         var steps = new int[rows];
-        float[] gaps;
-        long evaluations = 2L * rows; // F(x) and F(x′) once for the convergence test
-        using (var scope = torch.NewDisposeScope())
-        {
-            var atInput = Gradients.Scores(input.Score, input.Inputs.detach(), input.ChunkRows);
-            var atBaseline = Gradients.Scores(input.Score, input.BaselineRows().detach(), input.ChunkRows);
-            gaps = atInput.Select((v, r) => v - atBaseline[r]).ToArray();
-        }
+        var (gaps, evaluations) = Gradients.OutputGaps(input); // F(x) and F(x′) once, for the convergence test
         double typical = gaps.Average(g => Math.Abs((double)g));
 
         var pending = Enumerable.Range(0, rows).ToArray();

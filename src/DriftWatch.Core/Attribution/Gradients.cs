@@ -45,6 +45,24 @@ internal static class Gradients
         return gradient;
     }
 
+    /// <summary>
+    /// F(x) − F(x′) per row and the model evaluations it took: a baseline shared by every row (<c>[columns]</c>) is
+    /// evaluated once, not once per row.
+    /// </summary>
+    public static (float[] Gaps, long Evaluations) OutputGaps(AttributionInput input)
+    {
+        using var scope = torch.NewDisposeScope();
+        var atInput = Scores(input.Score, input.Inputs.detach(), input.ChunkRows);
+        bool shared = input.Baseline.dim() == 1;
+        var atBaseline = shared
+            ? Scores(input.Score, input.Baseline.detach().unsqueeze(0), 1)
+            : Scores(input.Score, input.BaselineRows().detach(), input.ChunkRows);
+        var gaps = new float[input.Rows];
+        for (int r = 0; r < gaps.Length; r++)
+            gaps[r] = atInput[r] - atBaseline[shared ? 0 : r];
+        return (gaps, input.Rows + (shared ? 1L : input.Rows));
+    }
+
     /// <summary>Copies a 2-D float tensor out as a row-major array.</summary>
     public static float[] ToArray(Tensor t) => t.to(ScalarType.Float32).contiguous().data<float>().ToArray();
 

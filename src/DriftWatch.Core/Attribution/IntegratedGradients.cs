@@ -47,13 +47,8 @@ public sealed class IntegratedGradients : IAttributionMethod
     {
         ArgumentNullException.ThrowIfNull(input);
         var scores = Integrate(input);
-        using var scope = torch.NewDisposeScope();
-        var atInput = Gradients.Scores(input.Score, input.Inputs.detach(), input.ChunkRows);
-        var atBaseline = Gradients.Scores(input.Score, input.BaselineRows().detach(), input.ChunkRows);
-        var gaps = new float[input.Rows];
-        for (int r = 0; r < gaps.Length; r++)
-            gaps[r] = atInput[r] - atBaseline[r];
-        return new ColumnAttribution(input.Rows, input.Columns, scores, gaps, (long)input.Rows * Steps + 2L * input.Rows);
+        var (gaps, evaluations) = Gradients.OutputGaps(input);
+        return new ColumnAttribution(input.Rows, input.Columns, scores, gaps, (long)input.Rows * Steps + evaluations);
     }
 
     /// <summary>The attributions alone, row-major, without evaluating F(x) and F(x′): steps × rows evaluations.</summary>
@@ -70,8 +65,28 @@ public sealed class IntegratedGradients : IAttributionMethod
         var weights = torch.tensor(_quadrature.Weights, dtype: x.dtype);
         var integral = torch.zeros(rows, columns, dtype: x.dtype);
 
-        // Expanded index i = row * steps + step, so a chunk boundary may fall inside a row's path:
-        // index_add_ accumulates each gradient into its own row whatever the chunking.
+        if (input.ChunkRows >= Steps)
+        {
+            // Whole rows per chunk: the path points are a broadcast [rows, steps, columns] and the weighted sum over
+            // steps is a reduction, with no gather or scatter by index.
+            int rowsPerChunk = input.ChunkRows / Steps;
+            var alphas = nodes.view(1, Steps, 1);
+            var stepWeights = weights.view(1, Steps, 1);
+            for (int start = 0; start < rows; start += rowsPerChunk)
+            {
+                using var chunk = torch.NewDisposeScope();
+                int end = Math.Min(rows, start + rowsPerChunk);
+                var from = baseline[start..end].unsqueeze(1);
+                var along = difference[start..end].unsqueeze(1);
+                var points = (from + alphas * along).reshape(-1, columns);
+                var gradient = Gradients.Of(input.Score, points).view(end - start, Steps, columns);
+                integral[start..end] = (gradient * stepWeights).sum(dim: 1);
+            }
+            return Gradients.ToArray(integral * difference);
+        }
+
+        // Fewer expanded rows per chunk than steps: index i = row * steps + step, so a chunk boundary falls inside a
+        // row's path and index_add_ accumulates each gradient into its own row.
         long total = (long)rows * Steps;
         for (long start = 0; start < total; start += input.ChunkRows)
         {

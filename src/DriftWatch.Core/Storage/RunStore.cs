@@ -122,6 +122,31 @@ public sealed class RunStore : IDisposable
         });
     }
 
+    /// <summary>
+    /// Runs <paramref name="write"/> as one transaction: every write inside lands together or, when one fails, none does.
+    /// The file stays open for the whole transaction, so readers wait for it rather than see part of it.
+    /// </summary>
+    public void InOneTransaction(Action write)
+    {
+        ArgumentNullException.ThrowIfNull(write);
+        Guard(() =>
+        {
+            bool began = _database.BeginTrans();
+            try
+            {
+                write();
+                if (began)
+                    _database.Commit();
+            }
+            catch
+            {
+                if (began)
+                    _database.Rollback();
+                throw;
+            }
+        });
+    }
+
     /// <summary>Replaces a run's record (same id).</summary>
     public void UpdateRun(RunDocument run)
     {

@@ -89,7 +89,7 @@ public sealed class IntegratedGradientsTests
 
         for (int i = 0; i < whole.Scores.Length; i++)
             Assert.Equal(whole.Scores[i], chunked.Scores[i], 1e-5);
-        Assert.Equal(37L * 16 + 2 * 37, whole.Evaluations);
+        Assert.Equal(37L * 16 + 37 + 1, whole.Evaluations); // steps × rows, F(x) per row, F(x′) once for the shared baseline
     }
 
     [Fact]

@@ -1,0 +1,333 @@
+using System.Globalization;
+using System.Text;
+using System.Text.Json;
+using DriftWatch.Attribution;
+using DriftWatch.Benchmarks;
+using DriftWatch.Demo.Greenhouse;
+using DriftWatch.Detection;
+using DriftWatch.Hooks;
+using DriftWatch.Model;
+using DriftWatch.Probing;
+using DriftWatch.Storage;
+using TorchSharp;
+using static TorchSharp.torch;
+
+// DriftWatch's benchmark suite. Every figure is a ratio or a count measured side by side in this one process run.
+//   dotnet run --project tests/DriftWatch.Benchmarks -c Release -- [--quick] [--out FOLDER]
+bool quick = args.Contains("--quick");
+int outIndex = Array.IndexOf(args, "--out");
+string outFolder = outIndex >= 0 && outIndex + 1 < args.Length ? args[outIndex + 1] : "driftwatch-benchmarks";
+if (args.Any(a => a is "-h" or "--help"))
+{
+    Console.WriteLine("Usage: dotnet run --project tests/DriftWatch.Benchmarks -c Release -- [--quick] [--out FOLDER]");
+    Console.WriteLine("Measures IG against a bare forward+backward pass, monitor overhead, evaluations to 1% completeness,");
+    Console.WriteLine("store write/read costs and detector cost as history grows; prints a table and writes figures.csv and figures.json.");
+    return 0;
+}
+Directory.CreateDirectory(outFolder);
+int repeats = quick ? 3 : 7;
+var figures = new List<Figure>();
+string Invariant(FormattableString s) => s.ToString(CultureInfo.InvariantCulture);
+void Add(Figure f)
+{
+    figures.Add(f);
+    Console.WriteLine(Invariant($"  [{f.Group}] {f.Name}: {f.Value:G4} {f.Unit}{(f.Target.Length > 0 ? "  (target " + f.Target + ")" : "")}"));
+}
+
+Console.WriteLine(Invariant($"DriftWatch benchmarks — {Environment.ProcessorCount} cores, {Environment.OSVersion}, .NET {Environment.Version}, libtorch threads {torch.get_num_threads()}{(quick ? ", quick" : "")}"));
+var scenario = ScenarioBuilder.For(GreenhouseVariant.Clean).WithSeed(1).Build();
+torch.manual_seed(1);
+using var demo = GreenhouseNet.For(scenario);
+double rowsPerSecond = Train(demo, scenario, epochs: quick ? 3 : 6);
+demo.eval();
+
+// 1. IG throughput against the floor: a bare forward+backward pass over the same expanded rows.
+Console.WriteLine("1. Integrated Gradients against a bare forward+backward pass (256 rows × 32 steps)");
+using var wide = new WideNet();
+foreach (var (name, model, rows) in new (string, IWatchedModel, ProbeRows)[]
+{
+    ("demo model", demo, scenario.Validation.Rows),
+    (Invariant($"wide model ({wide.ParameterCount / 1e6:F2} M parameters)"), wide, RandomRows(WideNet.Inputs, 512)),
+})
+{
+    using var scope = torch.NewDisposeScope();
+    var features = EncodeRows(model, rows, 256);
+    var input = new AttributionInput(f => model.Score(f).squeeze(1), features, torch.zeros(features.shape[1]), 8192);
+    var ig = new IntegratedGradients(32);
+    var expanded = features.repeat_interleave(32, 0).detach();
+    var frozen = model.Module.parameters().ToList();
+    frozen.ForEach(p => p.requires_grad = false);
+    var times = Measure.Interleaved(repeats,
+        () => ig.Attribute(input),
+        () =>
+        {
+            using var inner = torch.NewDisposeScope();
+            var leaf = expanded.detach().requires_grad_(true);
+            var output = model.Score(leaf).squeeze(1);
+            torch.autograd.grad([output.sum()], [leaf]);
+        });
+    frozen.ForEach(p => p.requires_grad = true);
+    Add(new Figure("1", $"IG throughput / floor, {name}", times[1] / times[0], "ratio", "≥ 0.9", Invariant($"median of {repeats}: IG {times[0] * 1000:F1} ms, floor {times[1] * 1000:F1} ms")));
+}
+
+// 2. Monitor overhead at default settings, as training rows and as a share of a 500,000-row epoch.
+Console.WriteLine("2. Monitor overhead at default settings (IG 64 steps, 128 + 128 probe rows, snapshots on)");
+using (var temp = new TempStore())
+{
+    // Every setting gets its own monitor; rounds go through all of them in turn so load on a shared machine hits each alike.
+    var settings = new (int PerHalf, int Steps)[] { (128, 64), (64, 64), (256, 64), (128, 16), (128, 32) };
+    var monitors = settings.Select(s => new TrainingMonitor(new MonitorOptions
+    {
+        StorePath = temp.Path,
+        RunName = Invariant($"overhead-{s.PerHalf}-{s.Steps}"),
+        Schema = demo.Schema,
+        Probe = ProbeSet.Select(scenario.Validation.Rows, scenario.Training.Rows, s.PerHalf, 1),
+        Methods = [new IntegratedGradients(s.Steps)],
+        TrainingValueCounts = scenario.TrainingValueCounts,
+    })).ToList();
+    int epoch = 0;
+    var medians = Measure.Interleaved(repeats, [.. monitors.Select<TrainingMonitor, Action>(m => () => m.EndEpoch(demo, epoch++, new EpochMetrics(0.5, 0.5)))]);
+    monitors.ForEach(m => m.Dispose());
+    double atDefault = medians[0];
+    double epochSeconds = 500_000 / rowsPerSecond;
+    Add(new Figure("2", "monitor per epoch, equivalent training rows", atDefault * rowsPerSecond, "rows", "", Invariant($"monitor {atDefault * 1000:F0} ms; training {rowsPerSecond:F0} rows/s (Adam, batch 32)")));
+    Add(new Figure("2", "monitor / 500,000-row epoch", atDefault / epochSeconds, "ratio", "≤ 0.05", Invariant($"epoch of 500,000 rows ≈ {epochSeconds:F1} s")));
+    for (int i = 1; i < settings.Length; i++)
+        Add(new Figure("2", Invariant($"monitor, {settings[i].PerHalf} + {settings[i].PerHalf} probe rows, IG {settings[i].Steps} steps / default"), medians[i] / atDefault, "ratio", "", Invariant($"{medians[i] * 1000:F0} ms")));
+}
+
+// 3. Model evaluations to reach IG completeness within 1% on the trained demo model.
+Console.WriteLine("3. Evaluations to 1% completeness (mean |Σ IG − (F(x) − F(x′))| / mean |F(x) − F(x′)|), 256 probe rows");
+using (var scope = torch.NewDisposeScope())
+{
+    var features = EncodeRows(demo, scenario.Validation.Rows, 256);
+    var input = new AttributionInput(f => demo.Score(f).squeeze(1), features, torch.zeros(features.shape[1]), 8192);
+    double RelativeDelta(ColumnAttribution c) => AttributionMap.FromColumns(c, demo.Schema).RelativeMeanDelta() ?? double.NaN;
+    long fixed64 = new IntegratedGradients(64).Attribute(input).Evaluations;
+    foreach (var rule in Enum.GetValues<QuadratureRule>())
+    {
+        long? needed = null;
+        foreach (int n in new[] { 4, 8, 16, 32, 64, 128, 256, 512 })
+        {
+            var result = new IntegratedGradients(n, rule).Attribute(input);
+            if (RelativeDelta(result) <= 0.01)
+            {
+                needed = result.Evaluations;
+                break;
+            }
+        }
+        Add(new Figure("3", $"evaluations to 1%, fixed {rule}", needed ?? double.NaN, "evaluations", "", "smallest power-of-two step count reaching 1%"));
+    }
+    var adaptive = new AdaptiveIntegratedGradients().Attribute(input);
+    Add(new Figure("3", "evaluations to 1%, adaptive", adaptive.Evaluations, "evaluations", "", Invariant($"reached {RelativeDelta(adaptive):P2}")));
+    Add(new Figure("3", "adaptive / fixed 64-step Riemann midpoint", (double)adaptive.Evaluations / fixed64, "ratio", "≤ 0.5", "model evaluations, counted"));
+}
+
+// 4. Store: one epoch's writes against its attribution; read-back and `show` over a long, wide run.
+Console.WriteLine("4. Store");
+using (var temp = new TempStore())
+{
+    int epochs = quick ? 100 : 500, features = 200, rows = 256;
+    var schema = FeatureSchema.FromDefinitions(Enumerable.Range(0, features).Select(f => new FeatureDefinition($"feature {f}", FeatureKind.Dense, f, 1)));
+    var labels = Enumerable.Range(0, rows).Select(r => (float)(r % 2)).ToArray();
+    var context = new RunContext(schema, rows / 2, rows / 2, labels, [], new Dictionary<string, IReadOnlyDictionary<long, int>>());
+    var detector = new DivergenceDetector(context, GatePolicy.Default);
+    var random = new Random(3);
+    double writeSeconds = 0;
+    using (var store = RunStore.OpenForWriting(temp.Path))
+    {
+        var run = store.AddRun(new RunDocument
+        {
+            Name = "wide",
+            Features = schema.Features.Select(f => new FeatureDocument { Name = f.Name, Kind = f.Kind.ToString(), FirstColumn = f.FirstColumn, ColumnCount = 1 }).ToList(),
+            HeldOutRows = rows / 2,
+            TrainingRows = rows / 2,
+            ProbeLabels = FloatBytes.FromFloats(labels),
+            Methods = [new MethodDocument { Name = "integrated-gradients" }],
+        });
+        for (int e = 0; e < epochs; e++)
+        {
+            var scores = new float[rows * features];
+            for (int i = 0; i < scores.Length; i++)
+                scores[i] = (float)(random.NextDouble() * 2 - 1) * (1 + i % features / 50f);
+            var map = new AttributionMap(rows, features, scores, new float[rows], new float[rows]);
+            var assessment = detector.Observe(new EpochEvidence(e, new Dictionary<string, double> { ["train_loss"] = 1.0 / (e + 1), ["validation_loss"] = 0.5 }, map, []));
+            var heldOut = HalfImportance.Compute(map, Enumerable.Range(0, rows / 2).ToArray(), labels);
+            var training = HalfImportance.Compute(map, Enumerable.Range(rows / 2, rows / 2).ToArray(), labels);
+            writeSeconds += Measure.Once(() => store.InOneTransaction(() =>
+            {
+                store.WriteMap(new MapDocument
+                {
+                    RunId = run.Id, Epoch = e, Method = "integrated-gradients", Target = "logit", Rows = rows, Features = features,
+                    Scores = FloatBytes.FromFloats(scores), Deltas = FloatBytes.FromFloats(map.Deltas), OutputGaps = FloatBytes.FromFloats(map.OutputGaps),
+                    HeldOut = new ImportanceDocument { MeanAbsolute = heldOut.MeanAbsolute, MeanSigned = heldOut.MeanSigned, Share = heldOut.Share, Alignment = heldOut.Alignment },
+                    Training = new ImportanceDocument { MeanAbsolute = training.MeanAbsolute, MeanSigned = training.MeanSigned, Share = training.Share, Alignment = training.Alignment },
+                });
+                store.WriteStatistics(new StatisticsDocument { RunId = run.Id, Epoch = e, Statistics = assessment.Statistics });
+                store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, run.Id));
+                store.WriteEpoch(new EpochDocument { RunId = run.Id, Epoch = e, Metrics = new() { ["train_loss"] = 1.0 / (e + 1), ["validation_loss"] = 0.5 } });
+            }));
+        }
+    }
+    double perEpochWrite = writeSeconds / epochs;
+    double attribution;
+    using (var scope = torch.NewDisposeScope())
+    {
+        var features256 = EncodeRows(demo, scenario.Validation.Rows, 256);
+        var input = new AttributionInput(f => demo.Score(f).squeeze(1), features256, torch.zeros(features256.shape[1]), 8192);
+        attribution = Measure.Interleaved(repeats, () => new IntegratedGradients(64).Attribute(input))[0];
+    }
+    Add(new Figure("4", Invariant($"store write per epoch, 256 × {features} map with statistics, verdict, epoch"), perEpochWrite, "s", "", "one transaction each"));
+    Add(new Figure("4", "store write / IG attribution, demo-model epoch", DemoEpochWrite(demo, scenario, repeats) / attribution, "ratio", "well under 1", Invariant($"IG 64 steps over 256 rows on the demo model: {attribution * 1000:F1} ms")));
+    double readBack = Measure.Once(() =>
+    {
+        using var store = RunStore.OpenForReading(temp.Path);
+        var run = store.GetRun("wide");
+        _ = store.Maps(run.Id).Count;
+    });
+    double show = Measure.Once(() => DriftWatch.Cli.CliApp.Run(["show", "wide", "--store", temp.Path], TextWriter.Null, TextWriter.Null));
+    Add(new Figure("4", Invariant($"read back {epochs} epochs × {features} features"), readBack, "s", "seconds", "every map document"));
+    Add(new Figure("4", Invariant($"driftwatch show over {epochs} epochs × {features} features"), show, "s", "seconds", "in process"));
+    Add(new Figure("4", "store size per epoch", new FileInfo(temp.Path).Length / (double)epochs, "bytes", "", Invariant($"{rows} rows × {features} features, float32 scores")));
+}
+
+// 6. Detector cost per epoch as the history grows (must stay flat: incremental, not quadratic).
+Console.WriteLine("6. Detector per epoch as history grows");
+{
+    int epochs = quick ? 100 : 1000, features = quick ? 200 : 1000, rows = 256;
+    var schema = FeatureSchema.FromDefinitions(Enumerable.Range(0, features).Select(f => new FeatureDefinition($"f{f}", FeatureKind.Dense, f, 1)));
+    var labels = Enumerable.Range(0, rows).Select(r => (float)(r % 2)).ToArray();
+    var detector = new DivergenceDetector(new RunContext(schema, rows / 2, rows / 2, labels, [], new Dictionary<string, IReadOnlyDictionary<long, int>>()), GatePolicy.Default);
+    var random = new Random(5);
+    var scores = new float[rows * features];
+    var times = new double[epochs];
+    for (int e = 0; e < epochs; e++)
+    {
+        for (int i = 0; i < scores.Length; i++)
+            scores[i] = (float)(random.NextDouble() * 2 - 1);
+        var map = new AttributionMap(rows, features, (float[])scores.Clone(), null, null);
+        times[e] = Measure.Once(() => detector.Observe(new EpochEvidence(e, new Dictionary<string, double> { ["validation_loss"] = 0.5 }, map, [])));
+    }
+    int window = Math.Max(5, epochs / 10);
+    double early = Measure.Median(times.Skip(1).Take(window).ToArray());
+    double late = Measure.Median(times.Skip(epochs - window).ToArray());
+    Add(new Figure("6", Invariant($"detector per epoch, {features} features, epoch {epochs}"), late, "s", "", "median of the last tenth"));
+    Add(new Figure("6", Invariant($"detector late / early epochs ({epochs} epochs)"), late / early, "ratio", "≈ 1 (flat)", "median of last tenth over median of first tenth"));
+}
+
+// Table and files.
+var table = new StringBuilder();
+table.AppendLine("| # | figure | value | unit | target | how |");
+table.AppendLine("|---|---|---|---|---|---|");
+foreach (var f in figures)
+    table.AppendLine(Invariant($"| {f.Group} | {f.Name} | {f.Value:G4} | {f.Unit} | {f.Target} | {f.Note} |"));
+Console.WriteLine();
+Console.WriteLine(table);
+var csv = new StringBuilder("group,name,value,unit,target,note\n");
+foreach (var f in figures)
+    csv.AppendLine(string.Join(",", new[] { f.Group, f.Name, f.Value.ToString("R", CultureInfo.InvariantCulture), f.Unit, f.Target, f.Note }.Select(Quote)));
+File.WriteAllText(Path.Combine(outFolder, "figures.csv"), csv.ToString());
+File.WriteAllText(Path.Combine(outFolder, "figures.json"), JsonSerializer.Serialize(figures, new JsonSerializerOptions { WriteIndented = true, NumberHandling = System.Text.Json.Serialization.JsonNumberHandling.AllowNamedFloatingPointLiterals }));
+File.WriteAllText(Path.Combine(outFolder, "figures.md"), table.ToString());
+Console.WriteLine($"wrote {Path.Combine(outFolder, "figures.csv")}, figures.json and figures.md");
+return 0;
+
+// Seconds to store one demo-model epoch as the monitor does (maps 256 × 13, snapshot, statistics, verdict, epoch), median.
+static double DemoEpochWrite(GreenhouseNet model, GreenhouseScenario scenario, int repeats)
+{
+    using var temp = new TempStore();
+    using var monitor = new TrainingMonitor(new MonitorOptions
+    {
+        StorePath = temp.Path,
+        RunName = "write",
+        Schema = model.Schema,
+        Probe = ProbeSet.Select(scenario.Validation.Rows, scenario.Training.Rows, 128, 1),
+        Methods = [new IntegratedGradients(64)],
+    });
+    monitor.EndEpoch(model, 0, new EpochMetrics(0.5, 0.5));
+    var stored = monitor.Store.Maps(monitor.Run.Id)[0];
+    var statistics = monitor.Store.StatisticsOf(monitor.Run.Id)[0];
+    var verdict = monitor.Store.Verdicts(monitor.Run.Id)[0];
+    var epochDocument = monitor.Store.Epochs(monitor.Run.Id)[0];
+    using var weights = monitor.Store.ReadSnapshot(epochDocument.SnapshotId!);
+    var bytes = weights.ToArray();
+    int epoch = 1;
+    return Measure.Interleaved(repeats, () =>
+    {
+        int e = epoch++;
+        monitor.Store.InOneTransaction(() =>
+        {
+            monitor.Store.WriteMap(stored with { Id = 0, Epoch = e });
+            using var snapshot = new MemoryStream(bytes);
+            monitor.Store.SaveSnapshot(monitor.Run.Id, e, snapshot);
+            monitor.Store.WriteStatistics(statistics with { Id = 0, Epoch = e });
+            monitor.Store.WriteVerdict(verdict with { Id = 0, Epoch = e });
+            monitor.Store.WriteEpoch(epochDocument with { Id = 0, Epoch = e });
+        });
+    })[0];
+}
+
+static string Quote(string value) => value.IndexOfAny([',', '"', '\n']) >= 0 ? "\"" + value.Replace("\"", "\"\"", StringComparison.Ordinal) + "\"" : value;
+
+static ProbeRows RandomRows(int dense, int rows)
+{
+    var random = new Random(9);
+    return new ProbeRows(Enumerable.Range(0, rows * dense).Select(_ => (float)(random.NextDouble() * 2 - 1)).ToArray(), dense, [], 0, null);
+}
+
+static Tensor EncodeRows(IWatchedModel model, ProbeRows rows, int count)
+{
+    using var noGrad = torch.no_grad();
+    var dense = torch.tensor(rows.Dense, [rows.Count, rows.DenseCount])[..count];
+    var cats = torch.tensor(rows.Categorical, [rows.Count, rows.CategoricalCount])[..count];
+    return model.Encode(dense, cats).detach();
+}
+
+// Trains the demo model for a few epochs (so benchmarks see trained weights) and returns training rows per second.
+static double Train(GreenhouseNet model, GreenhouseScenario scenario, int epochs)
+{
+    var rows = scenario.Training.Rows;
+    using var dense = torch.tensor(rows.Dense, [rows.Count, rows.DenseCount]);
+    using var cats = torch.tensor(rows.Categorical, [rows.Count, rows.CategoricalCount]);
+    using var labels = torch.tensor(rows.Labels!);
+    using var optimizer = torch.optim.Adam(model.parameters(), 1e-3);
+    var seconds = new List<double>();
+    for (int e = 0; e < epochs; e++)
+    {
+        model.train();
+        seconds.Add(Measure.Once(() =>
+        {
+            for (int start = 0; start < rows.Count; start += 32)
+            {
+                using var scope = torch.NewDisposeScope();
+                long end = Math.Min(rows.Count, start + 32);
+                var loss = nn.functional.binary_cross_entropy_with_logits(model.call(dense[start..(int)end], cats[start..(int)end]).squeeze(1), labels[start..(int)end]);
+                optimizer.zero_grad();
+                loss.backward();
+                optimizer.step();
+            }
+        }));
+    }
+    return rows.Count / Measure.Median(seconds.Skip(1).ToArray());
+}
+
+/// <summary>A store file in a temporary folder, deleted at dispose.</summary>
+internal sealed class TempStore : IDisposable
+{
+    private readonly string _folder = System.IO.Path.Combine(System.IO.Path.GetTempPath(), "driftwatch-bench-" + Guid.NewGuid().ToString("N")[..10]);
+
+    public TempStore() => Directory.CreateDirectory(_folder);
+
+    public string Path => System.IO.Path.Combine(_folder, "store.litedb");
+
+    public void Dispose()
+    {
+        try
+        {
+            Directory.Delete(_folder, recursive: true);
+        }
+        catch (IOException)
+        {
+        }
+    }
+}
