@@ -158,8 +158,15 @@ using (var temp = new TempStore())
             {
                 store.WriteMap(new MapDocument
                 {
-                    RunId = run.Id, Epoch = e, Method = "integrated-gradients", Target = "logit", Rows = rows, Features = features,
-                    Scores = FloatBytes.FromFloats(scores), Deltas = FloatBytes.FromFloats(map.Deltas), OutputGaps = FloatBytes.FromFloats(map.OutputGaps),
+                    RunId = run.Id,
+                    Epoch = e,
+                    Method = "integrated-gradients",
+                    Target = "logit",
+                    Rows = rows,
+                    Features = features,
+                    Scores = FloatBytes.FromFloats(scores),
+                    Deltas = FloatBytes.FromFloats(map.Deltas),
+                    OutputGaps = FloatBytes.FromFloats(map.OutputGaps),
                     HeldOut = new ImportanceDocument { MeanAbsolute = heldOut.MeanAbsolute, MeanSigned = heldOut.MeanSigned, Share = heldOut.Share, Alignment = heldOut.Alignment },
                     Training = new ImportanceDocument { MeanAbsolute = training.MeanAbsolute, MeanSigned = training.MeanSigned, Share = training.Share, Alignment = training.Alignment },
                 });
