@@ -24,7 +24,7 @@ public sealed class TrainingMonitor : IDisposable
     private readonly MonitorOptions _options;
     private readonly RunStore _store;
     private readonly RunDocument _run;
-    private DivergenceDetector _detector;
+    private CrossMethodDetector _detector;
     private int _lastEpoch;
     private bool _modelChecked;
 
@@ -83,7 +83,9 @@ public sealed class TrainingMonitor : IDisposable
             string? snapshot = _options.SaveSnapshots ? SaveSnapshot(model, epoch, failures) : null;
             var values = metrics.ToDictionary();
             var primary = maps.FirstOrDefault(m => m.Method == _options.Methods[0].Name);
-            var assessment = _detector.Observe(new EpochEvidence(epoch, values, primary?.Map, [.. failures]));
+            var assessment = _detector.Observe(
+                new EpochEvidence(epoch, values, primary?.Map, [.. failures]),
+                maps.ToDictionary(m => m.Method, m => m.Map, StringComparer.Ordinal));
 
             // The epoch's document goes last: it marks the epoch complete for readers and for a resumed run.
             _store.WriteStatistics(new StatisticsDocument { RunId = _run.Id, Epoch = epoch, Statistics = assessment.Statistics });
@@ -142,7 +144,8 @@ public sealed class TrainingMonitor : IDisposable
                 throw new DriftWatchException($"encode returned shape [{string.Join(", ", features.shape)}]; expected [{probe.Count}, {_options.Schema.ColumnCount}] as the schema says");
             var baseline = _options.Baseline.Resolve(features[TensorIndex.Slice(probe.HeldOutCount, probe.Count)], _options.Schema.ColumnCount);
             var target = _options.Target;
-            var input = new AttributionInput(f => target.Select(model.Score(f)), features, baseline, _options.ChunkRows);
+            var input = new AttributionInput(f => target.Select(model.Score(f)), features, baseline, _options.ChunkRows).WithSchema(_options.Schema);
+            var figures = new Dictionary<string, QualityFigures>(StringComparer.Ordinal);
 
             foreach (var method in _options.Methods)
             {
@@ -168,13 +171,24 @@ public sealed class TrainingMonitor : IDisposable
                         Training = ToDocument(training),
                         Seconds = seconds,
                         Evaluations = columns.Evaluations,
+                        Settings = new Dictionary<string, string>(method.Settings, StringComparer.Ordinal),
                     });
                     stored.Add(new StoredMap(method.Name, map));
+                    if (_options.Quality is not null)
+                        MeasureQuality(method, input, columns, epoch, figures, failures);
                 }
                 catch (Exception e) when (!_options.Strict)
                 {
                     failures.Add(Failure(epoch, method.Name, e));
                 }
+            }
+            try
+            {
+                WriteQuality(epoch, stored, figures);
+            }
+            catch (Exception e) when (!_options.Strict)
+            {
+                failures.Add(Failure(epoch, "method agreement", e));
             }
         }
         finally
@@ -184,6 +198,47 @@ public sealed class TrainingMonitor : IDisposable
             module.train(wasTraining);
         }
         return stored;
+    }
+
+    private void MeasureQuality(IAttributionMethod method, AttributionInput input, ColumnAttribution columns, int epoch, Dictionary<string, QualityFigures> figures, List<Finding> failures)
+    {
+        try
+        {
+            figures[method.Name] = MapQuality.Measure(method, input, columns, _options.Quality!);
+        }
+        catch (Exception e) when (!_options.Strict)
+        {
+            failures.Add(Failure(epoch, method.Name + " quality figures", e));
+        }
+    }
+
+    // Per map: its agreement with the other methods' maps of this epoch and its quality figures, when either exists.
+    private void WriteQuality(int epoch, List<StoredMap> stored, Dictionary<string, QualityFigures> figures)
+    {
+        if (stored.Count < 2 && figures.Count == 0)
+            return;
+        foreach (var map in stored)
+        {
+            var quality = figures.GetValueOrDefault(map.Method);
+            _store.WriteQuality(new MapQualityDocument
+            {
+                RunId = _run.Id,
+                Epoch = epoch,
+                Method = map.Method,
+                Target = _options.Target.Label,
+                Agreement = stored.Where(o => o.Method != map.Method)
+                    .Select(o => new AgreementDocument { Method = o.Method, Spearman = MethodAgreement.Spearman(map.Map, o.Map, _options.Probe.HeldOutCount) })
+                    .ToList(),
+                Measured = quality is not null,
+                Infidelity = quality?.Infidelity ?? double.NaN,
+                RelativeInfidelity = quality?.RelativeInfidelity ?? double.NaN,
+                MaxSensitivity = quality?.MaxSensitivity ?? double.NaN,
+                RelativeMaxSensitivity = quality?.RelativeMaxSensitivity ?? double.NaN,
+                QualityRows = quality?.Rows ?? 0,
+                QualitySettings = quality is null ? [] : new Dictionary<string, string>(_options.Quality!.ToSettings(), StringComparer.Ordinal),
+                QualityEvaluations = quality?.Evaluations ?? 0,
+            });
+        }
     }
 
     private string? SaveSnapshot(IWatchedModel model, int epoch, List<Finding> failures)
@@ -223,12 +278,13 @@ public sealed class TrainingMonitor : IDisposable
     }
 
     // A fresh detector fed the stored epochs before the given one, so a resumed run judges as if never interrupted.
-    private DivergenceDetector CatchUp(int before)
+    private CrossMethodDetector CatchUp(int before)
     {
-        var detector = new DivergenceDetector(RunContext.FromRun(_run), _options.Policy);
-        var maps = _store.Maps(_run.Id, _options.Methods[0].Name).ToDictionary(m => m.Epoch);
+        var methods = _options.Methods.Select(m => m.Name).ToList();
+        var detector = new CrossMethodDetector(RunContext.FromRun(_run), _options.Policy, methods);
+        var maps = RunReview.MapsByEpoch(_store, _run.Id, methods);
         foreach (var stored in _store.Epochs(_run.Id).Where(e => e.Epoch < before))
-            detector.Observe(RunReview.Evidence(stored, maps.GetValueOrDefault(stored.Epoch)));
+            RunReview.Observe(detector, stored, maps.GetValueOrDefault(stored.Epoch));
         return detector;
     }
 
@@ -274,6 +330,9 @@ public sealed class TrainingMonitor : IDisposable
             Target = options.Target.Label,
             Baseline = options.Baseline.Label,
             Policy = options.Policy.ToJson(),
+            ModelFactory = options.Model?.FactoryName ?? "",
+            ModelSettings = options.Model is null ? [] : new Dictionary<string, string>(options.Model.Settings, StringComparer.Ordinal),
+            BaselineValues = options.Baseline.Values is null ? null : FloatBytes.FromFloats(options.Baseline.Values),
             TrainingValueCounts = options.TrainingValueCounts.ToDictionary(
                 kv => kv.Key,
                 kv => kv.Value.ToDictionary(v => v.Key.ToString(CultureInfo.InvariantCulture), v => v.Value)),
@@ -293,6 +352,13 @@ public sealed class TrainingMonitor : IDisposable
         static string Methods(RunDocument r) => string.Join("; ", r.Methods.Select(m => m.Name + "(" + string.Join(",", m.Settings.OrderBy(s => s.Key, StringComparer.Ordinal).Select(s => s.Key + "=" + s.Value)) + ")"));
         if (Methods(existing) != Methods(wanted))
             throw new DriftWatchException(Mismatch("attribution method settings"));
+        if (existing.ModelFactory.Length == 0 && wanted.ModelFactory.Length > 0)
+        {
+            // A run begun without a model recipe learns it on resume, so its snapshots can be re-attributed.
+            existing.ModelFactory = wanted.ModelFactory;
+            existing.ModelSettings = wanted.ModelSettings;
+            _store.UpdateRun(existing);
+        }
         return existing;
     }
 }

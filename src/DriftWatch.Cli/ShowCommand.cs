@@ -33,10 +33,15 @@ internal static class ShowCommand
             var output = parse.InvocationConfiguration.Output;
             RunHistory history;
             string path;
+            IReadOnlyList<Storage.MapQualityDocument> quality;
+            List<string> reattributed;
             using (var runStore = CommonOptions.OpenStore(parse, store))
             {
                 history = RunHistory.Load(runStore, parse.GetValue(run)!, parse.GetValue(method)!);
                 path = runStore.Path;
+                var document = runStore.GetRun(history.RunName);
+                quality = runStore.Quality(document.Id, history.Method);
+                reattributed = runStore.MapMethods(document.Id).Where(m => !history.Methods.Contains(m)).ToList();
             }
             WriteHeader(output, history, path);
             if (history.Epochs.IsEmpty)
@@ -47,6 +52,8 @@ internal static class ShowCommand
             }
             output.WriteLine();
             WriteTable(output, history, parse.GetValue(top));
+            output.WriteLine();
+            TrustSection.Write(output, history.Method, quality, reattributed);
             output.WriteLine();
             WriteReasons(output, history);
             return ExitCodes.Fine;

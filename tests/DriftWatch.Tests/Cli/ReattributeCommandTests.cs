@@ -1,0 +1,92 @@
+using System.Security.Cryptography;
+using DriftWatch.Cli;
+using DriftWatch.Demo.Greenhouse;
+using DriftWatch.Storage;
+using DriftWatch.Tests.Demo;
+using DriftWatch.Tests.Support;
+using Xunit;
+
+namespace DriftWatch.Tests.Cli;
+
+[Collection(DemoStoreCollection.Name)]
+public sealed class ReattributeCommandTests
+{
+    private readonly DemoStoreFixture _fixture;
+
+    public ReattributeCommandTests(DemoStoreFixture fixture) => _fixture = fixture;
+
+    private static (int Code, string Output, string Error) Run(params string[] args)
+    {
+        var output = new StringWriter();
+        var error = new StringWriter();
+        int code = CliApp.Run(args, output, error);
+        return (code, output.ToString(), error.ToString());
+    }
+
+    private static string Hash(string path) => Convert.ToHexString(SHA256.HashData(File.ReadAllBytes(path)));
+
+    [Fact]
+    public void ReattributeStoresNewMapsThatShowListsWithTheirAgreementAndQuality()
+    {
+        using var temp = new TempFolder();
+        string store = temp.File("copy.litedb");
+        File.Copy(_fixture.StorePath, store);
+        string assembly = typeof(GreenhouseNetFactory).Assembly.Location;
+
+        var (code, output, error) = Run("reattribute", DemoStoreFixture.CleanRun, "--store", store, "--method", "smoothgrad",
+            "--setting", "samples=4", "--epochs", "2..3", "--quality", "--model-assembly", assembly);
+
+        Assert.True(code == ExitCodes.Fine, error);
+        Assert.Contains("2 of 2 epochs re-attributed with smoothgrad (noise=0.15, samples=4, seed=0), stored as 're-smoothgrad'", output);
+        Assert.Contains("--method re-smoothgrad", output);
+        Assert.Equal("", error); // progress is for terminals only
+
+        var show = Run("show", DemoStoreFixture.CleanRun, "--store", store, "--method", "re-smoothgrad");
+        Assert.Equal(ExitCodes.Fine, show.Code);
+        Assert.Contains("Trust in the re-smoothgrad maps", show.Output);
+        Assert.Matches(@"(?m)^\s+2\s+integrated-gradients -?\d\.\d\d\s+\d+\.\d{3}\s+\d+\.\d{3}\s+32$", show.Output);
+        var original = Run("show", DemoStoreFixture.CleanRun, "--store", store);
+        Assert.Contains("Re-attributed maps of this run (show them with --method NAME): re-smoothgrad", original.Output);
+
+        var upTo = Run("reattribute", DemoStoreFixture.CleanRun, "--store", store, "--method", "saliency", "--epochs", "..1", "--model-assembly", assembly);
+        var from = Run("reattribute", DemoStoreFixture.CleanRun, "--store", store, "--method", "smoothgrad", "--setting", "samples=4", "--epochs", "3..");
+        Assert.Contains("1 of 1 epochs re-attributed with saliency", upTo.Output);
+        Assert.Contains("already stored under that name, left as they were: epochs 3", from.Output); // found without --model-assembly: already loaded
+        Assert.DoesNotContain("already stored", upTo.Output);
+    }
+
+    [Theory]
+    [InlineData("--method", "lime")]
+    [InlineData("--method", "integrated-gradients", "--as", "integrated-gradients")]
+    [InlineData("--method", "smoothgrad", "--setting", "sigma=0.2")]
+    [InlineData("--method", "saliency", "--epochs", "5..2")]
+    [InlineData("--method", "saliency", "--epochs", "40..")]
+    public void BadInputExitsTwoWithOneLineAndLeavesTheStoreAsItWas(params string[] options)
+    {
+        using var temp = new TempFolder();
+        string store = temp.File("copy.litedb");
+        File.Copy(_fixture.StorePath, store);
+        string before = Hash(store);
+
+        var (code, output, error) = Run(["reattribute", DemoStoreFixture.CleanRun, "--store", store, .. options]);
+
+        Assert.Equal(ExitCodes.BadInput, code);
+        Assert.Equal("", output);
+        Assert.Single(error.Trim().Split('\n'));
+        Assert.StartsWith("error: ", error);
+        Assert.Equal(before, Hash(store));
+    }
+
+    [Fact]
+    public void AMissingStoreIsNotCreated()
+    {
+        using var temp = new TempFolder();
+        string store = temp.File("none.litedb");
+
+        var (code, _, error) = Run("reattribute", "any", "--store", store, "--method", "saliency");
+
+        Assert.Equal(ExitCodes.BadInput, code);
+        Assert.Contains("does not exist", error);
+        Assert.False(File.Exists(store));
+    }
+}
