@@ -34,6 +34,7 @@ internal static class ShowCommand
             RunHistory history;
             string path;
             IReadOnlyList<Storage.MapQualityDocument> quality;
+            IReadOnlyList<Storage.MapDocument> maps;
             List<string> reattributed;
             using (var runStore = CommonOptions.OpenStore(parse, store))
             {
@@ -41,6 +42,7 @@ internal static class ShowCommand
                 path = runStore.Path;
                 var document = runStore.GetRun(history.RunName);
                 quality = runStore.Quality(document.Id, history.Method);
+                maps = runStore.Maps(document.Id);
                 reattributed = runStore.MapMethods(document.Id).Where(m => !history.Methods.Contains(m)).ToList();
             }
             WriteHeader(output, history, path);
@@ -53,7 +55,7 @@ internal static class ShowCommand
             output.WriteLine();
             WriteTable(output, history, parse.GetValue(top));
             output.WriteLine();
-            TrustSection.Write(output, history.Method, quality, reattributed);
+            TrustSection.Write(output, history.Method, maps, quality, reattributed);
             output.WriteLine();
             WriteReasons(output, history);
             return ExitCodes.Fine;

@@ -35,24 +35,26 @@ public sealed class ReattributeCommandTests
 
         var (code, output, error) = Run("reattribute", DemoStoreFixture.CleanRun, "--store", store, "--method", "smoothgrad",
             "--setting", "samples=4", "--epochs", "2..3", "--quality", "--model-assembly", assembly);
+        var from = Run("reattribute", DemoStoreFixture.CleanRun, "--store", store, "--method", "smoothgrad", "--setting", "samples=4", "--epochs", "3..");
+        var upTo = Run("reattribute", DemoStoreFixture.CleanRun, "--store", store, "--method", "saliency", "--epochs", "..1", "--model-assembly", assembly);
 
         Assert.True(code == ExitCodes.Fine, error);
         Assert.Contains("2 of 2 epochs re-attributed with smoothgrad (noise=0.15, samples=4, seed=0), stored as 're-smoothgrad'", output);
         Assert.Contains("--method re-smoothgrad", output);
         Assert.Equal("", error); // progress is for terminals only
+        Assert.Contains("already stored under that name, left as they were: epochs 3", from.Output); // factory found without --model-assembly: already loaded
+        Assert.Contains("1 of 1 epochs re-attributed with saliency", upTo.Output);
+        Assert.DoesNotContain("already stored", upTo.Output);
 
         var show = Run("show", DemoStoreFixture.CleanRun, "--store", store, "--method", "re-smoothgrad");
         Assert.Equal(ExitCodes.Fine, show.Code);
         Assert.Contains("Trust in the re-smoothgrad maps", show.Output);
-        Assert.Matches(@"(?m)^\s+2\s+integrated-gradients -?\d\.\d\d\s+\d+\.\d{3}\s+\d+\.\d{3}\s+32$", show.Output);
+        Assert.Matches(@"(?m)^epoch\s+ρ integrated-gradients\s+ρ re-saliency\s+infidelity\s+max-sensitivity$", show.Output);
+        Assert.Matches(@"(?m)^\s+2\s+-?\d\.\d\d\s+-\s+\d+\.\d{3}\s+\d+\.\d{3}$", show.Output);
+        Assert.Matches(@"(?m)^\s+4\s+-?\d\.\d\d\s+-\s+-\s+-$", show.Output); // re-attributed without quality figures
         var original = Run("show", DemoStoreFixture.CleanRun, "--store", store);
-        Assert.Contains("Re-attributed maps of this run (show them with --method NAME): re-smoothgrad", original.Output);
-
-        var upTo = Run("reattribute", DemoStoreFixture.CleanRun, "--store", store, "--method", "saliency", "--epochs", "..1", "--model-assembly", assembly);
-        var from = Run("reattribute", DemoStoreFixture.CleanRun, "--store", store, "--method", "smoothgrad", "--setting", "samples=4", "--epochs", "3..");
-        Assert.Contains("1 of 1 epochs re-attributed with saliency", upTo.Output);
-        Assert.Contains("already stored under that name, left as they were: epochs 3", from.Output); // found without --model-assembly: already loaded
-        Assert.DoesNotContain("already stored", upTo.Output);
+        Assert.Contains("Re-attributed maps of this run (show them with --method NAME): re-saliency, re-smoothgrad", original.Output);
+        Assert.Matches(@"(?m)^\s+1\s+-?\d\.\d\d\s+-$", original.Output); // integrated-gradients against re-saliency (epoch 1 only) and re-smoothgrad
     }
 
     [Theory]
