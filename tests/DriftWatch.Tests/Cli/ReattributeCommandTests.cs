@@ -91,4 +91,31 @@ public sealed class ReattributeCommandTests
         Assert.Contains("does not exist", error);
         Assert.False(File.Exists(store));
     }
+
+    [Fact]
+    public void ARunWithoutAModelRecipeOrAWrongAssemblyIsRefusedWithWhatToDo()
+    {
+        using var temp = new TempFolder();
+        string store = temp.File("copy.litedb");
+        File.Copy(_fixture.StorePath, store);
+        using (var writing = RunStore.OpenForWriting(store))
+        {
+            var run = writing.GetRun(DemoStoreFixture.LeakRun);
+            run.ModelFactory = "";
+            writing.UpdateRun(run);
+        }
+        string notAnAssembly = temp.File("weights.dll");
+        File.WriteAllText(notAnAssembly, "not a .NET assembly");
+
+        var noRecipe = Run("reattribute", DemoStoreFixture.LeakRun, "--store", store, "--method", "saliency");
+        var wrongFile = Run("reattribute", DemoStoreFixture.CleanRun, "--store", store, "--method", "saliency", "--model-assembly", notAnAssembly);
+        var wrongAssembly = Run("reattribute", DemoStoreFixture.CleanRun, "--store", store, "--method", "saliency", "--model-assembly", typeof(RunStore).Assembly.Location);
+
+        Assert.Equal(ExitCodes.BadInput, noRecipe.Code);
+        Assert.Contains("did not record how to rebuild its model; set MonitorOptions.Model", noRecipe.Error);
+        Assert.Equal(ExitCodes.BadInput, wrongFile.Code);
+        Assert.Contains("is not a .NET assembly", wrongFile.Error);
+        Assert.Equal(ExitCodes.BadInput, wrongAssembly.Code);
+        Assert.Contains("has no type 'DriftWatch.Demo.Greenhouse.GreenhouseNetFactory'", wrongAssembly.Error);
+    }
 }
