@@ -36,6 +36,7 @@ internal static class GreenhouseTraining
             Probe = probe,
             Methods = [new Attribution.IntegratedGradients(options.Steps)],
             TrainingValueCounts = scenario.TrainingValueCounts,
+            Model = GreenhouseNetFactory.RecipeFor(model, scenario),
             Description = string.Create(CultureInfo.InvariantCulture,
                 $"DriftWatch demo, scenario {GreenhouseVariants.NameOf(options.Variant)}: {scenario.Describe()}. Model: embeddings {model.EmbeddingWidth} wide, MLP {model.Hidden}-{model.Hidden} ReLU, one logit; Adam lr {GreenhouseTrainer.LearningRate}, batch {GreenhouseTrainer.BatchSize}."),
         };

@@ -52,6 +52,12 @@ public sealed record MonitorOptions
     public ImmutableDictionary<string, ImmutableDictionary<long, int>> TrainingValueCounts { get; init; } =
         ImmutableDictionary<string, ImmutableDictionary<long, int>>.Empty;
 
+    /// <summary>How to rebuild the model from its stored settings (a factory type and its settings), so <c>driftwatch reattribute</c> can load the snapshots later. Default: none.</summary>
+    public ModelRecipe? Model { get; init; }
+
+    /// <summary>Measure each map's quality figures (infidelity, max-sensitivity) every attributed epoch. Default: null, off (they cost extra attribution).</summary>
+    public QualityOptions? Quality { get; init; }
+
     /// <summary>The clock. Default: the system clock.</summary>
     public TimeProvider Time { get; init; } = TimeProvider.System;
 
@@ -81,6 +87,23 @@ public sealed record MonitorOptions
                 $"probe rows have {Probe.Rows.DenseCount} dense and {Probe.Rows.CategoricalCount} categorical inputs but the schema has {Schema.DenseCount} and {Schema.CategoricalCount}; build the probe from the model's own input rows");
         if (Baseline.Kind == BaselineKind.Given && Baseline.Values!.Length != Schema.ColumnCount)
             throw new DriftWatchException($"given baseline has {Baseline.Values.Length} values but the schema has {Schema.ColumnCount} feature-space columns");
+        Quality?.Validate();
+        if (Model is not null)
+        {
+            // Building draws fresh weights; the caller's random stream must not move because the monitor checked a recipe.
+            using var state = TorchSharp.torch.random.get_rng_state();
+            var built = Model.Build();
+            try
+            {
+                if (!built.Schema.Names.SequenceEqual(Schema.Names) || built.Schema.ColumnCount != Schema.ColumnCount)
+                    throw new DriftWatchException($"the model that Model's factory '{Model.FactoryName}' builds from its settings has another feature schema than Schema; give the factory the settings of the model you train");
+            }
+            finally
+            {
+                built.Module.Dispose();
+                TorchSharp.torch.random.set_rng_state(state);
+            }
+        }
         foreach (var name in TrainingValueCounts.Keys)
         {
             if (!Schema.Features.Any(f => f.Name == name && f.Kind == FeatureKind.Categorical))

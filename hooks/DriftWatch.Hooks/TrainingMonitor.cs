@@ -24,7 +24,7 @@ public sealed class TrainingMonitor : IDisposable
     private readonly MonitorOptions _options;
     private readonly RunStore _store;
     private readonly RunDocument _run;
-    private DivergenceDetector _detector;
+    private CrossMethodDetector _detector;
     private int _lastEpoch;
     private bool _modelChecked;
 
@@ -83,7 +83,9 @@ public sealed class TrainingMonitor : IDisposable
             using var weights = _options.SaveSnapshots ? Serialise(model, epoch, failures) : null;
             var values = metrics.ToDictionary();
             var primary = maps.FirstOrDefault(m => m.Document.Method == _options.Methods[0].Name);
-            var assessment = _detector.Observe(new EpochEvidence(epoch, values, primary?.Map, [.. failures]));
+            var assessment = _detector.Observe(
+                new EpochEvidence(epoch, values, primary?.Map, [.. failures]),
+                maps.ToDictionary(m => m.Document.Method, m => m.Map, StringComparer.Ordinal));
 
             // One transaction per epoch: maps, snapshot, statistics, verdict and the epoch's document (the marker
             // readers and a resumed run look for) land together or not at all, and the file is opened once.
@@ -92,7 +94,11 @@ public sealed class TrainingMonitor : IDisposable
                 _store.InOneTransaction(() =>
                 {
                     foreach (var map in maps)
+                    {
                         _store.WriteMap(map.Document);
+                        if (map.Quality is not null)
+                            _store.WriteQuality(map.Quality);
+                    }
                     string? snapshot = weights is null ? null : _store.SaveSnapshot(_run.Id, epoch, weights);
                     _store.WriteStatistics(new StatisticsDocument { RunId = _run.Id, Epoch = epoch, Statistics = assessment.Statistics });
                     _store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, _run.Id));
@@ -128,7 +134,11 @@ public sealed class TrainingMonitor : IDisposable
     /// <inheritdoc />
     public void Dispose() => _store.Dispose();
 
-    private sealed record StoredMap(MapDocument Document, AttributionMap Map);
+    private sealed record StoredMap(MapDocument Document, AttributionMap Map)
+    {
+        /// <summary>Agreement with the epoch's other maps and quality figures, when either exists.</summary>
+        public MapQualityDocument? Quality { get; set; }
+    }
 
     private List<StoredMap> Attribute(IWatchedModel model, int epoch, List<Finding> failures)
     {
@@ -158,7 +168,8 @@ public sealed class TrainingMonitor : IDisposable
                 throw new DriftWatchException($"encode returned shape [{string.Join(", ", features.shape)}]; expected [{probe.Count}, {_options.Schema.ColumnCount}] as the schema says");
             var baseline = _options.Baseline.Resolve(features[TensorIndex.Slice(probe.HeldOutCount, probe.Count)], _options.Schema.ColumnCount);
             var target = _options.Target;
-            var input = new AttributionInput(f => target.Select(model.Score(f)), features, baseline, _options.ChunkRows);
+            var input = new AttributionInput(f => target.Select(model.Score(f)), features, baseline, _options.ChunkRows).WithSchema(_options.Schema);
+            var figures = new Dictionary<string, QualityFigures>(StringComparer.Ordinal);
 
             foreach (var method in _options.Methods)
             {
@@ -184,12 +195,23 @@ public sealed class TrainingMonitor : IDisposable
                         Training = ToDocument(training),
                         Seconds = seconds,
                         Evaluations = columns.Evaluations,
+                        Settings = new Dictionary<string, string>(method.Settings, StringComparer.Ordinal),
                     }, map));
+                    if (_options.Quality is not null)
+                        MeasureQuality(method, input, columns, epoch, figures, failures);
                 }
                 catch (Exception e) when (!_options.Strict)
                 {
                     failures.Add(Failure(epoch, method.Name, e));
                 }
+            }
+            try
+            {
+                BuildQuality(epoch, stored, figures);
+            }
+            catch (Exception e) when (!_options.Strict)
+            {
+                failures.Add(Failure(epoch, "method agreement", e));
             }
         }
         finally
@@ -199,6 +221,47 @@ public sealed class TrainingMonitor : IDisposable
             module.train(wasTraining);
         }
         return stored;
+    }
+
+    private void MeasureQuality(IAttributionMethod method, AttributionInput input, ColumnAttribution columns, int epoch, Dictionary<string, QualityFigures> figures, List<Finding> failures)
+    {
+        try
+        {
+            figures[method.Name] = MapQuality.Measure(method, input, columns, _options.Quality!);
+        }
+        catch (Exception e) when (!_options.Strict)
+        {
+            failures.Add(Failure(epoch, method.Name + " quality figures", e));
+        }
+    }
+
+    // Per map: its agreement with the other methods' maps of this epoch and its quality figures, when either exists.
+    private void BuildQuality(int epoch, List<StoredMap> stored, Dictionary<string, QualityFigures> figures)
+    {
+        if (stored.Count < 2 && figures.Count == 0)
+            return;
+        foreach (var map in stored)
+        {
+            var quality = figures.GetValueOrDefault(map.Document.Method);
+            map.Quality = new MapQualityDocument
+            {
+                RunId = _run.Id,
+                Epoch = epoch,
+                Method = map.Document.Method,
+                Target = _options.Target.Label,
+                Agreement = stored.Where(o => o.Document.Method != map.Document.Method)
+                    .Select(o => new AgreementDocument { Method = o.Document.Method, Spearman = MethodAgreement.Spearman(map.Map, o.Map, _options.Probe.HeldOutCount) })
+                    .ToList(),
+                Measured = quality is not null,
+                Infidelity = quality?.Infidelity ?? double.NaN,
+                RelativeInfidelity = quality?.RelativeInfidelity ?? double.NaN,
+                MaxSensitivity = quality?.MaxSensitivity ?? double.NaN,
+                RelativeMaxSensitivity = quality?.RelativeMaxSensitivity ?? double.NaN,
+                QualityRows = quality?.Rows ?? 0,
+                QualitySettings = quality is null ? [] : new Dictionary<string, string>(_options.Quality!.ToSettings(), StringComparer.Ordinal),
+                QualityEvaluations = quality?.Evaluations ?? 0,
+            };
+        }
     }
 
     // The weights in memory, before the epoch's transaction: a model that cannot be saved costs the snapshot, not the epoch.
@@ -240,12 +303,13 @@ public sealed class TrainingMonitor : IDisposable
     }
 
     // A fresh detector fed the stored epochs before the given one, so a resumed run judges as if never interrupted.
-    private DivergenceDetector CatchUp(int before)
+    private CrossMethodDetector CatchUp(int before)
     {
-        var detector = new DivergenceDetector(RunContext.FromRun(_run), _options.Policy);
-        var maps = _store.Maps(_run.Id, _options.Methods[0].Name).ToDictionary(m => m.Epoch);
+        var methods = _options.Methods.Select(m => m.Name).ToList();
+        var detector = new CrossMethodDetector(RunContext.FromRun(_run), _options.Policy, methods);
+        var maps = RunReview.MapsByEpoch(_store, _run.Id, methods);
         foreach (var stored in _store.Epochs(_run.Id).Where(e => e.Epoch < before))
-            detector.Observe(RunReview.Evidence(stored, maps.GetValueOrDefault(stored.Epoch)));
+            RunReview.Observe(detector, stored, maps.GetValueOrDefault(stored.Epoch));
         return detector;
     }
 
@@ -291,6 +355,9 @@ public sealed class TrainingMonitor : IDisposable
             Target = options.Target.Label,
             Baseline = options.Baseline.Label,
             Policy = options.Policy.ToJson(),
+            ModelFactory = options.Model?.FactoryName ?? "",
+            ModelSettings = options.Model is null ? [] : new Dictionary<string, string>(options.Model.Settings, StringComparer.Ordinal),
+            BaselineValues = options.Baseline.Values is null ? null : FloatBytes.FromFloats(options.Baseline.Values),
             TrainingValueCounts = options.TrainingValueCounts.ToDictionary(
                 kv => kv.Key,
                 kv => kv.Value.ToDictionary(v => v.Key.ToString(CultureInfo.InvariantCulture), v => v.Value)),
@@ -310,6 +377,13 @@ public sealed class TrainingMonitor : IDisposable
         static string Methods(RunDocument r) => string.Join("; ", r.Methods.Select(m => m.Name + "(" + string.Join(",", m.Settings.OrderBy(s => s.Key, StringComparer.Ordinal).Select(s => s.Key + "=" + s.Value)) + ")"));
         if (Methods(existing) != Methods(wanted))
             throw new DriftWatchException(Mismatch("attribution method settings"));
+        if (existing.ModelFactory.Length == 0 && wanted.ModelFactory.Length > 0)
+        {
+            // A run begun without a model recipe learns it on resume, so its snapshots can be re-attributed.
+            existing.ModelFactory = wanted.ModelFactory;
+            existing.ModelSettings = wanted.ModelSettings;
+            _store.UpdateRun(existing);
+        }
         return existing;
     }
 }

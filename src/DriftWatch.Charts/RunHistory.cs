@@ -118,11 +118,15 @@ public sealed class RunHistory
         ArgumentNullException.ThrowIfNull(runName);
         ArgumentNullException.ThrowIfNull(method);
         var run = store.GetRun(runName);
-        if (!run.Methods.Any(m => m.Name == method))
+        // Re-attributed maps are stored under their own method names beside the configured methods' maps.
+        var reattributed = run.Methods.Any(m => m.Name == method) ? [] : store.MapMethods(run.Id).Where(m => !run.Methods.Any(c => c.Name == m)).ToList();
+        if (!run.Methods.Any(m => m.Name == method) && !reattributed.Contains(method))
         {
             string known = run.Methods.Count == 0
                 ? "it records no methods"
                 : "its methods: " + string.Join(", ", run.Methods.Select(m => m.Name));
+            if (reattributed.Count > 0)
+                known += "; re-attributed: " + string.Join(", ", reattributed);
             throw new DriftWatchException($"run '{DisplayText.Clean(run.Name)}' was not attributed with method '{DisplayText.Clean(method)}'; {known}");
         }
 

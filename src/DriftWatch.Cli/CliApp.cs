@@ -49,9 +49,9 @@ public static class CliApp
         var store = CommonOptions.Store();
         var root = new RootCommand(
             "DriftWatch: read the run store a monitored training wrote; list runs, show their epochs and findings, render charts, "
-            + "and check the gate's verdict (exit 1 on Halt) for a scheduler. Attributions describe the model, not causes; a Halt is advice, not proof.\n"
+            + "check the gate's verdict (exit 1 on Halt) for a scheduler, and re-attribute stored snapshots with another method. Attributions describe the model, not causes; a Halt is advice, not proof.\n"
             + $"The store is --store PATH, else ${CommonOptions.StoreVariable}, else {CommonOptions.DefaultStoreFile} in the current folder; "
-            + "it is only read, never created or changed.\n"
+            + "only reattribute adds to it (new maps beside the originals); no command creates it or changes what is stored.\n"
             + ExitCodes.AllHelp)
         {
             store,
@@ -59,6 +59,7 @@ public static class CliApp
             ShowCommand.Create(store),
             ChartCommand.Create(store),
             CheckCommand.Create(store),
+            ReattributeCommand.Create(store),
         };
         return root;
     }

@@ -33,10 +33,17 @@ internal static class ShowCommand
             var output = parse.InvocationConfiguration.Output;
             RunHistory history;
             string path;
+            IReadOnlyList<Storage.MapQualityDocument> quality;
+            IReadOnlyList<Storage.MapDocument> maps;
+            List<string> reattributed;
             using (var runStore = CommonOptions.OpenStore(parse, store))
             {
                 history = RunHistory.Load(runStore, parse.GetValue(run)!, parse.GetValue(method)!);
                 path = runStore.Path;
+                var document = runStore.GetRun(history.RunName);
+                quality = runStore.Quality(document.Id, history.Method);
+                maps = runStore.Maps(document.Id);
+                reattributed = runStore.MapMethods(document.Id).Where(m => !history.Methods.Contains(m)).ToList();
             }
             WriteHeader(output, history, path);
             if (history.Epochs.IsEmpty)
@@ -47,6 +54,8 @@ internal static class ShowCommand
             }
             output.WriteLine();
             WriteTable(output, history, parse.GetValue(top));
+            output.WriteLine();
+            TrustSection.Write(output, history.Method, maps, quality, reattributed);
             output.WriteLine();
             WriteReasons(output, history);
             return ExitCodes.Fine;

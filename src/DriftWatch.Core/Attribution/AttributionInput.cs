@@ -17,6 +17,39 @@ public sealed record AttributionInput(Func<Tensor, Tensor> Score, Tensor Inputs,
 
     /// <summary>The baseline broadcast to <c>[rows, columns]</c>.</summary>
     public Tensor BaselineRows() => Baseline.dim() == 1 ? Baseline.unsqueeze(0).expand(Rows, Columns) : Baseline;
+
+    /// <summary>Per feature-space column, the index of the feature group that owns it (a categorical's embedding columns share one); null when every column is its own group.</summary>
+    /// <remarks>Perturbation methods (ablation, Shapley sampling) switch whole groups at once; gradient methods ignore it.</remarks>
+    public int[]? ColumnOwners { get; init; }
+
+    /// <summary>The same input with the column ownership of <paramref name="schema"/>.</summary>
+    public AttributionInput WithSchema(Model.FeatureSchema schema)
+    {
+        ArgumentNullException.ThrowIfNull(schema);
+        return this with { ColumnOwners = schema.ColumnOwners() };
+    }
+
+    /// <summary>The feature-space columns of each group, in group order.</summary>
+    /// <exception cref="DriftWatchException"><see cref="ColumnOwners"/> has the wrong length or leaves a group without columns.</exception>
+    public int[][] Groups()
+    {
+        if (ColumnOwners is null)
+            return Enumerable.Range(0, Columns).Select(c => new[] { c }).ToArray();
+        if (ColumnOwners.Length != Columns)
+            throw new DriftWatchException($"column owners name {ColumnOwners.Length} columns but the feature space has {Columns}; pass the schema the model's encode step follows");
+        int groups = ColumnOwners.Length == 0 ? 0 : ColumnOwners.Max() + 1;
+        var columns = Enumerable.Range(0, groups).Select(_ => new List<int>()).ToArray();
+        for (int c = 0; c < ColumnOwners.Length; c++)
+        {
+            if (ColumnOwners[c] < 0)
+                throw new DriftWatchException($"column {c} has owner {ColumnOwners[c]}; owners are feature indexes from 0");
+            columns[ColumnOwners[c]].Add(c);
+        }
+        int empty = Array.FindIndex(columns, g => g.Count == 0);
+        if (empty >= 0)
+            throw new DriftWatchException($"feature group {empty} owns no column; owners must number the groups 0 to {groups - 1} without gaps");
+        return columns.Select(g => g.ToArray()).ToArray();
+    }
 }
 
 /// <summary>Per-column scores for every probe row, with the path method's convergence evidence.</summary>

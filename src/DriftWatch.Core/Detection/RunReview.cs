@@ -42,10 +42,46 @@ public static class RunReview
         ArgumentNullException.ThrowIfNull(store);
         ArgumentNullException.ThrowIfNull(run);
         ArgumentNullException.ThrowIfNull(policy);
-        var detector = new DivergenceDetector(RunContext.FromRun(run), policy);
-        var maps = store.Maps(run.Id, PrimaryMethod(run)).ToDictionary(m => m.Epoch);
+        var methods = ConfiguredMethods(run);
+        var detector = new CrossMethodDetector(RunContext.FromRun(run), policy, methods);
+        var maps = MapsByEpoch(store, run.Id, methods);
         return store.Epochs(run.Id)
-            .Select(e => detector.Observe(Evidence(e, maps.GetValueOrDefault(e.Epoch))))
+            .Select(e => Observe(detector, e, maps.GetValueOrDefault(e.Epoch)))
             .ToList();
+    }
+
+    /// <summary>The run's configured methods' names, the primary first.</summary>
+    public static IReadOnlyList<string> ConfiguredMethods(RunDocument run)
+    {
+        ArgumentNullException.ThrowIfNull(run);
+        return run.Methods.Count > 0 ? run.Methods.Select(m => m.Name).ToList() : [PrimaryMethod(run)];
+    }
+
+    /// <summary>The stored maps of the given methods, by epoch and then by method.</summary>
+    public static Dictionary<int, Dictionary<string, MapDocument>> MapsByEpoch(RunStore store, int runId, IReadOnlyList<string> methods)
+    {
+        ArgumentNullException.ThrowIfNull(store);
+        ArgumentNullException.ThrowIfNull(methods);
+        var result = new Dictionary<int, Dictionary<string, MapDocument>>();
+        foreach (string method in methods)
+        {
+            foreach (var map in store.Maps(runId, method))
+            {
+                if (!result.TryGetValue(map.Epoch, out var byMethod))
+                    result[map.Epoch] = byMethod = new Dictionary<string, MapDocument>(StringComparer.Ordinal);
+                byMethod.TryAdd(method, map);
+            }
+        }
+        return result;
+    }
+
+    /// <summary>Feeds one stored epoch, with its stored maps by method (or null), to a cross-method detector.</summary>
+    public static Assessment Observe(CrossMethodDetector detector, EpochDocument epoch, IReadOnlyDictionary<string, MapDocument>? maps)
+    {
+        ArgumentNullException.ThrowIfNull(detector);
+        ArgumentNullException.ThrowIfNull(epoch);
+        var read = maps?.ToDictionary(kv => kv.Key, kv => ToMap(kv.Value), StringComparer.Ordinal) ?? new Dictionary<string, AttributionMap>(StringComparer.Ordinal);
+        var evidence = Evidence(epoch, null) with { Map = read.GetValueOrDefault(detector.PrimaryMethod) };
+        return detector.Observe(evidence, read);
     }
 }

@@ -100,6 +100,15 @@ public sealed record RunDocument
 
     /// <summary>Per categorical feature: how many training rows each value has (value → count), for identifier-like checks.</summary>
     public Dictionary<string, Dictionary<string, int>> TrainingValueCounts { get; set; } = [];
+
+    /// <summary>The model factory that rebuilds the run's model (<c>Namespace.Type, Assembly</c>), or empty when none was given.</summary>
+    public string ModelFactory { get; set; } = "";
+
+    /// <summary>The settings the model factory is given, invariant culture.</summary>
+    public Dictionary<string, string> ModelSettings { get; set; } = [];
+
+    /// <summary>A caller-given baseline's values, float32 little-endian, or null for the zero and training-mean baselines.</summary>
+    public byte[]? BaselineValues { get; set; }
 }
 
 /// <summary>Per-feature aggregates over one half of the probe set.</summary>
@@ -166,6 +175,12 @@ public sealed record MapDocument : IKeyedDocument
 
     /// <summary>Model evaluations spent.</summary>
     public long Evaluations { get; set; }
+
+    /// <summary>The settings that shaped this map, invariant culture (empty in stores written before settings were kept per map).</summary>
+    public Dictionary<string, string> Settings { get; set; } = [];
+
+    /// <summary>The method's own name when the map is stored under another name (a re-attribution); empty otherwise.</summary>
+    public string SourceMethod { get; set; } = "";
 }
 
 /// <summary>One finished epoch: its metrics, snapshot and any monitoring problems. Written last, so it marks the epoch complete.</summary>
@@ -268,5 +283,65 @@ public sealed record StatisticsDocument : IKeyedDocument
 
     /// <summary>The statistics.</summary>
     public DriftWatch.Detection.EpochStatistics? Statistics { get; set; }
+}
+
+/// <summary>Spearman's rank correlation between this map's held-out importance and another method's at the same epoch.</summary>
+public sealed record AgreementDocument
+{
+    /// <summary>The other method's stored name.</summary>
+    public string Method { get; set; } = "";
+
+    /// <summary>Spearman ρ of mean |score| per feature over the held-out half; NaN when either is constant.</summary>
+    public double Spearman { get; set; }
+}
+
+/// <summary>Trust in one map: its agreement with the other methods at that epoch and its quality figures.</summary>
+public sealed record MapQualityDocument : IKeyedDocument
+{
+    /// <summary>Store-assigned id.</summary>
+    [BsonId(autoId: true)]
+    public int Id { get; set; }
+
+    /// <summary>Unique key <c>run/epoch/method/target</c>, like the map's.</summary>
+    public string Key { get; set; } = "";
+
+    /// <summary>The run's id.</summary>
+    public int RunId { get; set; }
+
+    /// <summary>The epoch.</summary>
+    public int Epoch { get; set; }
+
+    /// <summary>The map's stored method name.</summary>
+    public string Method { get; set; } = "";
+
+    /// <summary>The target label.</summary>
+    public string Target { get; set; } = "";
+
+    /// <summary>Agreement with every other method that had a map at this epoch when this one was written.</summary>
+    public List<AgreementDocument> Agreement { get; set; } = [];
+
+    /// <summary>Whether quality figures were measured.</summary>
+    public bool Measured { get; set; }
+
+    /// <summary>Infidelity (Yeh et al. 2019), squared output units.</summary>
+    public double Infidelity { get; set; } = double.NaN;
+
+    /// <summary>Infidelity over the mean squared output change.</summary>
+    public double RelativeInfidelity { get; set; } = double.NaN;
+
+    /// <summary>Max-sensitivity (Yeh et al. 2019), output units.</summary>
+    public double MaxSensitivity { get; set; } = double.NaN;
+
+    /// <summary>Max-sensitivity over the norm of the row's own scores.</summary>
+    public double RelativeMaxSensitivity { get; set; } = double.NaN;
+
+    /// <summary>Probe rows the figures were measured on.</summary>
+    public int QualityRows { get; set; }
+
+    /// <summary>The settings of the measurement, invariant culture.</summary>
+    public Dictionary<string, string> QualitySettings { get; set; } = [];
+
+    /// <summary>Model evaluations the figures cost.</summary>
+    public long QualityEvaluations { get; set; }
 }
 #pragma warning restore CA2227

@@ -43,6 +43,8 @@ public sealed class RunStore : IDisposable
 
     private ILiteCollection<StatisticsDocument> StatisticsCollection => _database.GetCollection<StatisticsDocument>("statistics");
 
+    private ILiteCollection<MapQualityDocument> QualityCollection => _database.GetCollection<MapQualityDocument>("quality");
+
     /// <summary>Opens a store for writing, creating the file (and its folder) when missing.</summary>
     /// <exception cref="StoreException">The path is a folder, or the file is not a DriftWatch store.</exception>
     public static RunStore OpenForWriting(string path)
@@ -192,6 +194,43 @@ public sealed class RunStore : IDisposable
         });
     }
 
+    /// <summary>Writes a map's agreement and quality figures, replacing an earlier document for the same map key.</summary>
+    public void WriteQuality(MapQualityDocument quality)
+    {
+        ArgumentNullException.ThrowIfNull(quality);
+        Guard(() => Upsert(QualityCollection, quality with { Key = MapKey(quality.RunId, quality.Epoch, quality.Method, quality.Target) }));
+    }
+
+    /// <summary>The agreement and quality documents of a run's complete epochs, in epoch order; optionally one method only.</summary>
+    public IReadOnlyList<MapQualityDocument> Quality(int runId, string? method = null)
+    {
+        return Guard(() =>
+        {
+            var complete = EpochsCollection.Find(e => e.RunId == runId).Select(e => e.Epoch).ToHashSet();
+            var documents = method is null
+                ? QualityCollection.Find(q => q.RunId == runId)
+                : QualityCollection.Find(q => q.RunId == runId && q.Method == method);
+            return documents.Where(q => complete.Contains(q.Epoch)).OrderBy(q => q.Epoch).ThenBy(q => q.Method, StringComparer.Ordinal).ToList();
+        });
+    }
+
+    /// <summary>The stored map for (run, epoch, method, target), or null.</summary>
+    public MapDocument? FindMap(int runId, int epoch, string method, string target)
+    {
+        ArgumentNullException.ThrowIfNull(method);
+        ArgumentNullException.ThrowIfNull(target);
+        string key = MapKey(runId, epoch, method, target);
+        return Guard(() => MapsCollection.FindOne(Query.EQ(nameof(MapDocument.Key), key)));
+    }
+
+    /// <summary>Every map stored for one epoch of a run (all methods and targets), complete or not.</summary>
+    public IReadOnlyList<MapDocument> MapsAt(int runId, int epoch) =>
+        Guard(() => MapsCollection.Find(m => m.RunId == runId && m.Epoch == epoch).OrderBy(m => m.Method, StringComparer.Ordinal).ToList());
+
+    /// <summary>The distinct method names a run has maps under (configured and re-attributed), in ordinal order.</summary>
+    public IReadOnlyList<string> MapMethods(int runId) =>
+        Guard(() => MapsCollection.Query().Where(m => m.RunId == runId).Select(m => m.Method).ToList().Distinct().Order(StringComparer.Ordinal).ToList());
+
     /// <summary>Saves a weight snapshot and returns its file id.</summary>
     public string SaveSnapshot(int runId, int epoch, Stream weights)
     {
@@ -334,6 +373,8 @@ public sealed class RunStore : IDisposable
             VerdictsCollection.EnsureIndex(v => v.RunId);
             StatisticsCollection.EnsureIndex(s => s.Key, unique: true);
             StatisticsCollection.EnsureIndex(s => s.RunId);
+            QualityCollection.EnsureIndex(q => q.Key, unique: true);
+            QualityCollection.EnsureIndex(q => q.RunId);
         });
     }
 

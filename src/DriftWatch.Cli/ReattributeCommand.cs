@@ -1,0 +1,209 @@
+using System.CommandLine;
+using System.CommandLine.Parsing;
+using System.Globalization;
+using DriftWatch.Attribution;
+using DriftWatch.Charts;
+using DriftWatch.Model;
+using DriftWatch.Storage;
+
+namespace DriftWatch.Cli;
+
+/// <summary><c>driftwatch reattribute RUN --method M</c>: recomputes a run's maps from its stored snapshots with another method and stores them beside the originals.</summary>
+internal static class ReattributeCommand
+{
+    /// <summary>Builds the command.</summary>
+    public static Command Create(Option<string> store)
+    {
+        var run = CommonOptions.Run();
+        var method = new Option<string>("--method")
+        {
+            Description = "The attribution method to recompute the maps with: " + string.Join(", ", AttributionMethods.Names)
+                + ". When the run was attributed with it, its recorded settings are the starting point.",
+            HelpName = "NAME",
+            Required = true,
+        };
+        var settings = new Option<string[]>("--setting")
+        {
+            Description = "A method setting as KEY=VALUE, repeatable (e.g. --setting steps=128 for integrated-gradients, --setting samples=20 for smoothgrad).",
+            HelpName = "KEY=VALUE",
+            Arity = ArgumentArity.ZeroOrMore,
+        };
+        var epochs = new Option<string?>("--epochs")
+        {
+            Description = "The epochs to re-attribute: A..B, A.. (from A), ..B (up to B) or one epoch N. Default: every stored epoch.",
+            HelpName = "A..B",
+        };
+        var storedAs = new Option<string?>("--as")
+        {
+            Description = "The method name the new maps are stored under (default: re-METHOD); it must differ from the run's own methods.",
+            HelpName = "NAME",
+        };
+        var assembly = new Option<string?>("--model-assembly")
+        {
+            Description = "The .dll holding the run's model factory, when it is not part of DriftWatch; the only outside code this command runs.",
+            HelpName = "PATH",
+        };
+        var chunk = CommonOptions.Bounded("--chunk-rows", "At most this many expanded rows go through the model at once (1 to 1000000).", 8192, 1, 1_000_000);
+        var quality = new Option<bool>("--quality")
+        {
+            Description = "Also measure the new maps' infidelity and max-sensitivity (Yeh et al. 2019) on 32 probe rows; costs about as much again.",
+        };
+
+        var command = new Command(
+            "reattribute",
+            "Recompute a run's attribution maps from its stored weight snapshots and probe set with another method (or other settings) "
+            + "and store them beside the originals under their own name, with their agreement with the maps already there; "
+            + "stored maps are never changed, and epochs already re-attributed under that name are skipped. "
+            + "The model is rebuilt with the factory the run recorded. Progress goes to stderr on a terminal. "
+            + "Attributions describe the model, not causes in the data.\n"
+            + "Exit codes: 0 done; 2 bad input (missing or foreign store, unknown run or method, bad setting, a model or snapshot that does not fit), nothing changed; 3 internal error.")
+        {
+            run,
+            method,
+            settings,
+            epochs,
+            storedAs,
+            assembly,
+            chunk,
+            quality,
+        };
+        command.SetAction(parse =>
+        {
+            var output = parse.InvocationConfiguration.Output;
+            var error = parse.InvocationConfiguration.Error;
+            string runName = parse.GetValue(run)!;
+            string methodName = parse.GetValue(method)!;
+            var overrides = ParseSettings(parse.GetValue(settings) ?? []);
+            var (first, last) = ParseEpochs(parse.GetValue(epochs));
+            string path = parse.GetValue(store)!;
+
+            // Everything that can be refused is checked on a read-only store first, so bad input leaves the file untouched.
+            RunDocument document;
+            IAttributionMethod attribution;
+            Type factory;
+            ReattributionRequest request;
+            IWatchedModel model;
+            using (var reading = RunStore.OpenForReading(path))
+            {
+                document = reading.GetRun(runName);
+                var recorded = document.Methods.FirstOrDefault(m => m.Name == methodName)?.Settings ?? [];
+                var merged = new Dictionary<string, string>(recorded, StringComparer.Ordinal);
+                foreach (var (key, value) in overrides)
+                    merged[key] = value;
+                attribution = AttributionMethods.Create(methodName, merged);
+                factory = ModelFactories.Resolve(document.Name, document.ModelFactory, parse.GetValue(assembly));
+                request = new ReattributionRequest
+                {
+                    Method = attribution,
+                    StoredName = parse.GetValue(storedAs),
+                    FirstEpoch = first,
+                    LastEpoch = last,
+                    ChunkRows = parse.GetValue(chunk),
+                    Quality = parse.GetValue(quality) ? new QualityOptions() : null,
+                };
+                model = ModelRecipe.Build(factory, document.ModelSettings);
+                try
+                {
+                    Reattribution.Check(reading, document, model, request);
+                }
+                catch
+                {
+                    model.Module.Dispose();
+                    throw;
+                }
+            }
+
+            bool terminal = ReferenceEquals(error, Console.Error) && !Console.IsErrorRedirected;
+            IReadOnlyList<ReattributedEpoch> results;
+            try
+            {
+                using var runStore = RunStore.OpenForWriting(path);
+                results = Reattribution.Run(runStore, runStore.GetRun(runName), model, request, terminal ? new TerminalProgress(error) : null);
+            }
+            finally
+            {
+                model.Module.Dispose();
+                if (terminal)
+                    error.WriteLine();
+            }
+            WriteSummary(output, document, request, attribution, factory, results, path);
+            return ExitCodes.Fine;
+        });
+        return command;
+    }
+
+    private static void WriteSummary(TextWriter output, RunDocument run, ReattributionRequest request, IAttributionMethod method, Type factory, IReadOnlyList<ReattributedEpoch> results, string store)
+    {
+        int stored = results.Count(r => r.Outcome == ReattributionOutcome.Stored);
+        string settings = method.Settings.Count == 0 ? "" : " (" + string.Join(", ", method.Settings.Select(s => s.Key + "=" + s.Value)) + ")";
+        output.WriteLine($"run {DisplayText.Clean(run.Name)}: {Formats.Integer(stored)} of {Formats.Integer(results.Count)} epochs re-attributed with {method.Name}{DisplayText.Clean(settings)}, stored as '{DisplayText.Clean(request.Name)}'");
+        output.WriteLine($"  model rebuilt by {DisplayText.Clean(factory.FullName ?? factory.Name)} from the run's settings; {results.Sum(r => r.Seconds).ToString("0.0", CultureInfo.InvariantCulture)} s");
+        var already = results.Where(r => r.Outcome == ReattributionOutcome.AlreadyStored).Select(r => Formats.Integer(r.Epoch)).ToList();
+        if (already.Count > 0)
+            output.WriteLine($"  already stored under that name, left as they were: epochs {string.Join(", ", already)}");
+        var missing = results.Where(r => r.Outcome == ReattributionOutcome.NoSnapshot).Select(r => Formats.Integer(r.Epoch)).ToList();
+        if (missing.Count > 0)
+            output.WriteLine($"  no weight snapshot, skipped: epochs {string.Join(", ", missing)}");
+        output.WriteLine($"  see them with: driftwatch show {Quote(run.Name)} --method {Quote(request.Name)} --store {Quote(store)}");
+        output.WriteLine("  Attributions describe the model, not causes in the data.");
+    }
+
+    // Parses KEY=VALUE settings; a key given twice keeps its last value.
+    private static List<(string Key, string Value)> ParseSettings(string[] settings)
+    {
+        var parsed = new List<(string, string)>();
+        foreach (string setting in settings)
+        {
+            int equals = setting.IndexOf('=', StringComparison.Ordinal);
+            if (equals <= 0)
+                throw new DriftWatchException($"--setting must be KEY=VALUE, e.g. steps=128; got '{DisplayText.Clean(setting)}'");
+            parsed.Add((setting[..equals].Trim(), setting[(equals + 1)..].Trim()));
+        }
+        return parsed;
+    }
+
+    /// <summary>Parses <c>A..B</c>, <c>A..</c>, <c>..B</c> or <c>N</c> into an inclusive range.</summary>
+    internal static (int First, int Last) ParseEpochs(string? text)
+    {
+        if (text is null)
+            return (int.MinValue, int.MaxValue);
+        string problem = $"--epochs must be A..B, A.., ..B or one epoch N with whole numbers from 0; got '{DisplayText.Clean(text)}'";
+        int dots = text.IndexOf("..", StringComparison.Ordinal);
+        static bool Number(string part, out int value) =>
+            int.TryParse(part, NumberStyles.None, CultureInfo.InvariantCulture, out value);
+        if (dots < 0)
+            return Number(text.Trim(), out int single) ? (single, single) : throw new DriftWatchException(problem);
+        string left = text[..dots].Trim(), right = text[(dots + 2)..].Trim();
+        if (left.Length == 0 && right.Length == 0)
+            throw new DriftWatchException(problem);
+        int first = int.MinValue, last = int.MaxValue;
+        if (left.Length > 0 && !Number(left, out first))
+            throw new DriftWatchException(problem);
+        if (right.Length > 0 && !Number(right, out last))
+            throw new DriftWatchException(problem);
+        if (first > last)
+            throw new DriftWatchException($"--epochs {DisplayText.Clean(text)} is empty: {first} comes after {last}");
+        return (first, last);
+    }
+
+    private static string Quote(string text) =>
+        text.Length > 0 && text.All(c => char.IsAsciiLetterOrDigit(c) || "-_./:=+,@".Contains(c, StringComparison.Ordinal))
+            ? text
+            : "'" + text.Replace("'", "'\\''", StringComparison.Ordinal) + "'";
+
+    // Rewrites one stderr line per epoch, so a long re-attribution shows where it is.
+    private sealed class TerminalProgress(TextWriter error) : IProgress<ReattributedEpoch>
+    {
+        public void Report(ReattributedEpoch value)
+        {
+            string what = value.Outcome switch
+            {
+                ReattributionOutcome.Stored => value.Seconds.ToString("0.0", CultureInfo.InvariantCulture) + " s",
+                ReattributionOutcome.AlreadyStored => "already stored",
+                _ => "no snapshot",
+            };
+            error.Write($"\rre-attributing: epoch {Formats.Integer(value.Epoch)} ({Formats.Integer(value.Index)} of {Formats.Integer(value.Count)}) {what}      ");
+            error.Flush();
+        }
+    }
+}

@@ -1,0 +1,51 @@
+using System.Collections.Immutable;
+
+namespace DriftWatch.Attribution;
+
+/// <summary>The built-in attribution methods by stored name, so a method can be rebuilt from the name and settings a run recorded.</summary>
+public static class AttributionMethods
+{
+    private static readonly ImmutableSortedDictionary<string, Func<IReadOnlyDictionary<string, string>, IAttributionMethod>> Builders =
+        ImmutableSortedDictionary.CreateRange(
+            StringComparer.Ordinal,
+            new KeyValuePair<string, Func<IReadOnlyDictionary<string, string>, IAttributionMethod>>[]
+            {
+                new("integrated-gradients", IntegratedGradientsFromSettings),
+                new("gradient-x-input", s => NoSettings("gradient-x-input", s, new GradientTimesInput())),
+                new("saliency", s => NoSettings("saliency", s, new Saliency())),
+                new("feature-ablation", FeatureAblation.FromSettings),
+                new("shapley-sampling", ShapleySampling.FromSettings),
+                new("shapley-exact", s => NoSettings("shapley-exact", s, new ExactShapley())),
+                new("smoothgrad", s => SmoothGrad.FromSettings(s, SmoothGradVariant.Gradient)),
+                new("smoothgrad-x-input", s => SmoothGrad.FromSettings(s, SmoothGradVariant.GradientTimesInput)),
+            });
+
+    /// <summary>Every built-in method's name, in ordinal order.</summary>
+    public static ImmutableArray<string> Names { get; } = [.. Builders.Keys];
+
+    /// <summary>Builds the method called <paramref name="name"/> with <paramref name="settings"/>; settings left out keep their defaults.</summary>
+    /// <exception cref="DriftWatchException">An unknown name, an unknown setting or a value out of range; the message lists what is valid.</exception>
+    public static IAttributionMethod Create(string name, IReadOnlyDictionary<string, string> settings)
+    {
+        ArgumentNullException.ThrowIfNull(name);
+        ArgumentNullException.ThrowIfNull(settings);
+        if (!Builders.TryGetValue(name, out var build))
+            throw new DriftWatchException($"unknown attribution method '{name}'; built-in methods: {string.Join(", ", Names)}");
+        return build(settings);
+    }
+
+    private static IntegratedGradients IntegratedGradientsFromSettings(IReadOnlyDictionary<string, string> settings)
+    {
+        var read = new MethodSettings("integrated-gradients", settings);
+        var rule = read.Enum("quadrature", QuadratureRule.RiemannMidpoint);
+        int steps = read.Int("steps", 64, 1, 4096);
+        read.RejectUnknown();
+        return new IntegratedGradients(steps, rule);
+    }
+
+    private static IAttributionMethod NoSettings(string name, IReadOnlyDictionary<string, string> settings, IAttributionMethod method)
+    {
+        new MethodSettings(name, settings).RejectUnknown();
+        return method;
+    }
+}

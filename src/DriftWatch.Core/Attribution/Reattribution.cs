@@ -1,0 +1,290 @@
+using System.Diagnostics;
+using DriftWatch.Detection;
+using DriftWatch.Model;
+using DriftWatch.Probing;
+using DriftWatch.Storage;
+using TorchSharp;
+using static TorchSharp.torch;
+
+namespace DriftWatch.Attribution;
+
+/// <summary>What happened to one epoch in a re-attribution.</summary>
+public enum ReattributionOutcome
+{
+    /// <summary>The map was computed and stored.</summary>
+    Stored,
+
+    /// <summary>A map under the stored name was already there; it was left as it was.</summary>
+    AlreadyStored,
+
+    /// <summary>The epoch has no weight snapshot, so nothing could be computed.</summary>
+    NoSnapshot,
+}
+
+/// <summary>One epoch's result in a re-attribution.</summary>
+/// <param name="Epoch">The epoch.</param>
+/// <param name="Outcome">What happened.</param>
+/// <param name="Seconds">Seconds spent on it.</param>
+/// <param name="Index">Its position among the epochs of the request, from 1.</param>
+/// <param name="Count">How many epochs the request covers.</param>
+public sealed record ReattributedEpoch(int Epoch, ReattributionOutcome Outcome, double Seconds, int Index, int Count);
+
+/// <summary>What to re-attribute: a method, the epochs, the name the maps are stored under.</summary>
+public sealed record ReattributionRequest
+{
+    /// <summary>The method to attribute with.</summary>
+    public required IAttributionMethod Method { get; init; }
+
+    /// <summary>The method name the new maps are stored under; must differ from the run's configured methods. Default: <c>re-</c> and the method's name.</summary>
+    public string? StoredName { get; init; }
+
+    /// <summary>The first epoch to re-attribute. Default: the run's first.</summary>
+    public int FirstEpoch { get; init; } = int.MinValue;
+
+    /// <summary>The last epoch to re-attribute. Default: the run's last.</summary>
+    public int LastEpoch { get; init; } = int.MaxValue;
+
+    /// <summary>At most this many expanded rows go through the model at once. Default 8192.</summary>
+    public int ChunkRows { get; init; } = 8192;
+
+    /// <summary>Measure the new maps' quality figures too. Default: null, off.</summary>
+    public QualityOptions? Quality { get; init; }
+
+    /// <summary>The name the maps are stored under.</summary>
+    public string Name => StoredName ?? Reattribution.DefaultStoredName(Method.Name);
+}
+
+/// <summary>
+/// Recomputes a stored run's attribution maps from its weight snapshots and probe set with another method (or other
+/// settings), and stores them beside the originals under their own name; existing maps are never changed.
+/// </summary>
+public static class Reattribution
+{
+    /// <summary>The name re-attributed maps are stored under when none is given: <c>re-</c> and the method's name.</summary>
+    public static string DefaultStoredName(string method) => "re-" + method;
+
+    /// <summary>The probe set a run recorded, checked against its stored hash.</summary>
+    /// <exception cref="StoreException">The stored rows do not hash to the run's probe hash.</exception>
+    public static ProbeSet ProbeOf(RunDocument run)
+    {
+        ArgumentNullException.ThrowIfNull(run);
+        var labels = run.ProbeLabels is null ? null : FloatBytes.ToFloats(run.ProbeLabels);
+        var rows = new ProbeRows(FloatBytes.ToFloats(run.ProbeDense), run.DenseCount, FloatBytes.ToLongs(run.ProbeCategorical), run.CategoricalCount, labels);
+        var probe = new ProbeSet(
+            rows.Take(Enumerable.Range(0, run.HeldOutRows).ToArray()),
+            rows.Take(Enumerable.Range(run.HeldOutRows, run.TrainingRows).ToArray()));
+        if (probe.Hash != run.ProbeHash)
+            throw new StoreException($"the probe rows stored with run '{run.Name}' no longer match their hash; the store is damaged");
+        return probe;
+    }
+
+    /// <summary>The baseline a run recorded.</summary>
+    /// <exception cref="DriftWatchException">A caller-given baseline whose values were not stored.</exception>
+    public static Baseline BaselineOf(RunDocument run)
+    {
+        ArgumentNullException.ThrowIfNull(run);
+        return run.Baseline switch
+        {
+            "zero" => Baseline.Zero,
+            "training-mean" => Baseline.TrainingMean,
+            "given" when run.BaselineValues is not null => Baseline.FromValues(FloatBytes.ToFloats(run.BaselineValues)),
+            "given" => throw new DriftWatchException($"run '{run.Name}' used a caller-given baseline whose values were not stored (a store from an older version); it cannot be re-attributed"),
+            _ => throw new StoreException($"run '{run.Name}' records an unknown baseline '{run.Baseline}'; expected zero, training-mean or given"),
+        };
+    }
+
+    /// <summary>Re-attributes the requested epochs of <paramref name="run"/> with <paramref name="model"/>, loading each epoch's snapshot into it.</summary>
+    /// <param name="store">The store, opened for writing.</param>
+    /// <param name="run">The run.</param>
+    /// <param name="model">A model of the run's architecture (weights are replaced by each snapshot).</param>
+    /// <param name="request">The method, epochs and stored name.</param>
+    /// <param name="progress">Told after each epoch, or null.</param>
+    /// <returns>One entry per epoch in the range.</returns>
+    /// <exception cref="DriftWatchException">A bad request, a model or snapshot that does not fit, or no epoch in the range.</exception>
+    public static IReadOnlyList<ReattributedEpoch> Run(RunStore store, RunDocument run, IWatchedModel model, ReattributionRequest request, IProgress<ReattributedEpoch>? progress = null)
+    {
+        var epochs = Check(store, run, model, request);
+        string name = request.Name;
+        var schema = RunContext.FromRun(run).Schema;
+        var probe = ProbeOf(run);
+        var baselineChoice = BaselineOf(run);
+        var target = AttributionTarget.Parse(run.Target);
+
+        var results = new List<ReattributedEpoch>();
+        var module = model.Module;
+        module.eval();
+        foreach (var p in module.parameters())
+            p.requires_grad = false;
+        for (int i = 0; i < epochs.Count; i++)
+        {
+            var epoch = epochs[i];
+            var clock = Stopwatch.StartNew();
+            ReattributionOutcome outcome;
+            if (store.FindMap(run.Id, epoch.Epoch, name, target.Label) is not null)
+            {
+                outcome = ReattributionOutcome.AlreadyStored;
+            }
+            else if (epoch.SnapshotId is null)
+            {
+                outcome = ReattributionOutcome.NoSnapshot;
+            }
+            else
+            {
+                using (var weights = store.ReadSnapshot(epoch.SnapshotId))
+                    Snapshots.LoadInto(module, weights, $"the snapshot of epoch {epoch.Epoch} of run '{run.Name}'");
+                foreach (var p in module.parameters())
+                    p.requires_grad = false;
+                AttributeEpoch(store, run, model, schema, probe, baselineChoice, target, request, name, epoch.Epoch);
+                outcome = ReattributionOutcome.Stored;
+            }
+            var result = new ReattributedEpoch(epoch.Epoch, outcome, clock.Elapsed.TotalSeconds, i + 1, epochs.Count);
+            results.Add(result);
+            progress?.Report(result);
+        }
+        return results;
+    }
+
+    /// <summary>Checks a request against the store without writing anything, and returns the epochs it covers.</summary>
+    /// <exception cref="DriftWatchException">A bad name or range, a model whose schema differs from the run's, or a damaged run record.</exception>
+    public static IReadOnlyList<EpochDocument> Check(RunStore store, RunDocument run, IWatchedModel model, ReattributionRequest request)
+    {
+        ArgumentNullException.ThrowIfNull(store);
+        ArgumentNullException.ThrowIfNull(run);
+        ArgumentNullException.ThrowIfNull(model);
+        ArgumentNullException.ThrowIfNull(request);
+        CheckName(store, run, request, request.Name);
+        if (request.ChunkRows < 1)
+            throw new DriftWatchException($"chunk rows must be at least 1; got {request.ChunkRows}");
+        if (request.FirstEpoch > request.LastEpoch)
+            throw new DriftWatchException($"the epoch range {Range(request)} is empty; give the first epoch before the last");
+        request.Quality?.Validate();
+        var schema = RunContext.FromRun(run).Schema;
+        if (!model.Schema.Names.SequenceEqual(schema.Names) || model.Schema.ColumnCount != schema.ColumnCount)
+            throw new DriftWatchException($"the rebuilt model's feature schema ({model.Schema.Count} features, {model.Schema.ColumnCount} columns) differs from run '{run.Name}' ({schema.Count} features, {schema.ColumnCount} columns); the model settings do not describe the trained model");
+        ProbeOf(run);
+        BaselineOf(run);
+        AttributionTarget.Parse(run.Target);
+        var all = store.Epochs(run.Id);
+        var epochs = all.Where(e => e.Epoch >= request.FirstEpoch && e.Epoch <= request.LastEpoch).ToList();
+        if (epochs.Count == 0)
+        {
+            string stored = all.Count == 0 ? "it has no complete epochs yet" : $"its epochs run from {all[0].Epoch} to {all[^1].Epoch}";
+            throw new DriftWatchException($"run '{run.Name}' has no complete epoch in {Range(request)}; {stored}");
+        }
+        var first = epochs.FirstOrDefault(e => e.SnapshotId is not null);
+        if (first is not null)
+        {
+            using var weights = store.ReadSnapshot(first.SnapshotId!);
+            Snapshots.CheckFit(model.Module, weights, $"the snapshot of epoch {first.Epoch} of run '{run.Name}'");
+        }
+        return epochs;
+    }
+
+    private static void CheckName(RunStore store, RunDocument run, ReattributionRequest request, string name)
+    {
+        if (string.IsNullOrWhiteSpace(name) || name.Contains('/', StringComparison.Ordinal) || name.Trim() != name)
+            throw new DriftWatchException($"the stored name of re-attributed maps must be a non-empty name without '/' or surrounding spaces; got '{name}'");
+        if (run.Methods.Any(m => m.Name == name))
+            throw new DriftWatchException($"'{name}' is one of run '{run.Name}''s own methods; re-attributed maps are stored beside the originals under another name (the default is '{DefaultStoredName(request.Method.Name)}')");
+        var earlier = store.Maps(run.Id, name).FirstOrDefault();
+        if (earlier is null)
+            return;
+        var settings = request.Method.Settings;
+        bool same = earlier.SourceMethod == request.Method.Name
+            && earlier.Settings.Count == settings.Count
+            && settings.All(s => earlier.Settings.TryGetValue(s.Key, out var v) && v == s.Value);
+        if (!same)
+        {
+            string described = (earlier.SourceMethod.Length > 0 ? earlier.SourceMethod : earlier.Method)
+                + "(" + string.Join(", ", earlier.Settings.OrderBy(s => s.Key, StringComparer.Ordinal).Select(s => s.Key + "=" + s.Value)) + ")";
+            throw new DriftWatchException($"run '{run.Name}' already has maps named '{name}' made by {described}; store these under another name so both stay");
+        }
+    }
+
+    private static void AttributeEpoch(
+        RunStore store, RunDocument run, IWatchedModel model, FeatureSchema schema, ProbeSet probe, Baseline baselineChoice,
+        AttributionTarget target, ReattributionRequest request, string name, int epoch)
+    {
+        using var scope = torch.NewDisposeScope();
+        Tensor features;
+        using (torch.no_grad())
+        {
+            var dense = torch.tensor(probe.Rows.Dense, [probe.Count, probe.Rows.DenseCount]);
+            var categorical = torch.tensor(probe.Rows.Categorical, [probe.Count, probe.Rows.CategoricalCount]);
+            features = model.Encode(dense, categorical).detach().to(ScalarType.Float32);
+        }
+        if (features.dim() != 2 || features.shape[0] != probe.Count || features.shape[1] != schema.ColumnCount)
+            throw new DriftWatchException($"encode returned shape [{string.Join(", ", features.shape)}]; expected [{probe.Count}, {schema.ColumnCount}] as the run's schema says");
+        var baseline = baselineChoice.Resolve(features[TensorIndex.Slice(probe.HeldOutCount, probe.Count)], schema.ColumnCount);
+        var input = new AttributionInput(f => target.Select(model.Score(f)), features, baseline, request.ChunkRows).WithSchema(schema);
+
+        var watch = Stopwatch.StartNew();
+        var columns = request.Method.Attribute(input);
+        var map = AttributionMap.FromColumns(columns, schema);
+        double seconds = watch.Elapsed.TotalSeconds;
+        var quality = request.Quality is null ? null : MapQuality.Measure(request.Method, input, columns, request.Quality);
+        var (heldOut, training) = HalfImportance.ForHalves(map, probe);
+
+        // Agreement with every map already stored at this epoch, originals and other re-attributions alike.
+        var agreement = store.MapsAt(run.Id, epoch)
+            .Where(m => m.Target == target.Label && m.Method != name && m.Rows == map.Rows && m.Features == map.Features)
+            .Select(m => new AgreementDocument { Method = m.Method, Spearman = MethodAgreement.Spearman(map, RunReview.ToMap(m), probe.HeldOutCount) })
+            .ToList();
+        store.WriteMap(new MapDocument
+        {
+            RunId = run.Id,
+            Epoch = epoch,
+            Method = name,
+            Target = target.Label,
+            Rows = map.Rows,
+            Features = map.Features,
+            Scores = FloatBytes.FromFloats(map.Scores),
+            Deltas = map.Deltas is null ? null : FloatBytes.FromFloats(map.Deltas),
+            OutputGaps = map.OutputGaps is null ? null : FloatBytes.FromFloats(map.OutputGaps),
+            HeldOut = ImportanceDocuments.From(heldOut),
+            Training = ImportanceDocuments.From(training),
+            Seconds = seconds,
+            Evaluations = columns.Evaluations,
+            Settings = new Dictionary<string, string>(request.Method.Settings, StringComparer.Ordinal),
+            SourceMethod = request.Method.Name,
+        });
+        store.WriteQuality(new MapQualityDocument
+        {
+            RunId = run.Id,
+            Epoch = epoch,
+            Method = name,
+            Target = target.Label,
+            Agreement = agreement,
+            Measured = quality is not null,
+            Infidelity = quality?.Infidelity ?? double.NaN,
+            RelativeInfidelity = quality?.RelativeInfidelity ?? double.NaN,
+            MaxSensitivity = quality?.MaxSensitivity ?? double.NaN,
+            RelativeMaxSensitivity = quality?.RelativeMaxSensitivity ?? double.NaN,
+            QualityRows = quality?.Rows ?? 0,
+            QualitySettings = quality is null ? [] : new Dictionary<string, string>(request.Quality!.ToSettings(), StringComparer.Ordinal),
+            QualityEvaluations = quality?.Evaluations ?? 0,
+        });
+    }
+
+    private static string Range(ReattributionRequest request) =>
+        (request.FirstEpoch == int.MinValue ? "" : request.FirstEpoch.ToString(System.Globalization.CultureInfo.InvariantCulture))
+        + ".."
+        + (request.LastEpoch == int.MaxValue ? "" : request.LastEpoch.ToString(System.Globalization.CultureInfo.InvariantCulture));
+}
+
+/// <summary>Converts per-half importance to its stored form.</summary>
+public static class ImportanceDocuments
+{
+    /// <summary>The stored form of <paramref name="half"/>.</summary>
+    public static ImportanceDocument From(HalfImportance half)
+    {
+        ArgumentNullException.ThrowIfNull(half);
+        return new ImportanceDocument
+        {
+            MeanAbsolute = half.MeanAbsolute,
+            MeanSigned = half.MeanSigned,
+            Share = half.Share,
+            Alignment = half.Alignment,
+        };
+    }
+}
