@@ -51,7 +51,7 @@ public static class CliApp
             "DriftWatch: read the run store a monitored training wrote; list runs, show their epochs and findings, render charts, "
             + "and check the gate's verdict (exit 1 on Halt) for a scheduler. Attributions describe the model, not causes; a Halt is advice, not proof.\n"
             + $"The store is --store PATH, else ${CommonOptions.StoreVariable}, else {CommonOptions.DefaultStoreFile} in the current folder; "
-            + "it is only read, never created or changed.\n"
+            + "it is only read, never created or changed, except by follow, which writes the run it watches.\n"
             + ExitCodes.AllHelp)
         {
             store,
@@ -59,6 +59,7 @@ public static class CliApp
             ShowCommand.Create(store),
             ChartCommand.Create(store),
             CheckCommand.Create(store),
+            FollowCommand.Create(store),
         };
         return root;
     }
