@@ -17,7 +17,7 @@ internal static class FollowCommand
         var folder = new Argument<string>("folder") { Description = "The run folder the training loop writes with hooks/driftwatch_follow.py." };
         var run = new Option<string?>("--run") { Description = "The run's name in the store. Default: the folder's name. Reusing a name resumes that run.", HelpName = "NAME" };
         var once = new Option<bool>("--once") { Description = "Judge the epochs already in the folder, then stop, instead of waiting for more." };
-        var poll = CommonOptions.Bounded("--poll-seconds", "Seconds between looks for new snapshots while the run goes on. Default 10.", 10, 1, 3600);
+        var poll = CommonOptions.Bounded("--poll-seconds", "Seconds between looks for new snapshots while the run goes on.", 10, 1, 3600);
         var policy = new Option<string?>("--policy") { Description = "A gate policy JSON file. Default: the built-in policy.", HelpName = "FILE" };
         var command = new Command(
             "follow",
