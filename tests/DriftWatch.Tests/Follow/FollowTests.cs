@@ -160,6 +160,7 @@ public sealed class FollowTests : IClassFixture<PythonRunFixture>
             double meanGap = gaps.Average(Math.Abs);
             double meanError = Enumerable.Range(0, rows)
                 .Average(r => Math.Abs(Enumerable.Range(0, map.Features).Sum(f => (double)scores[r * map.Features + f]) - gaps[r]));
+            _log.WriteLine($"epoch {map.Epoch}: mean completeness gap {meanError:G4}, mean |F(x) − F(x′)| {meanGap:G4}");
             // Sundararajan, Taly, Yan 2017, Prop. 1 (completeness): Σ attributions = F(x) − F(x′); within 1% at default steps.
             Assert.True(meanError <= 0.01 * meanGap, $"epoch {map.Epoch}: mean completeness gap {meanError:G4} against mean |F(x) − F(x′)| {meanGap:G4}");
             Assert.True(meanGap > 0.1, $"epoch {map.Epoch}: the model's outputs hardly move ({meanGap:G4}); the check would be empty");
@@ -190,6 +191,7 @@ public sealed class FollowTests : IClassFixture<PythonRunFixture>
             for (int f = 0; f < map.Features; f++)
                 worst = Math.Max(worst, Math.Abs(scores[r * map.Features + f] - reference[r][f]));
         }
+        _log.WriteLine($"largest difference from PyTorch's attributions: {worst:G4}");
         // The reference is computed by PyTorch 1.13 (Debian python3-torch) with torch.autograd on the eager model:
         // the same Integrated Gradients sum (midpoint rule, 64 steps, zero baseline), a general-purpose library's gradients.
         Assert.True(worst <= 1e-4, $"largest difference from PyTorch's attributions: {worst:G4}");
