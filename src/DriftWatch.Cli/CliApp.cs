@@ -51,7 +51,7 @@ public static class CliApp
             "DriftWatch: read the run store a monitored training wrote; list runs, show their epochs and findings, render charts, "
             + "check the gate's verdict (exit 1 on Halt) for a scheduler, and re-attribute stored snapshots with another method. Attributions describe the model, not causes; a Halt is advice, not proof.\n"
             + $"The store is --store PATH, else ${CommonOptions.StoreVariable}, else {CommonOptions.DefaultStoreFile} in the current folder; "
-            + "only reattribute adds to it (new maps beside the originals); no command creates it or changes what is stored.\n"
+            + "only reattribute (new maps beside the originals) and follow (the run it watches) write to it; no other command creates or changes it.\n"
             + ExitCodes.AllHelp)
         {
             store,
@@ -60,6 +60,7 @@ public static class CliApp
             ChartCommand.Create(store),
             CheckCommand.Create(store),
             ReattributeCommand.Create(store),
+            FollowCommand.Create(store),
         };
         return root;
     }
