@@ -59,6 +59,7 @@ public static class CliApp
             ShowCommand.Create(store),
             ChartCommand.Create(store),
             CheckCommand.Create(store),
+            ReportCommand.Create(store),
         };
         return root;
     }
