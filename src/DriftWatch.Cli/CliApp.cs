@@ -60,6 +60,7 @@ public static class CliApp
             ChartCommand.Create(store),
             CheckCommand.Create(store),
             ReportCommand.Create(store),
+            ExportCommand.Create(store),
         };
         return root;
     }
