@@ -61,6 +61,7 @@ public static class CliApp
             CheckCommand.Create(store),
             ReportCommand.Create(store),
             ExportCommand.Create(store),
+            CompareCommand.Create(store),
         };
         return root;
     }
