@@ -49,9 +49,14 @@ public static class CliApp
         var store = CommonOptions.Store();
         var root = new RootCommand(
             "DriftWatch: read the run store a monitored training wrote; list runs, show their epochs and findings, render charts, "
-            + "and check the gate's verdict (exit 1 on Halt) for a scheduler. Attributions describe the model, not causes; a Halt is advice, not proof.\n"
+            + "write a report, compare two runs, export tidy tables, and check the gate's verdict (exit 1 on Halt) for a scheduler. "
+            + "Attributions describe the model, not causes; a Halt is advice, not proof.\n"
             + $"The store is --store PATH, else ${CommonOptions.StoreVariable}, else {CommonOptions.DefaultStoreFile} in the current folder; "
             + "it is only read, never created or changed.\n"
+            + "Examples:\n"
+            + "  driftwatch runs --store night.litedb\n"
+            + "  driftwatch report night-7 --store night.litedb --out reports\n"
+            + "  driftwatch <command> --help\n"
             + ExitCodes.AllHelp)
         {
             store,
