@@ -35,6 +35,9 @@ public sealed record ChartChoices
 
     /// <summary>What the heatmap shows. Default <see cref="HeatmapValue.Share"/>.</summary>
     public HeatmapValue HeatmapValue { get; init; } = HeatmapValue.Share;
+
+    /// <summary>Whether the heatmap may be drawn taller than the size asked for, so that many features' names stay readable (<see cref="HeatmapChart.ReadableHeight"/>). Default true.</summary>
+    public bool GrowHeatmap { get; init; } = true;
 }
 
 /// <summary>Builds the charts of a run by kind, and renders a set of them to a folder.</summary>
@@ -121,10 +124,11 @@ public static class ChartCatalog
         {
             progress?.Invoke(kind);
             string path = Path.Combine(folder, ChartFiles.FileName(history.RunName, chart.Name, history.Method));
+            var chartSize = kind == ChartKind.Heatmap && choices.GrowHeatmap ? new ChartSize(size.Width, HeatmapChart.ReadableHeight(history, size.Height)) : size;
             try
             {
                 Directory.CreateDirectory(folder);
-                chart.Render(history, path, size);
+                chart.Render(history, path, chartSize);
             }
             catch (Exception e) when (e is IOException or UnauthorizedAccessException)
             {

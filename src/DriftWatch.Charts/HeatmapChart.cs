@@ -49,6 +49,14 @@ public sealed class HeatmapChart : IChart
         _ => "heatmap-gap",
     };
 
+    /// <summary>A picture height at which every row's name is readable: <paramref name="height"/>, or taller with many rows (15 pixels a row), at most <see cref="ChartSize.MaximumSide"/>.</summary>
+    public static int ReadableHeight(RunHistory history, int height)
+    {
+        ArgumentNullException.ThrowIfNull(history);
+        int rows = Math.Min(history.FeatureNames.Length, MaximumRows);
+        return Math.Clamp(Math.Max(height, 180 + 15 * rows), ChartSize.MinimumSide, ChartSize.MaximumSide);
+    }
+
     /// <summary>The rows of the heatmap: one feature index per row, top first; the last row lists several features when they were summed.</summary>
     public static IReadOnlyList<int[]> Rows(RunHistory history)
     {
@@ -130,7 +138,7 @@ public sealed class HeatmapChart : IChart
             plot.Axes.Left.TickLabelStyle.FontSize = fontSize;
             plot.Axes.Left.MajorTickStyle.Length = 3;
             using var font = new SkiaSharp.SKFont(Fonts.GetTypeface(ChartFonts.FamilyName, false, false), fontSize);
-            left = (labels.Max(l => font.MeasureText(l)) + 16) / scale.Factor;
+            left = (labels.Max(l => font.MeasureText(l)) + 30 * scale.Factor) / scale.Factor;
 
             // A dot in each cell where a finding names the feature.
             var flaggedXs = new List<double>();

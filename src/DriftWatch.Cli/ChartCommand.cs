@@ -45,7 +45,8 @@ internal static class ChartCommand
             + "  trend       share of importance per feature across epochs (held-out solid, training dashed) in its noise-floor band, "
             + "rings where a finding names the feature; losses beneath\n"
             + "  divergence  training half against held-out half for flagged and top features: shares with bands, label alignment beneath\n"
-            + "  heatmap     epoch × feature: held-out share (--value share), mean signed attribution (signed) or training minus held-out share (gap)\n"
+            + "  heatmap     epoch × feature: held-out share (--value share), mean signed attribution (signed) or training minus held-out share (gap); "
+            + "taller than --height's default with many features, so every name stays readable\n"
             + "  drift       verdicts, drift score, rank agreement with the best epoch, generalisation gap and loss\n"
             + "  feature     per-row attributions of one feature (--feature NAME; default: the first flagged) as box plots per epoch and half\n"
             + "Epochs with a Caution or Halt verdict are shaded. Attributions describe the model, not causes.\n"
@@ -74,6 +75,8 @@ internal static class ChartCommand
                 DivergenceFeatures = parse.GetValue(columns),
                 Feature = parse.GetValue(feature),
                 HeatmapValue = HeatmapChart.Parse(parse.GetValue(value)!),
+                // An explicit --height is kept; the default grows for a heatmap of many features.
+                GrowHeatmap = parse.GetResult(height) is null or { Implicit: true },
             };
             var size = new ChartSize(parse.GetValue(width), parse.GetValue(height));
             string folder = CommonOptions.Folder(parse.GetValue(output)!);
