@@ -87,6 +87,11 @@ public sealed class FeatureDetailChart : IChart
         ChartKit.VerdictKey(key.Legend, shaded);
         ChartKit.FitY(plot, values, includeZero: true);
         ChartKit.EpochAxis(plot, history);
+        if (spacing > 1)
+        {
+            // Thinned epochs sit further apart than one; leave room for the outer boxes' halves.
+            plot.Axes.SetLimitsX(Math.Min(history.Epochs[0].Epoch, epochs[0].Epoch) - 0.5 * spacing, Math.Max(history.Epochs[^1].Epoch, epochs[^1].Epoch) + 0.5 * spacing);
+        }
         plot.YLabel($"attribution score ({DisplayText.Clean(history.Target, 20)} units)", scale.AxisLabel);
         plot.XLabel("epoch", scale.AxisLabel);
 

@@ -132,8 +132,10 @@ public sealed class TrendChart : IChart
 
             // A ring around the held-out point at every epoch where a finding names this feature.
             string name = history.FeatureNames[feature];
+            // On long runs a ring at every flagged epoch would bury the line; every stride-th one is drawn, like the markers.
             var rings = attributed
                 .Where(e => e.Findings.Any(f => f.Feature == name) && double.IsFinite(e.HeldOutShare[feature]))
+                .Where((_, i) => i % stride == 0)
                 .ToList();
             if (rings.Count > 0)
             {

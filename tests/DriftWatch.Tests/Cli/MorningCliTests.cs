@@ -149,6 +149,7 @@ public sealed class MorningCliTests : IClassFixture<DemoStoreFixture>
     [InlineData("report")]
     [InlineData("export")]
     [InlineData("compare")]
+    [InlineData("check")]
     public void EveryCommandsHelpHasExamplesAndExitCodes(string command)
     {
         var (code, output, _) = Run(command, "--help");
