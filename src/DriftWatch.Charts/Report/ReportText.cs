@@ -8,8 +8,8 @@ namespace DriftWatch.Charts;
 public static class ReportText
 {
     // CommonMark lets any ASCII punctuation be escaped with a backslash; these are the ones that can start markup
-    // anywhere in a line or end a table cell.
-    private const string MarkdownSpecial = "\\`*_[]<>|~&#!{}()";
+    // anywhere in a line or end a table cell. Parentheses and '!' need none: with '[' and ']' escaped no link can form.
+    private const string MarkdownSpecial = "\\`*_[]<>|~&#";
 
     /// <summary>Text for HTML element content or a quoted attribute: control characters made visible (<see cref="DisplayText.Clean"/>), then &lt; &gt; &amp; &quot; &#39; encoded.</summary>
     public static string Html(string text, int maxLength = int.MaxValue) =>

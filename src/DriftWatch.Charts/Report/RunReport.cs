@@ -123,6 +123,10 @@ public static class RunReport
         h.Append($"<h1>Run “{ReportText.Html(history.RunName)}”</h1>\n");
         h.Append($"<p class=\"headline\">{ReportText.Html(Headline(history))}</p>\n");
         h.Append($"<p class=\"read-first\" id=\"caution\"><strong>Read this first.</strong> {ReportText.Html(Caution)}</p>\n");
+        h.Append("<section id=\"next\">\n<h2>What to look at next</h2>\n<ul>\n");
+        foreach (string step in NextSteps(history, findings))
+            h.Append($"<li>{ReportText.Html(step)}</li>\n");
+        h.Append("</ul>\n</section>\n");
 
         h.Append("<section id=\"run\">\n<h2>The run</h2>\n<table class=\"facts\">\n");
         foreach (var (name, value) in Facts(history, storePath))
@@ -196,6 +200,10 @@ public static class RunReport
         m.Append($"# Run “{ReportText.Markdown(history.RunName)}”\n\n");
         m.Append($"{ReportText.Markdown(Headline(history))}\n\n");
         m.Append($"> **Read this first.** {ReportText.Markdown(Caution)}\n\n");
+        m.Append("## What to look at next\n\n");
+        foreach (string step in NextSteps(history, findings))
+            m.Append($"- {ReportText.Markdown(step)}\n");
+        m.Append('\n');
 
         m.Append("## The run\n\n| | |\n|---|---|\n");
         foreach (var (name, value) in Facts(history, storePath))
@@ -237,6 +245,38 @@ public static class RunReport
         }
         m.Append($"---\nWritten by DriftWatch at {now.UtcDateTime.ToString("yyyy-MM-dd HH:mm", CultureInfo.InvariantCulture)} UTC from {ReportText.Markdown(storePath)}.\n");
         return m.ToString();
+    }
+
+    /// <summary>What a person could look at next, one plain sentence per kind of finding the run raised (names as stored; escape them for display).</summary>
+    public static IReadOnlyList<string> NextSteps(RunHistory history, IReadOnlyList<FindingSummary> findings)
+    {
+        ArgumentNullException.ThrowIfNull(history);
+        ArgumentNullException.ThrowIfNull(findings);
+        string Names(FindingKind kind) => string.Join(", ", findings.Where(f => f.Kind == kind && f.Feature.Length > 0).Select(f => $"'{f.Feature}'"));
+        var steps = new List<string>();
+        if (findings.Count == 0)
+        {
+            steps.Add("Nothing was flagged at any epoch. The charts still show what the model leans on; a feature with a large share deserves a look at how it is produced.");
+            return steps;
+        }
+        if (findings.Any(f => f.Kind == FindingKind.Leak))
+            steps.Add($"Check how {Names(FindingKind.Leak)} is produced for training rows and for held-out rows: a value that carries the label only where the model trained is a leak. The divergence chart shows the gap.");
+        if (findings.Any(f => f.Kind == FindingKind.ProbableLeak))
+            steps.Add($"Check whether {Names(FindingKind.ProbableLeak)} is derived from the label: it nearly fixes the label on held-out rows too, a pipeline fault the validation loss cannot show.");
+        if (findings.Any(f => f.Kind == FindingKind.MemorisedIdentifier))
+            steps.Add($"{Names(FindingKind.MemorisedIdentifier)} behaves like an identifier the model memorised: consider dropping it or grouping its rare values. The feature chart shows the rows it separates.");
+        if (findings.Any(f => f.Kind == FindingKind.Overfitting))
+        {
+            var best = history.Epochs.Where(e => e.ValidationLoss is double v && double.IsFinite(v)).MinBy(e => e.ValidationLoss!.Value);
+            steps.Add(best is null
+                ? "Validation loss rose past the policy's threshold: consider the weights of the epoch with the lowest validation loss."
+                : $"Validation loss rose past the policy's threshold: the lowest was at epoch {ReportText.Integer(best.Epoch)}, whose snapshot the store keeps.");
+        }
+        if (findings.Any(f => f.Kind == FindingKind.DominantFeature))
+            steps.Add($"{Names(FindingKind.DominantFeature)} decides on both halves; that may be genuine, but check how it is produced before trusting it.");
+        if (findings.Any(f => f.Kind is FindingKind.NumericalTrouble or FindingKind.MonitoringFailure))
+            steps.Add("Some epochs had numerical trouble or a monitoring failure; their attributions are not trusted ('driftwatch show' lists the problems).");
+        return steps;
     }
 
     private static List<(string Name, string Value)> Facts(RunHistory history, string storePath)
