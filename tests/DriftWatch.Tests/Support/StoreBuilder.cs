@@ -141,7 +141,7 @@ internal sealed class StoreBuilder
                         AlignmentGap = [.. (t.Alignment ?? []).Zip(h.Alignment ?? [], (a, b) => a - b)],
                         AlignmentGapWidth = [.. (h.Alignment ?? []).Select(_ => 0.2)],
                         Drift = epoch == 1 ? double.NaN : 0.1 / epoch,
-                        RankAgreementWithBest = 1 - 0.05 * epoch,
+                        RankAgreementWithBest = Math.Max(-1, 1 - 0.05 * epoch),
                         GeneralisationLoss = Math.Max(0, (epoch - 3) * 4.0),
                     },
                 });
