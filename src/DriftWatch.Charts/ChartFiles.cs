@@ -18,6 +18,13 @@ public static class ChartFiles
         return $"{Part(runName)}-{Part(chartName)}-{Part(method)}.png";
     }
 
+    /// <summary>One part of a file name made from any text: letters, digits, '.', '-' and '_' only, plus a short hash of the original when it had to change.</summary>
+    public static string SafePart(string text)
+    {
+        ArgumentNullException.ThrowIfNull(text);
+        return Part(text);
+    }
+
     private static string Part(string text)
     {
         var builder = new StringBuilder(Math.Min(text.Length, 60));

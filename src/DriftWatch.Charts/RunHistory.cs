@@ -23,6 +23,30 @@ public sealed record EpochRecord(
     ImmutableArray<string> Reasons,
     ImmutableArray<string> Problems)
 {
+    /// <summary>Per feature, its mean |attribution| on the held-out half (the importance); empty when not attributed.</summary>
+    public ImmutableArray<double> HeldOutMeanAbsolute { get; init; } = [];
+
+    /// <summary>Per feature, its mean |attribution| on the training half; empty when not attributed.</summary>
+    public ImmutableArray<double> TrainingMeanAbsolute { get; init; } = [];
+
+    /// <summary>Per feature, its mean signed attribution on the held-out half; empty when not attributed.</summary>
+    public ImmutableArray<double> HeldOutMeanSigned { get; init; } = [];
+
+    /// <summary>Per feature, its mean signed attribution on the training half; empty when not attributed.</summary>
+    public ImmutableArray<double> TrainingMeanSigned { get; init; } = [];
+
+    /// <summary>Per feature, its label alignment on the held-out half; empty without binary labels or when not attributed.</summary>
+    public ImmutableArray<double> HeldOutAlignment { get; init; } = [];
+
+    /// <summary>Per feature, its label alignment on the training half; empty like <see cref="HeldOutAlignment"/>.</summary>
+    public ImmutableArray<double> TrainingAlignment { get; init; } = [];
+
+    /// <summary>The detector's statistics (noise floors, drift score) of this epoch, or null when none were stored or the history's method is not the one the detector reads.</summary>
+    public EpochStatistics? Statistics { get; init; }
+
+    /// <summary>The findings behind this epoch's verdict; empty when there is none.</summary>
+    public ImmutableArray<Finding> Findings { get; init; } = [];
+
     /// <summary>Whether this epoch has an attribution map for the history's method.</summary>
     public bool IsAttributed => !HeldOutShare.IsDefaultOrEmpty;
 
@@ -51,8 +75,17 @@ public sealed class RunHistory
     /// <summary>The method read when none is named: Integrated Gradients.</summary>
     public const string DefaultMethod = "integrated-gradients";
 
-    private RunHistory(RunDocument run, string method, ImmutableArray<string> features, ImmutableArray<EpochRecord> epochs)
+    private readonly RunDocument _run;
+
+    private RunHistory(RunDocument run, string method, ImmutableArray<string> features, ImmutableArray<EpochRecord> epochs, ImmutableArray<FeatureRows> rows)
     {
+        _run = run;
+        PrimaryMethod = RunReview.PrimaryMethod(run);
+        MethodSettings = run.Methods.Select(m => new KeyValuePair<string, ImmutableSortedDictionary<string, string>>(
+            m.Name, m.Settings.ToImmutableSortedDictionary(StringComparer.Ordinal))).ToImmutableArray();
+        Policy = run.Policy;
+        FeatureKinds = run.Features.Select(f => f.Kind).ToImmutableArray();
+        Rows = rows;
         RunName = run.Name;
         CreatedUtc = run.CreatedUtc;
         Description = run.Description;
@@ -103,6 +136,39 @@ public sealed class RunHistory
     /// <summary>The complete epochs, in epoch order.</summary>
     public ImmutableArray<EpochRecord> Epochs { get; }
 
+    /// <summary>The method the detector reads (the run's first); statistics and noise floors belong to it.</summary>
+    public string PrimaryMethod { get; }
+
+    /// <summary>Every configured method with its settings, in configuration order.</summary>
+    public ImmutableArray<KeyValuePair<string, ImmutableSortedDictionary<string, string>>> MethodSettings { get; }
+
+    /// <summary>The gate policy the monitor used, as stored JSON (empty when none was stored).</summary>
+    public string Policy { get; }
+
+    /// <summary>Per feature, <c>Dense</c> or <c>Categorical</c>, in schema order.</summary>
+    public ImmutableArray<string> FeatureKinds { get; }
+
+    /// <summary>Per-row attributions of the features asked for when loading (see <see cref="Load"/>), in the order asked.</summary>
+    public ImmutableArray<FeatureRows> Rows { get; }
+
+    /// <summary>This history with the per-row attributions of <paramref name="features"/> read from <paramref name="store"/> (replacing any kept before).</summary>
+    /// <exception cref="DriftWatchException">A feature is not in the run.</exception>
+    public RunHistory WithRows(RunStore store, IReadOnlyCollection<string> features)
+    {
+        ArgumentNullException.ThrowIfNull(store);
+        ArgumentNullException.ThrowIfNull(features);
+        var indexes = FeatureIndexes(_run, FeatureNames, features);
+        var maps = FirstMapPerEpoch(store, _run, Method, FeatureNames.Length);
+        return new RunHistory(_run, Method, FeatureNames, Epochs, [.. indexes.Select(f => RowsOf(_run, maps, f, FeatureNames[f]))]);
+    }
+
+    /// <summary>The index of the feature called <paramref name="name"/>, or −1.</summary>
+    public int FeatureIndex(string name)
+    {
+        ArgumentNullException.ThrowIfNull(name);
+        return FeatureNames.IndexOf(name, StringComparer.Ordinal);
+    }
+
     /// <summary>The last epoch that has an attribution map for <see cref="Method"/>, or null.</summary>
     public EpochRecord? LastAttributed => Epochs.LastOrDefault(e => e.IsAttributed);
 
@@ -110,9 +176,10 @@ public sealed class RunHistory
     /// <param name="store">An open store.</param>
     /// <param name="runName">The run's name.</param>
     /// <param name="method">The attribution method whose maps to read. Default: <see cref="DefaultMethod"/>.</param>
+    /// <param name="rowsOf">Features whose per-row attributions to keep (for the feature detail chart); default none, which keeps memory small on long runs.</param>
     /// <exception cref="StoreException">No such run (the message lists the runs there are), or stored data that does not fit together.</exception>
-    /// <exception cref="DriftWatchException">The run was not attributed with <paramref name="method"/>.</exception>
-    public static RunHistory Load(RunStore store, string runName, string method = DefaultMethod)
+    /// <exception cref="DriftWatchException">The run was not attributed with <paramref name="method"/>, or a feature in <paramref name="rowsOf"/> is not in the run.</exception>
+    public static RunHistory Load(RunStore store, string runName, string method = DefaultMethod, IReadOnlyCollection<string>? rowsOf = null)
     {
         ArgumentNullException.ThrowIfNull(store);
         ArgumentNullException.ThrowIfNull(runName);
@@ -131,17 +198,13 @@ public sealed class RunHistory
         }
 
         var features = run.Features.Select(f => f.Name).ToImmutableArray();
-        var maps = new Dictionary<int, MapDocument>();
-        foreach (var map in store.Maps(run.Id, method))
-        {
-            // One target per run today; should a run hold several, the first stored one is read.
-            if (maps.ContainsKey(map.Epoch))
-                continue;
-            CheckWidth(store, run, map.Epoch, "held-out", map.HeldOut.Share, features.Length);
-            CheckWidth(store, run, map.Epoch, "training", map.Training.Share, features.Length);
-            maps[map.Epoch] = map;
-        }
+        var maps = FirstMapPerEpoch(store, run, method, features.Length);
         var verdicts = store.Verdicts(run.Id).ToDictionary(v => v.Epoch);
+        // Statistics come from the detector, which reads the primary method's maps only.
+        var statistics = method == RunReview.PrimaryMethod(run)
+            ? store.StatisticsOf(run.Id).Where(s => s.Statistics is not null && s.Statistics.ShareHeldOut.Length == features.Length).ToDictionary(s => s.Epoch, s => s.Statistics!)
+            : [];
+        var rowFeatures = FeatureIndexes(run, features, rowsOf ?? []);
 
         var epochs = store.Epochs(run.Id).Select(e =>
         {
@@ -155,9 +218,69 @@ public sealed class RunHistory
                 map is null ? [] : [.. map.Training.Share],
                 verdict is null ? null : ParseVerdict(store, run, verdict),
                 verdict is null ? [] : Reasons(verdict),
-                [.. e.Problems]);
+                [.. e.Problems])
+            {
+                HeldOutMeanAbsolute = map is null ? [] : [.. map.HeldOut.MeanAbsolute],
+                TrainingMeanAbsolute = map is null ? [] : [.. map.Training.MeanAbsolute],
+                HeldOutMeanSigned = map is null ? [] : [.. map.HeldOut.MeanSigned],
+                TrainingMeanSigned = map is null ? [] : [.. map.Training.MeanSigned],
+                HeldOutAlignment = map?.HeldOut.Alignment is { } heldOut && heldOut.Length == features.Length ? [.. heldOut] : [],
+                TrainingAlignment = map?.Training.Alignment is { } training && training.Length == features.Length ? [.. training] : [],
+                Statistics = statistics.GetValueOrDefault(e.Epoch),
+                Findings = verdict is null ? [] : FindingsOf(store, run, verdict),
+            };
         }).ToImmutableArray();
-        return new RunHistory(run, method, features, epochs);
+        var rows = rowFeatures.Select(f => RowsOf(run, maps, f, features[f])).ToImmutableArray();
+        return new RunHistory(run, method, features, epochs, rows);
+    }
+
+    private static Dictionary<int, MapDocument> FirstMapPerEpoch(RunStore store, RunDocument run, string method, int features)
+    {
+        var maps = new Dictionary<int, MapDocument>();
+        foreach (var map in store.Maps(run.Id, method))
+        {
+            // One target per run today; should a run hold several, the first stored one is read.
+            if (maps.ContainsKey(map.Epoch))
+                continue;
+            CheckWidth(store, run, map.Epoch, "held-out", map.HeldOut.Share, features);
+            CheckWidth(store, run, map.Epoch, "training", map.Training.Share, features);
+            if (map.Features != features || map.Scores.Length < (long)map.Rows * map.Features * sizeof(float))
+                throw new StoreException($"store '{store.Path}': map of run '{DisplayText.Clean(run.Name)}' at epoch {map.Epoch} has {map.Features} features and {map.Scores.Length} bytes of scores for {map.Rows} rows; the run has {features} features; the store is damaged");
+            maps[map.Epoch] = map;
+        }
+        return maps;
+    }
+
+    private static int[] FeatureIndexes(RunDocument run, ImmutableArray<string> features, IEnumerable<string> names) =>
+        names.Distinct(StringComparer.Ordinal).Select(name =>
+        {
+            int index = features.IndexOf(name, StringComparer.Ordinal);
+            return index >= 0
+                ? index
+                : throw new DriftWatchException($"run '{DisplayText.Clean(run.Name)}' has no feature '{DisplayText.Clean(name)}'; its features: {DisplayText.Clean(string.Join(", ", features), 400)}");
+        }).ToArray();
+
+    // One feature's column of every attributed epoch's map, split into the halves (held-out rows are stored first).
+    private static FeatureRows RowsOf(RunDocument run, Dictionary<int, MapDocument> maps, int feature, string name)
+    {
+        var epochs = maps.Values.OrderBy(m => m.Epoch).Select(map =>
+        {
+            var scores = FloatBytes.ToFloats(map.Scores);
+            int rows = map.Rows;
+            int heldOut = Math.Min(run.HeldOutRows, rows);
+            var heldOutScores = new float[heldOut];
+            var trainingScores = new float[rows - heldOut];
+            for (int r = 0; r < rows; r++)
+            {
+                float value = scores[r * map.Features + feature];
+                if (r < heldOut)
+                    heldOutScores[r] = value;
+                else
+                    trainingScores[r - heldOut] = value;
+            }
+            return new EpochRows(map.Epoch, [.. heldOutScores], [.. trainingScores]);
+        }).ToImmutableArray();
+        return new FeatureRows(name, feature, epochs);
     }
 
     // Each finding carries its own severity: a Caution beside a Halt must not read as a Halt.
@@ -165,6 +288,18 @@ public sealed class RunHistory
         verdict.Findings.Count > 0
             ? [.. verdict.Findings.Select(f => $"{f.Severity}: {f.Evidence}")]
             : [.. verdict.Reasons.Select(r => $"{verdict.Kind}: {r}")];
+
+    private static ImmutableArray<Finding> FindingsOf(RunStore store, RunDocument run, VerdictDocument verdict)
+    {
+        try
+        {
+            return VerdictRecords.FromDocument(verdict).Findings;
+        }
+        catch (ArgumentException e)
+        {
+            throw new StoreException($"store '{store.Path}': a finding of run '{DisplayText.Clean(run.Name)}' at epoch {verdict.Epoch} cannot be read ({DisplayText.Clean(e.Message)}); the store is damaged or from a newer DriftWatch", e);
+        }
+    }
 
     private static double? Metric(EpochDocument epoch, string key) =>
         epoch.Metrics.TryGetValue(key, out double value) ? value : null;
@@ -183,3 +318,15 @@ public sealed class RunHistory
         }
     }
 }
+
+/// <summary>One feature's per-row attributions at one epoch, split by half.</summary>
+/// <param name="Epoch">The epoch.</param>
+/// <param name="HeldOut">Scores of the held-out rows, in probe order.</param>
+/// <param name="Training">Scores of the training rows, in probe order.</param>
+public sealed record EpochRows(int Epoch, ImmutableArray<float> HeldOut, ImmutableArray<float> Training);
+
+/// <summary>One feature's per-row attributions across the attributed epochs of a run.</summary>
+/// <param name="Feature">The feature's name.</param>
+/// <param name="FeatureIndex">Its index in the schema.</param>
+/// <param name="Epochs">One entry per attributed epoch, in epoch order.</param>
+public sealed record FeatureRows(string Feature, int FeatureIndex, ImmutableArray<EpochRows> Epochs);

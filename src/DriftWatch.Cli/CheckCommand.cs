@@ -24,6 +24,9 @@ internal static class CheckCommand
             "check",
             "Print the gate's verdict for the latest complete epoch of a run, with its reasons, and exit 1 when it is Halt, "
             + "so a scheduler can stop the training. Safe to run while training writes the store. A Halt is advice to a person, not proof.\n"
+            + "Examples:\n"
+            + "  driftwatch check night-7 --store /runs/store.litedb; [ $? -eq 1 ] && scancel \"$SLURM_JOB_ID\"\n"
+            + "  driftwatch check night-7 --policy strict.json --json\n"
             + "Exit codes: 0 Continue or Caution (or no epoch yet); 1 Halt advised; 2 bad input (missing or foreign store, unknown run, bad policy file); 3 internal error.")
         {
             run,

@@ -49,9 +49,15 @@ public static class CliApp
         var store = CommonOptions.Store();
         var root = new RootCommand(
             "DriftWatch: read the run store a monitored training wrote; list runs, show their epochs and findings, render charts, "
-            + "check the gate's verdict (exit 1 on Halt) for a scheduler, and re-attribute stored snapshots with another method. Attributions describe the model, not causes; a Halt is advice, not proof.\n"
+            + "write a report, compare two runs, export tidy tables, check the gate's verdict (exit 1 on Halt) for a scheduler, "
+            + "re-attribute stored snapshots with another method, and follow a Python run folder. "
+            + "Attributions describe the model, not causes; a Halt is advice, not proof.\n"
             + $"The store is --store PATH, else ${CommonOptions.StoreVariable}, else {CommonOptions.DefaultStoreFile} in the current folder; "
             + "only reattribute (new maps beside the originals) and follow (the run it watches) write to it; no other command creates or changes it.\n"
+            + "Examples:\n"
+            + "  driftwatch runs --store night.litedb\n"
+            + "  driftwatch report night-7 --store night.litedb --out reports\n"
+            + "  driftwatch <command> --help\n"
             + ExitCodes.AllHelp)
         {
             store,
@@ -61,6 +67,9 @@ public static class CliApp
             CheckCommand.Create(store),
             ReattributeCommand.Create(store),
             FollowCommand.Create(store),
+            ReportCommand.Create(store),
+            ExportCommand.Create(store),
+            CompareCommand.Create(store),
         };
         return root;
     }

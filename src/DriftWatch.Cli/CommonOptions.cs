@@ -76,6 +76,64 @@ internal static class CommonOptions
         };
     }
 
+    /// <summary>The <c>--feature NAME</c> option: one feature of the run, by its name as stored.</summary>
+    public static Option<string?> Feature() => new("--feature")
+    {
+        Description = "A feature, by its name as the run stores it: the feature chart's feature, drawn first in the divergence chart. Default: the first feature a finding names, else the top one.",
+        HelpName = "NAME",
+    };
+
+    /// <summary>The <c>--value</c> option of the heatmap.</summary>
+    public static Option<string> HeatmapValueOption()
+    {
+        var option = new Option<string>("--value")
+        {
+            Description = "What the heatmap's cells show: share (held-out share of importance), signed (held-out mean signed attribution, orange below zero, blue above) or gap (training minus held-out share).",
+            HelpName = "VALUE",
+            DefaultValueFactory = _ => "share",
+        };
+        option.AcceptOnlyFromAmong("share", "signed", "gap");
+        return option;
+    }
+
+    /// <summary>The <c>--width</c> option of charts.</summary>
+    public static Option<int> Width() =>
+        Bounded("--width", $"Picture width in pixels ({ChartSize.MinimumSide} to {ChartSize.MaximumSide}).", ChartSize.Default.Width, ChartSize.MinimumSide, ChartSize.MaximumSide, "PIXELS");
+
+    /// <summary>The <c>--height</c> option of charts.</summary>
+    public static Option<int> Height() =>
+        Bounded("--height", $"Picture height in pixels ({ChartSize.MinimumSide} to {ChartSize.MaximumSide}).", ChartSize.Default.Height, ChartSize.MinimumSide, ChartSize.MaximumSide, "PIXELS");
+
+    /// <summary>An <c>--out FOLDER</c> option with a default folder.</summary>
+    public static Option<string> OutputFolder(string defaultFolder, string description)
+    {
+        var option = new Option<string>("--out")
+        {
+            Description = description,
+            HelpName = "FOLDER",
+            DefaultValueFactory = _ => defaultFolder,
+        };
+        option.Validators.Add(result =>
+        {
+            if (string.IsNullOrWhiteSpace(result.GetValueOrDefault<string>()))
+                result.AddError("--out must name a folder; got an empty path");
+        });
+        return option;
+    }
+
+    /// <summary>The full path of an output folder; refuses a path that is a file.</summary>
+    /// <exception cref="DriftWatchException">The path names a file.</exception>
+    public static string Folder(string path)
+    {
+        string folder = System.IO.Path.GetFullPath(path);
+        if (File.Exists(folder))
+            throw new DriftWatchException($"--out '{DisplayText.Clean(folder)}' is a file; pass a folder");
+        return folder;
+    }
+
+    /// <summary>The <c>--json</c> option: one JSON document on standard output instead of text.</summary>
+    public static Option<bool> Json(string what) => new("--json") { Description = $"Print {what} as JSON instead of text, for scripts." };
+
     /// <summary>The <c>run</c> argument: a run's name as stored.</summary>
     public static Argument<string> Run() => new("run") { Description = "The run's name, as 'driftwatch runs' lists it." };
 

@@ -11,15 +11,27 @@ internal static class RunsCommand
     /// <summary>Builds the command.</summary>
     public static Command Create(Option<string> store)
     {
+        var json = CommonOptions.Json("the runs (an array, one object per run)");
         var command = new Command(
             "runs",
             "List the runs in the store: name, when created, epochs stored, the last epoch's losses, the last verdict and the most severe one.\n"
-            + ExitCodes.ReadingCommandsHelp);
+            + "Examples:\n"
+            + "  driftwatch runs --store /runs/store.litedb\n"
+            + "  DRIFTWATCH_STORE=/runs/store.litedb driftwatch runs --json\n"
+            + ExitCodes.ReadingCommandsHelp)
+        {
+            json,
+        };
         command.SetAction(parse =>
         {
             var output = parse.InvocationConfiguration.Output;
             using var runStore = CommonOptions.OpenStore(parse, store);
             var runs = runStore.Runs();
+            if (parse.GetValue(json))
+            {
+                WriteJson(output, runStore, runs);
+                return ExitCodes.Fine;
+            }
             if (runs.Count == 0)
             {
                 output.WriteLine($"No runs in {DisplayText.Clean(runStore.Path)} yet.");
@@ -54,6 +66,38 @@ internal static class RunsCommand
         });
         return command;
     }
+
+    private static void WriteJson(TextWriter output, RunStore runStore, IReadOnlyList<RunDocument> runs)
+    {
+        var list = runs.Select(run =>
+        {
+            var epochs = runStore.Epochs(run.Id);
+            var verdicts = runStore.Verdicts(run.Id);
+            var last = epochs.Count == 0 ? null : epochs[^1];
+            var worst = verdicts
+                .Select(v => (Verdict: v, Kind: Enum.TryParse<VerdictKind>(v.Kind, out var kind) ? kind : VerdictKind.Continue))
+                .OrderByDescending(v => v.Kind)
+                .ThenBy(v => v.Verdict.Epoch)
+                .FirstOrDefault();
+            return new Dictionary<string, object?>
+            {
+                ["name"] = run.Name,
+                ["createdUtc"] = (run.CreatedUtc.Kind == DateTimeKind.Local ? run.CreatedUtc.ToUniversalTime() : run.CreatedUtc).ToString("yyyy-MM-ddTHH:mm:ssZ", System.Globalization.CultureInfo.InvariantCulture),
+                ["description"] = run.Description,
+                ["epochs"] = epochs.Count,
+                ["lastEpoch"] = last?.Epoch,
+                ["trainLoss"] = Finite(last, "train_loss"),
+                ["validationLoss"] = Finite(last, "validation_loss"),
+                ["lastVerdict"] = verdicts.Count == 0 ? null : verdicts[^1].Kind,
+                ["worstVerdict"] = worst.Verdict?.Kind,
+                ["worstVerdictEpoch"] = worst.Verdict?.Epoch,
+            };
+        }).ToList();
+        output.WriteLine(System.Text.Json.JsonSerializer.Serialize(list));
+    }
+
+    private static double? Finite(EpochDocument? epoch, string key) =>
+        epoch is not null && epoch.Metrics.TryGetValue(key, out double value) && double.IsFinite(value) ? value : null;
 
     // The most severe verdict and the first epoch it was given, so a Halt earlier in the run is not hidden by a later Continue.
     private static string Worst(IReadOnlyList<VerdictDocument> verdicts)

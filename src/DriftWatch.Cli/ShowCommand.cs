@@ -17,16 +17,21 @@ internal static class ShowCommand
         var run = CommonOptions.Run();
         var method = CommonOptions.Method();
         var top = CommonOptions.Bounded("--top", $"How many features to list per epoch, by share of importance on the held-out half (1 to {MaximumTop}).", 3, 1, MaximumTop);
+        var json = CommonOptions.Json("the run (header, every epoch with every feature's share on each half, the findings)");
         var command = new Command(
             "show",
             "Show a run epoch by epoch: train and validation loss, the verdict, the features with the largest share of "
             + "importance on the held-out half, and how much larger each one's share is on the training half (percentage points). "
             + "Verdict reasons and monitoring problems follow the table.\n"
+            + "Examples:\n"
+            + "  driftwatch show night-7 --top 5\n"
+            + "  driftwatch show night-7 --json | jq '.findings'\n"
             + ExitCodes.ReadingCommandsHelp)
         {
             run,
             method,
             top,
+            json,
         };
         command.SetAction(parse =>
         {
@@ -45,6 +50,11 @@ internal static class ShowCommand
                 maps = runStore.Maps(document.Id);
                 reattributed = runStore.MapMethods(document.Id).Where(m => !history.Methods.Contains(m)).ToList();
             }
+            if (parse.GetValue(json))
+            {
+                WriteJson(output, history, path);
+                return ExitCodes.Fine;
+            }
             WriteHeader(output, history, path);
             if (history.Epochs.IsEmpty)
             {
@@ -61,6 +71,47 @@ internal static class ShowCommand
             return ExitCodes.Fine;
         });
         return command;
+    }
+
+    private static void WriteJson(TextWriter output, RunHistory history, string path)
+    {
+        static double? Number(double? value) => value is double v && double.IsFinite(v) ? v : null;
+        var document = new Dictionary<string, object?>
+        {
+            ["run"] = history.RunName,
+            ["store"] = path,
+            ["createdUtc"] = history.CreatedUtc.ToString("yyyy-MM-ddTHH:mm:ssZ", System.Globalization.CultureInfo.InvariantCulture),
+            ["description"] = history.Description,
+            ["probe"] = new Dictionary<string, object> { ["heldOutRows"] = history.HeldOutRows, ["trainingRows"] = history.TrainingRows, ["hash"] = history.ProbeHash },
+            ["method"] = history.Method,
+            ["methods"] = history.Methods.ToArray(),
+            ["target"] = history.Target,
+            ["baseline"] = history.Baseline,
+            ["features"] = history.FeatureNames.ToArray(),
+            ["epochs"] = history.Epochs.Select(e => new Dictionary<string, object?>
+            {
+                ["epoch"] = e.Epoch,
+                ["trainLoss"] = Number(e.TrainLoss),
+                ["validationLoss"] = Number(e.ValidationLoss),
+                ["verdict"] = e.Verdict?.ToString(),
+                ["heldOutShare"] = e.IsAttributed ? e.HeldOutShare.Select(v => Number(v)).ToArray() : null,
+                ["trainingShare"] = e.IsAttributed ? e.TrainingShare.Select(v => Number(v)).ToArray() : null,
+                ["driftScore"] = Number(e.Statistics?.Drift),
+                ["problems"] = e.Problems.ToArray(),
+            }).ToList(),
+            ["findings"] = RunFindings.Summarise(history).Select(f => new Dictionary<string, object?>
+            {
+                ["kind"] = f.Kind.ToString(),
+                ["feature"] = f.Feature,
+                ["severity"] = f.Severity.ToString(),
+                ["epochs"] = f.FlaggedEpochs.ToArray(),
+                ["since"] = f.Since,
+                ["size"] = Number(f.Size),
+                ["noiseFloor"] = Number(f.NoiseFloor),
+                ["evidence"] = f.Evidence,
+            }).ToList(),
+        };
+        output.WriteLine(System.Text.Json.JsonSerializer.Serialize(document));
     }
 
     private static void WriteHeader(TextWriter output, RunHistory history, string path)

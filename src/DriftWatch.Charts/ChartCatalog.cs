@@ -1,0 +1,141 @@
+using DriftWatch.Storage;
+
+namespace DriftWatch.Charts;
+
+/// <summary>The kinds of chart of one run.</summary>
+public enum ChartKind
+{
+    /// <summary><see cref="TrendChart"/>.</summary>
+    Trend,
+
+    /// <summary><see cref="DivergenceChart"/>.</summary>
+    Divergence,
+
+    /// <summary><see cref="HeatmapChart"/>.</summary>
+    Heatmap,
+
+    /// <summary><see cref="DriftChart"/>.</summary>
+    Drift,
+
+    /// <summary><see cref="FeatureDetailChart"/>.</summary>
+    Feature,
+}
+
+/// <summary>What to draw beyond the kind: how many features, which feature, which heatmap value.</summary>
+public sealed record ChartChoices
+{
+    /// <summary>Features in the trend chart. Default <see cref="TrendChart.DefaultTopFeatures"/>.</summary>
+    public int TopFeatures { get; init; } = TrendChart.DefaultTopFeatures;
+
+    /// <summary>Columns of the divergence chart. Default <see cref="DivergenceChart.DefaultFeatures"/>.</summary>
+    public int DivergenceFeatures { get; init; } = DivergenceChart.DefaultFeatures;
+
+    /// <summary>The feature of the feature detail chart (also drawn first in the divergence chart); null picks <see cref="ChartCatalog.DefaultFeature"/>.</summary>
+    public string? Feature { get; init; }
+
+    /// <summary>What the heatmap shows. Default <see cref="HeatmapValue.Share"/>.</summary>
+    public HeatmapValue HeatmapValue { get; init; } = HeatmapValue.Share;
+
+    /// <summary>Whether the heatmap may be drawn taller than the size asked for, so that many features' names stay readable (<see cref="HeatmapChart.ReadableHeight"/>). Default true.</summary>
+    public bool GrowHeatmap { get; init; } = true;
+}
+
+/// <summary>Builds the charts of a run by kind, and renders a set of them to a folder.</summary>
+public static class ChartCatalog
+{
+    /// <summary>Every kind, in the order a report shows them.</summary>
+    public static IReadOnlyList<ChartKind> All { get; } = [ChartKind.Trend, ChartKind.Divergence, ChartKind.Heatmap, ChartKind.Drift, ChartKind.Feature];
+
+    /// <summary>The kind's name as the command line spells it.</summary>
+    public static string Spelling(ChartKind kind) => kind.ToString().ToLowerInvariant();
+
+    /// <summary>Parses a kind as the command line spells it; <c>all</c> gives every kind.</summary>
+    /// <exception cref="DriftWatchException">Not a known kind.</exception>
+    public static IReadOnlyList<ChartKind> Parse(string text)
+    {
+        ArgumentNullException.ThrowIfNull(text);
+        string word = text.Trim().ToLowerInvariant();
+        if (word == "all")
+            return All;
+        foreach (var kind in All)
+        {
+            if (Spelling(kind) == word)
+                return [kind];
+        }
+        throw new DriftWatchException($"--kind must be one of {string.Join(", ", All.Select(Spelling))} or all; got '{DisplayText.Clean(text, 40)}'");
+    }
+
+    /// <summary>The feature a detail chart shows when none is named: the first one a finding names, else the top one by held-out share; null when nothing was attributed.</summary>
+    public static string? DefaultFeature(RunHistory history)
+    {
+        ArgumentNullException.ThrowIfNull(history);
+        var flagged = DivergenceChart.FlaggedFeatures(history);
+        if (flagged.Count > 0)
+            return history.FeatureNames[flagged[0]];
+        var top = history.LastAttributed?.TopByHeldOutShare(1) ?? [];
+        return top.IsEmpty ? null : history.FeatureNames[top[0]];
+    }
+
+    /// <summary>The chart of <paramref name="kind"/> with <paramref name="choices"/>; a feature detail chart gets the chosen or default feature.</summary>
+    /// <exception cref="DriftWatchException">A choice is out of range, or a feature chart of a run with no attributed epoch and no feature named.</exception>
+    public static IChart Create(ChartKind kind, RunHistory history, ChartChoices choices)
+    {
+        ArgumentNullException.ThrowIfNull(history);
+        ArgumentNullException.ThrowIfNull(choices);
+        return kind switch
+        {
+            ChartKind.Trend => new TrendChart(choices.TopFeatures),
+            ChartKind.Divergence => new DivergenceChart(choices.DivergenceFeatures, choices.Feature),
+            ChartKind.Heatmap => new HeatmapChart(choices.HeatmapValue),
+            ChartKind.Drift => new DriftChart(),
+            ChartKind.Feature => new FeatureDetailChart(choices.Feature ?? DefaultFeature(history)
+                ?? throw new DriftWatchException($"run '{DisplayText.Clean(history.RunName)}' has no attributed epoch with method '{DisplayText.Clean(history.Method)}'; name a feature with --feature to chart one")),
+            _ => throw new ArgumentOutOfRangeException(nameof(kind), kind, "unknown chart kind"),
+        };
+    }
+
+    /// <summary>
+    /// Renders the charts of <paramref name="kinds"/> into <paramref name="folder"/> and returns their paths in order.
+    /// Reads the per-row scores the feature chart needs from <paramref name="store"/> only when it is asked for.
+    /// </summary>
+    /// <param name="store">The open store the history came from.</param>
+    /// <param name="history">The run's history.</param>
+    /// <param name="kinds">Which charts.</param>
+    /// <param name="choices">What to draw in them.</param>
+    /// <param name="folder">The output folder; created when missing.</param>
+    /// <param name="size">The picture size.</param>
+    /// <param name="progress">Called with each chart's kind before it is rendered; may be null.</param>
+    /// <exception cref="DriftWatchException">A choice is out of range or a file cannot be written.</exception>
+    public static IReadOnlyList<(ChartKind Kind, string Path)> RenderAll(
+        RunStore store, RunHistory history, IReadOnlyList<ChartKind> kinds, ChartChoices choices, string folder, ChartSize size, Action<ChartKind>? progress = null)
+    {
+        ArgumentNullException.ThrowIfNull(store);
+        ArgumentNullException.ThrowIfNull(history);
+        ArgumentNullException.ThrowIfNull(kinds);
+        ArgumentNullException.ThrowIfNull(choices);
+        ArgumentNullException.ThrowIfNull(folder);
+        var charts = kinds.Select(k => (Kind: k, Chart: Create(k, history, choices))).ToList();
+        var detail = charts.Select(c => c.Chart).OfType<FeatureDetailChart>().FirstOrDefault();
+        if (detail is not null && !history.Rows.Any(r => r.Feature == detail.Feature))
+            history = history.WithRows(store, [detail.Feature]);
+
+        var written = new List<(ChartKind, string)>();
+        foreach (var (kind, chart) in charts)
+        {
+            progress?.Invoke(kind);
+            string path = Path.Combine(folder, ChartFiles.FileName(history.RunName, chart.Name, history.Method));
+            var chartSize = kind == ChartKind.Heatmap && choices.GrowHeatmap ? new ChartSize(size.Width, HeatmapChart.ReadableHeight(history, size.Height)) : size;
+            try
+            {
+                Directory.CreateDirectory(folder);
+                chart.Render(history, path, chartSize);
+            }
+            catch (Exception e) when (e is IOException or UnauthorizedAccessException)
+            {
+                throw new DriftWatchException($"cannot write the chart to '{DisplayText.Clean(path)}': {e.Message}", e);
+            }
+            written.Add((kind, path));
+        }
+        return written;
+    }
+}

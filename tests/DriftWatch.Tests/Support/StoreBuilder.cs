@@ -1,0 +1,191 @@
+using DriftWatch.Attribution;
+using DriftWatch.Detection;
+using DriftWatch.Storage;
+
+namespace DriftWatch.Tests.Support;
+
+/// <summary>
+/// Writes a run straight into a store, without training: invented, seeded per-row scores, the per-half aggregates
+/// computed from them, statistics with noise floors and a verdict per epoch. For charts, reports and exports of runs
+/// whose shape (many features, hostile names) no demo produces.
+/// </summary>
+internal sealed class StoreBuilder
+{
+    private string _run = "built-run";
+    private string[] _features = ["alpha", "beta", "gamma"];
+    private int _epochs = 6;
+    private int _rowsPerHalf = 24;
+    private int _seed = 11;
+    private int _flagged = -1;
+    private int _haltFrom = int.MaxValue;
+    private bool _statistics = true;
+
+    public StoreBuilder WithRun(string name)
+    {
+        _run = name;
+        return this;
+    }
+
+    public StoreBuilder WithFeatures(params string[] names)
+    {
+        _features = names;
+        return this;
+    }
+
+    public StoreBuilder WithManyFeatures(int count)
+    {
+        _features = [.. Enumerable.Range(0, count).Select(i => $"feature {i:D3}")];
+        return this;
+    }
+
+    public StoreBuilder WithEpochs(int epochs)
+    {
+        _epochs = epochs;
+        return this;
+    }
+
+    public StoreBuilder WithSeed(int seed)
+    {
+        _seed = seed;
+        return this;
+    }
+
+    /// <summary>Feature <paramref name="feature"/> gets a Leak finding with a Halt from epoch <paramref name="fromEpoch"/> on.</summary>
+    public StoreBuilder WithLeakFinding(int feature, int fromEpoch)
+    {
+        _flagged = feature;
+        _haltFrom = fromEpoch;
+        return this;
+    }
+
+    public StoreBuilder WithoutStatistics()
+    {
+        _statistics = false;
+        return this;
+    }
+
+    /// <summary>Writes the run into the store at <paramref name="path"/> (created when missing) and returns it.</summary>
+    public RunDocument Build(string path)
+    {
+        using var store = RunStore.OpenForWriting(path);
+        int features = _features.Length;
+        int rows = 2 * _rowsPerHalf;
+        var random = new Random(_seed);
+        var labels = new float[rows];
+        for (int r = 0; r < rows; r++)
+            labels[r] = r % 2;
+        var run = store.AddRun(new RunDocument
+        {
+            Name = _run,
+            CreatedUtc = new DateTime(2026, 1, 2, 3, 4, 0, DateTimeKind.Utc),
+            Description = "built by StoreBuilder: invented scores",
+            Features = [.. _features.Select((n, i) => new FeatureDocument { Name = n, Kind = "Dense", FirstColumn = i, ColumnCount = 1 })],
+            ProbeHash = "0123456789abcdef",
+            HeldOutRows = _rowsPerHalf,
+            TrainingRows = _rowsPerHalf,
+            DenseCount = features,
+            ProbeDense = FloatBytes.FromFloats(new float[rows * features]),
+            ProbeLabels = FloatBytes.FromFloats(labels),
+            Methods = [new MethodDocument { Name = "integrated-gradients", Settings = new() { ["steps"] = "16" } }],
+            Target = "logit",
+            Baseline = "zero",
+            Policy = GatePolicy.Default.ToJson(),
+        });
+        int[] heldOut = [.. Enumerable.Range(0, _rowsPerHalf)];
+        int[] training = [.. Enumerable.Range(_rowsPerHalf, _rowsPerHalf)];
+        for (int epoch = 1; epoch <= _epochs; epoch++)
+        {
+            var scores = new float[rows * features];
+            for (int r = 0; r < rows; r++)
+            {
+                for (int f = 0; f < features; f++)
+                {
+                    // Feature f weighs 1/(f+1); the flagged feature grows on training rows only, epoch after epoch.
+                    double scale = 1.0 / (f + 1) * (f == _flagged && r >= _rowsPerHalf ? 1 + 0.5 * epoch : 1);
+                    scores[r * features + f] = (float)((random.NextDouble() * 2 - 0.6) * scale);
+                }
+            }
+            var map = new AttributionMap(rows, features, scores, null, null);
+            var h = HalfImportance.Compute(map, heldOut, labels);
+            var t = HalfImportance.Compute(map, training, labels);
+            store.WriteMap(new MapDocument
+            {
+                RunId = run.Id,
+                Epoch = epoch,
+                Method = "integrated-gradients",
+                Target = "logit",
+                Rows = rows,
+                Features = features,
+                Scores = FloatBytes.FromFloats(scores),
+                HeldOut = Document(h),
+                Training = Document(t),
+            });
+            if (_statistics)
+            {
+                store.WriteStatistics(new StatisticsDocument
+                {
+                    RunId = run.Id,
+                    Epoch = epoch,
+                    Statistics = new EpochStatistics
+                    {
+                        Epoch = epoch,
+                        Trusted = true,
+                        ShareHeldOut = h.Share,
+                        ShareTraining = t.Share,
+                        ShareHeldOutWidth = [.. h.Share.Select(s => s * 0.2)],
+                        ShareTrainingWidth = [.. t.Share.Select(s => s * 0.25)],
+                        ShareGap = [.. t.Share.Zip(h.Share, (a, b) => a - b)],
+                        ShareGapWidth = [.. h.Share.Select(s => s * 0.3)],
+                        AlignmentHeldOut = h.Alignment ?? [],
+                        AlignmentTraining = t.Alignment ?? [],
+                        AlignmentGap = [.. (t.Alignment ?? []).Zip(h.Alignment ?? [], (a, b) => a - b)],
+                        AlignmentGapWidth = [.. (h.Alignment ?? []).Select(_ => 0.2)],
+                        Drift = epoch == 1 ? double.NaN : 0.1 / epoch,
+                        RankAgreementWithBest = Math.Max(-1, 1 - 0.05 * epoch),
+                        GeneralisationLoss = Math.Max(0, (epoch - 3) * 4.0),
+                    },
+                });
+            }
+            bool halt = epoch >= _haltFrom;
+            var findings = halt
+                ? new List<FindingDocument>
+                {
+                    new()
+                    {
+                        Kind = nameof(FindingKind.Leak),
+                        Feature = _features[_flagged],
+                        Severity = nameof(VerdictKind.Halt),
+                        Size = 0.2,
+                        NoiseFloor = 0.05,
+                        Epochs = [_haltFrom, epoch],
+                        Evidence = $"'{_features[_flagged]}' takes more attribution on training rows than held-out rows",
+                    },
+                }
+                : [];
+            store.WriteVerdict(new VerdictDocument
+            {
+                RunId = run.Id,
+                Epoch = epoch,
+                Kind = halt ? nameof(VerdictKind.Halt) : nameof(VerdictKind.Continue),
+                Reasons = [.. findings.Select(f => f.Evidence)],
+                Findings = findings,
+            });
+            store.WriteEpoch(new EpochDocument
+            {
+                RunId = run.Id,
+                Epoch = epoch,
+                Metrics = new() { ["train_loss"] = 1.0 / epoch, ["validation_loss"] = 0.6 + 0.02 * epoch * epoch / 4, ["accuracy"] = 0.5 + 0.04 * epoch },
+                RecordedUtc = new DateTime(2026, 1, 2, 4, 0, 0, DateTimeKind.Utc).AddMinutes(epoch),
+            });
+        }
+        return run;
+    }
+
+    private static ImportanceDocument Document(HalfImportance half) => new()
+    {
+        MeanAbsolute = half.MeanAbsolute,
+        MeanSigned = half.MeanSigned,
+        Share = half.Share,
+        Alignment = half.Alignment,
+    };
+}
