@@ -55,6 +55,12 @@ public sealed record MonitorOptions
     /// <summary>The clock. Default: the system clock.</summary>
     public TimeProvider Time { get; init; } = TimeProvider.System;
 
+    /// <summary>
+    /// The watched model, optional. When given, the monitor checks its schema and weight shapes when it is built, so a run
+    /// name already used by a different model is refused at configuration time instead of failing every epoch.
+    /// </summary>
+    public IWatchedModel? Model { get; init; }
+
     /// <summary>Checks every setting, naming the first bad one.</summary>
     /// <exception cref="DriftWatchException">A setting is out of range or the probe set does not fit the schema.</exception>
     public void Validate()
@@ -81,6 +87,8 @@ public sealed record MonitorOptions
                 $"probe rows have {Probe.Rows.DenseCount} dense and {Probe.Rows.CategoricalCount} categorical inputs but the schema has {Schema.DenseCount} and {Schema.CategoricalCount}; build the probe from the model's own input rows");
         if (Baseline.Kind == BaselineKind.Given && Baseline.Values!.Length != Schema.ColumnCount)
             throw new DriftWatchException($"given baseline has {Baseline.Values.Length} values but the schema has {Schema.ColumnCount} feature-space columns");
+        if (Model is not null && (!Model.Schema.Names.SequenceEqual(Schema.Names) || Model.Schema.ColumnCount != Schema.ColumnCount))
+            throw new DriftWatchException("Model's schema differs from Schema; pass model.Schema as Schema");
         foreach (var name in TrainingValueCounts.Keys)
         {
             if (!Schema.Features.Any(f => f.Name == name && f.Kind == FeatureKind.Categorical))

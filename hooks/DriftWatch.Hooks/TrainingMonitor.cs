@@ -26,7 +26,8 @@ public sealed class TrainingMonitor : IDisposable
     private readonly RunDocument _run;
     private DivergenceDetector _detector;
     private int _lastEpoch;
-    private bool _modelChecked;
+    private IWatchedModel? _checkedModel;
+    private TimeSpan _storeTime;
 
     /// <summary>Validates the options, opens the store and registers the run (or resumes it).</summary>
     /// <exception cref="DriftWatchException">Bad options, an unusable store, or a resumed run whose schema, probe set or methods differ.</exception>
@@ -41,6 +42,8 @@ public sealed class TrainingMonitor : IDisposable
             var wanted = Describe(options);
             var existing = _store.FindRun(options.RunName);
             _run = existing is null ? _store.AddRun(wanted) : Resume(existing, wanted);
+            if (options.Model is not null)
+                CheckModel(options.Model); // a run name reused by a different model fails here, before any epoch
             _lastEpoch = _store.Epochs(_run.Id).Select(e => e.Epoch).DefaultIfEmpty(-1).Max();
             _detector = CatchUp(before: int.MaxValue);
         }
@@ -69,6 +72,7 @@ public sealed class TrainingMonitor : IDisposable
     {
         var clock = Stopwatch.StartNew();
         var failures = new List<Finding>();
+        _storeTime = TimeSpan.Zero;
         try
         {
             ArgumentNullException.ThrowIfNull(model);
@@ -86,8 +90,8 @@ public sealed class TrainingMonitor : IDisposable
             var assessment = _detector.Observe(new EpochEvidence(epoch, values, primary?.Map, [.. failures]));
 
             // The epoch's document goes last: it marks the epoch complete for readers and for a resumed run.
-            _store.WriteStatistics(new StatisticsDocument { RunId = _run.Id, Epoch = epoch, Statistics = assessment.Statistics });
-            _store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, _run.Id));
+            Timed(() => _store.WriteStatistics(new StatisticsDocument { RunId = _run.Id, Epoch = epoch, Statistics = assessment.Statistics }));
+            Timed(() => _store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, _run.Id)));
             _store.WriteEpoch(new EpochDocument
             {
                 RunId = _run.Id,
@@ -97,6 +101,7 @@ public sealed class TrainingMonitor : IDisposable
                 RecordedUtc = _options.Time.GetUtcNow().UtcDateTime,
                 Problems = failures.Select(f => f.Evidence).ToList(),
                 MonitorSeconds = clock.Elapsed.TotalSeconds,
+                StoreSeconds = _storeTime.TotalSeconds,
             });
             _lastEpoch = epoch;
             return assessment.Verdict;
@@ -109,8 +114,49 @@ public sealed class TrainingMonitor : IDisposable
         }
     }
 
+    /// <summary>
+    /// Loads the weight snapshot of the run's last complete epoch into <paramref name="module"/> and returns that epoch,
+    /// so a resumed training loop continues from <c>LastEpoch + 1</c> with the weights it had.
+    /// </summary>
+    /// <remarks>Only the weights are restored: optimizer state, learning-rate schedules and data order are the loop's to restore.</remarks>
+    /// <exception cref="DriftWatchException">The run has no complete epoch, its last epoch has no snapshot, or the snapshot does not fit the module.</exception>
+    public int RestoreLastSnapshot(nn.Module module)
+    {
+        ArgumentNullException.ThrowIfNull(module);
+        var last = _store.Epochs(_run.Id).LastOrDefault()
+            ?? throw new DriftWatchException($"run '{_run.Name}' has no complete epoch in '{_store.Path}' to restore; start it from its first epoch");
+        if (last.SnapshotId is null)
+            throw new DriftWatchException($"epoch {last.Epoch} of run '{_run.Name}' has no weight snapshot (snapshots were off or failed); the run cannot continue from the store");
+        if (_run.ModelShape.Length > 0 && _run.ModelShape != ModelShape(module))
+            throw new DriftWatchException($"run '{_run.Name}' was recorded with a model of another shape; its snapshot cannot be loaded into this model");
+        using var weights = _store.ReadSnapshot(last.SnapshotId);
+        try
+        {
+            module.load(weights);
+        }
+        catch (Exception e) when (e is ArgumentException or InvalidOperationException or IOException or FormatException)
+        {
+            throw new DriftWatchException($"the snapshot of epoch {last.Epoch} of run '{_run.Name}' could not be loaded: {e.Message}", e);
+        }
+        return last.Epoch;
+    }
+
     /// <inheritdoc />
     public void Dispose() => _store.Dispose();
+
+    // Store writes are timed apart from attribution, so a slow disk or a reader holding the file shows as StoreSeconds.
+    private void Timed(Action write)
+    {
+        var clock = Stopwatch.StartNew();
+        try
+        {
+            write();
+        }
+        finally
+        {
+            _storeTime += clock.Elapsed;
+        }
+    }
 
     private sealed record StoredMap(string Method, AttributionMap Map);
 
@@ -153,7 +199,7 @@ public sealed class TrainingMonitor : IDisposable
                     var map = AttributionMap.FromColumns(columns, _options.Schema);
                     double seconds = watch.Elapsed.TotalSeconds;
                     var (heldOut, training) = HalfImportance.ForHalves(map, probe);
-                    _store.WriteMap(new MapDocument
+                    Timed(() => _store.WriteMap(new MapDocument
                     {
                         RunId = _run.Id,
                         Epoch = epoch,
@@ -168,7 +214,7 @@ public sealed class TrainingMonitor : IDisposable
                         Training = ToDocument(training),
                         Seconds = seconds,
                         Evaluations = columns.Evaluations,
-                    });
+                    }));
                     stored.Add(new StoredMap(method.Name, map));
                 }
                 catch (Exception e) when (!_options.Strict)
@@ -194,7 +240,9 @@ public sealed class TrainingMonitor : IDisposable
             using (var writer = new BinaryWriter(weights, System.Text.Encoding.UTF8, leaveOpen: true))
                 model.Module.save(writer);
             weights.Position = 0;
-            return _store.SaveSnapshot(_run.Id, epoch, weights);
+            string? id = null;
+            Timed(() => id = _store.SaveSnapshot(_run.Id, epoch, weights));
+            return id;
         }
         catch (Exception e) when (!_options.Strict)
         {
@@ -205,7 +253,7 @@ public sealed class TrainingMonitor : IDisposable
 
     private void CheckModel(IWatchedModel model)
     {
-        if (_modelChecked)
+        if (ReferenceEquals(_checkedModel, model))
             return;
         if (!model.Schema.Names.SequenceEqual(_options.Schema.Names) || model.Schema.ColumnCount != _options.Schema.ColumnCount)
             throw new DriftWatchException("the model's schema differs from the schema the monitor was configured with; pass model.Schema in MonitorOptions");
@@ -219,7 +267,7 @@ public sealed class TrainingMonitor : IDisposable
         {
             throw new DriftWatchException($"run '{_run.Name}' was recorded with a model of another shape; use a new run name for a different model");
         }
-        _modelChecked = true;
+        _checkedModel = model;
     }
 
     // A fresh detector fed the stored epochs before the given one, so a resumed run judges as if never interrupted.
