@@ -96,10 +96,10 @@ public sealed class RunStore : IDisposable
     }
 
     /// <summary>All runs, in creation order.</summary>
-    public IReadOnlyList<RunDocument> Runs() => Guard(() => RunsCollection.FindAll().OrderBy(r => r.Id).ToList());
+    public IReadOnlyList<RunDocument> Runs() => Guard(() => RunsCollection.FindAll().Select(r => StoreChecks.Run(Path, r)).OrderBy(r => r.Id).ToList());
 
     /// <summary>The run with this name, or null.</summary>
-    public RunDocument? FindRun(string name) => Guard(() => RunsCollection.FindOne(r => r.Name == name));
+    public RunDocument? FindRun(string name) => Guard(() => RunsCollection.FindOne(r => r.Name == name) is { } run ? StoreChecks.Run(Path, run) : null);
 
     /// <summary>The run with this name.</summary>
     /// <exception cref="StoreException">No such run; the message lists the runs there are.</exception>
@@ -198,7 +198,7 @@ public sealed class RunStore : IDisposable
 
     /// <summary>The complete epochs of a run, in epoch order.</summary>
     public IReadOnlyList<EpochDocument> Epochs(int runId) =>
-        Guard(() => EpochsCollection.Find(e => e.RunId == runId).OrderBy(e => e.Epoch).ToList());
+        Guard(() => EpochsCollection.Find(e => e.RunId == runId).Select(e => StoreChecks.Epoch(Path, e)).OrderBy(e => e.Epoch).ToList());
 
     /// <summary>The maps of a run's complete epochs, in epoch order; optionally one method only.</summary>
     public IReadOnlyList<MapDocument> Maps(int runId, string? method = null)
@@ -209,7 +209,8 @@ public sealed class RunStore : IDisposable
             var maps = method is null
                 ? MapsCollection.Find(m => m.RunId == runId)
                 : MapsCollection.Find(m => m.RunId == runId && m.Method == method);
-            return maps.Where(m => complete.Contains(m.Epoch)).OrderBy(m => m.Epoch).ThenBy(m => m.Method).ToList();
+            var run = RunsCollection.FindById(runId);
+            return maps.Where(m => complete.Contains(m.Epoch)).Select(m => StoreChecks.Map(Path, m, run)).OrderBy(m => m.Epoch).ThenBy(m => m.Method).ToList();
         });
     }
 
@@ -219,7 +220,7 @@ public sealed class RunStore : IDisposable
         return Guard(() =>
         {
             var complete = EpochsCollection.Find(e => e.RunId == runId).Select(e => e.Epoch).ToHashSet();
-            return VerdictsCollection.Find(v => v.RunId == runId).Where(v => complete.Contains(v.Epoch)).OrderBy(v => v.Epoch).ToList();
+            return VerdictsCollection.Find(v => v.RunId == runId).Where(v => complete.Contains(v.Epoch)).Select(v => StoreChecks.Verdict(Path, v)).OrderBy(v => v.Epoch).ToList();
         });
     }
 
@@ -410,5 +411,14 @@ public sealed class RunStore : IDisposable
         {
             throw new StoreException($"no permission to read or write store '{Path}': {e.Message}", e);
         }
+        catch (Exception e) when (e is not DriftWatchException && ThrownInsideLiteDb(e))
+        {
+            // LiteDB has no checksums; a damaged page surfaces as whatever its decoder meets (bad UTF-8, an unknown BSON type).
+            throw new StoreException($"store '{Path}' is damaged and could not be read ({e.GetType().Name}: {e.Message}); use an intact copy", e);
+        }
     }
+
+    private static bool ThrownInsideLiteDb(Exception e) =>
+        e is not (OutOfMemoryException or ThreadAbortException or OperationCanceledException)
+        && new System.Diagnostics.StackTrace(e, fNeedFileInfo: false).GetFrames().Any(f => f.GetMethod()?.DeclaringType?.Assembly == typeof(LiteDatabase).Assembly);
 }
