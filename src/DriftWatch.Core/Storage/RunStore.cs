@@ -316,21 +316,26 @@ public sealed class RunStore : IDisposable
             throw new StoreException($"store file '{full}' is empty (0 bytes); it was never written or was truncated; delete it or pass another --store");
         var header = new byte[LastPageOffset + 4];
         int read;
+        long length;
         using (var stream = new FileStream(full, FileMode.Open, FileAccess.Read, FileShare.ReadWrite | FileShare.Delete))
+        {
             read = stream.ReadAtLeast(header, header.Length, throwOnEndOfStream: false);
+            length = stream.Length; // after the header: a writer only ever lengthens the file, so this is at least the header's length unless it was cut
+        }
         if (read < 32 + LiteDbSignature.Length || !header.AsSpan(32, LiteDbSignature.Length).SequenceEqual(LiteDbSignature))
             throw new StoreException($"'{full}' is not a DriftWatch store (not a LiteDB file); pass the .litedb file a monitored run wrote");
-        if (info.Length < PageSize)
-            throw new StoreException($"store file '{full}' is truncated ({info.Length} bytes, less than one LiteDB header and data page)");
+        if (length < PageSize)
+            throw new StoreException($"store file '{full}' is truncated ({length} bytes, less than one LiteDB header and data page)");
 
         // The header records the last page of the data file. A shorter file was cut off (an interrupted copy, a full disk);
         // LiteDB would fail later on a missing page with a message about page types. While a write-ahead log is beside the
-        // file, a checkpoint may be half done and the log still holds the pages: LiteDB restores from it, so no verdict here.
+        // file, a checkpoint may be half done (header first, pages after) and the log still holds the pages; a writer
+        // clears the log only after the pages are in the file, so the length is taken again after looking for the log.
         long pages = (long)BinaryPrimitives.ReadUInt32LittleEndian(header.AsSpan(LastPageOffset)) + 1;
-        if (info.Length < pages * PageSize && !HasLog(full))
+        if (length < pages * PageSize && !HasLog(full) && new FileInfo(full).Length < pages * PageSize)
         {
             throw new StoreException(
-                $"store file '{full}' is truncated: {info.Length} bytes, but its header records {pages} pages ({pages * PageSize} bytes); it was cut short (an interrupted copy or a full disk) — use an intact copy");
+                $"store file '{full}' is truncated: {new FileInfo(full).Length} bytes, but its header records {pages} pages ({pages * PageSize} bytes); it was cut short (an interrupted copy or a full disk) — use an intact copy");
         }
     }
 

@@ -15,7 +15,7 @@ namespace DriftWatch.Tests.Reliability;
 public sealed partial class KillTests
 {
     private const int Chains = 2;
-    private const int KillsPerChain = 16;
+    private const int KillsPerChain = 15;
     private const int Seed = 5;
     private const int Steps = 64;
     private const int Rows = 400;
@@ -37,8 +37,7 @@ public sealed partial class KillTests
 
         // Finish both: one more resumed process each, left to end on its own, two epochs past the longer chain.
         int final = chains.Max(c => c.LastEpoch) + 2;
-        foreach (var chain in chains)
-            chain.Finish(final);
+        await Task.WhenAll(chains.Select(c => Task.Run(() => c.Finish(final))));
 
         var problems = chains.SelectMany(c => c.Problems.Select(p => $"{c.Run}: {p}")).ToList();
         problems.AddRange(CompareChains(chains, final));
@@ -53,7 +52,7 @@ public sealed partial class KillTests
         foreach (string problem in problems)
             _output.WriteLine("failure: " + problem);
 
-        Assert.True(kills >= 30, $"only {kills} kills");
+        Assert.True(kills >= Chains * KillsPerChain, $"only {kills} kills");
         Assert.Empty(problems);
     }
 
@@ -84,6 +83,9 @@ public sealed partial class KillTests
             }
         }
     }
+
+    private static bool IsKnownTorchSharpCrash(string error) =>
+        error.Contains("Expected false to be true", StringComparison.Ordinal) && error.Contains("TorchSharp.Modules.Adam", StringComparison.Ordinal);
 
     [GeneratedRegex(@"^epoch\s+(\d+)\s")]
     private static partial Regex EpochLine();
@@ -142,9 +144,12 @@ public sealed partial class KillTests
                 if (demo.HasExited)
                 {
                     // The trainer ended on its own before the kill: only a crash can do that with 1000 epochs to go.
+                    // TorchSharp's Adam step fails now and then on a Scalar freed by the finalizer (README,
+                    // Reliability): for the store that is one more kill, audited like the others; anything else is a failure.
                     int code = demo.WaitForExit();
                     Crashes++;
-                    Problems.Add($"the demo exited {code} on its own: {demo.Error.Trim()}");
+                    if (!IsKnownTorchSharpCrash(demo.Error))
+                        Problems.Add($"the demo exited {code} on its own: {demo.Error.Trim()}");
                 }
                 else
                 {
@@ -176,7 +181,7 @@ public sealed partial class KillTests
             if (!demo.WaitForLine(l => l.StartsWith("probe ", StringComparison.Ordinal)))
                 return Moment.StartUp;
             _startUpSeconds = Math.Max(0.5, demo.Started.Elapsed.TotalSeconds);
-            int wholeEpochs = draw < 0.3 ? 0 : draw < 0.65 ? 1 : 2;
+            int wholeEpochs = draw < 0.45 ? 0 : draw < 0.9 ? 1 : 2;
             var since = demo.Started.Elapsed;
             for (int printed = 1; printed <= wholeEpochs; printed++)
             {
@@ -195,11 +200,20 @@ public sealed partial class KillTests
 
         public void Finish(int final)
         {
-            using var demo = Start(epochs: final);
-            int code = demo.WaitForExit();
-            if (code != 0)
-                Problems.Add($"the finishing run exited {code}: {demo.Error.Trim()}");
-            Inspect(demo);
+            for (int attempt = 0; attempt < 3; attempt++)
+            {
+                using var demo = Start(epochs: final);
+                int code = demo.WaitForExit();
+                Inspect(demo);
+                if (code == 0)
+                    break;
+                if (!IsKnownTorchSharpCrash(demo.Error))
+                {
+                    Problems.Add($"the finishing run exited {code}: {demo.Error.Trim()}");
+                    break;
+                }
+                Crashes++;
+            }
             if (LastEpoch != final)
                 Problems.Add($"the finishing run stopped at epoch {LastEpoch}, not {final}");
         }
