@@ -80,6 +80,7 @@ public sealed partial class ConcurrentReaderTests
             """));
         failures.ForEach(f => _output.WriteLine("failure: " + f));
         Assert.True(consistencyChecks > 0 && timings.Count >= 5, "the readers did not get to run while training wrote");
+        Finalizers.RunNow();
         Assert.Empty(failures);
     }
 

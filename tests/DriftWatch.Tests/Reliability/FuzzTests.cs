@@ -50,6 +50,7 @@ public sealed class FuzzTests
         tally.Examples.ForEach(e => _output.WriteLine("  e.g. " + e));
         tally.Failures.ForEach(f => _output.WriteLine("failure: " + f));
         Assert.Empty(tally.Failures);
+        Finalizers.RunNow();
     }
 
     [Fact]
@@ -81,6 +82,7 @@ public sealed class FuzzTests
         tally.Examples.ForEach(e => _output.WriteLine("  e.g. " + e));
         tally.Failures.ForEach(f => _output.WriteLine("failure: " + f));
         Assert.Empty(tally.Failures);
+        Finalizers.RunNow();
     }
 
     private static async Task<(int Code, string Output, string Error)> RunAsync(string[] args)

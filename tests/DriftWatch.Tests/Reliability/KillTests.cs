@@ -53,6 +53,7 @@ public sealed partial class KillTests
             _output.WriteLine("failure: " + problem);
 
         Assert.True(kills >= Chains * KillsPerChain, $"only {kills} kills");
+        Finalizers.RunNow();
         Assert.Empty(problems);
     }
 

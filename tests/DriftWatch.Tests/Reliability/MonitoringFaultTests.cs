@@ -62,6 +62,7 @@ public sealed class MonitoringFaultTests
         Assert.Contains(epochs[0].Problems, p => p.Contains("OutOfMemoryException", StringComparison.Ordinal));
         Assert.NotNull(epochs[0].SnapshotId); // the snapshot and metrics were still kept
         Assert.Equal([1], monitor.Store.Maps(monitor.Run.Id).Select(m => m.Epoch));
+        Finalizers.RunNow();
     }
 
     [Fact]
@@ -103,6 +104,7 @@ public sealed class MonitoringFaultTests
             Assert.True(code is ExitCodes.Fine or ExitCodes.Halt, $"{string.Join(' ', args)} exited {code}: {error}");
         }
         Assert.Single(Directory.GetFiles(temp.File("charts"), "*.png"));
+        Finalizers.RunNow();
     }
 
     [Fact]
@@ -120,6 +122,7 @@ public sealed class MonitoringFaultTests
         Assert.Equal([0, 1], monitor.Store.Maps(monitor.Run.Id, "saliency").Select(m => m.Epoch));
         Assert.Equal([1], monitor.Store.Maps(monitor.Run.Id, method.Name).Select(m => m.Epoch));
         Assert.Equal(VerdictKind.Continue, next.Kind);
+        Finalizers.RunNow();
     }
 
     [Fact]
@@ -144,6 +147,7 @@ public sealed class MonitoringFaultTests
         model.FailSnapshots = false;
         Assert.Equal(VerdictKind.Continue, monitor.EndEpoch(model, 2, Metrics(2)).Kind);
         Assert.Equal(2, monitor.RestoreLastSnapshot(model));
+        Finalizers.RunNow();
     }
 
     [MountFact]
@@ -178,6 +182,8 @@ public sealed class MonitoringFaultTests
         Assert.Equal([0, 2], reader.Maps(run.Id).Select(m => m.Epoch));
         Assert.Equal(0, RawCount(reader, "maps", run.Id, 1)); // nothing of epoch 1 was written, not even hidden
         _output.WriteLine($"read-only store, epoch 1: {string.Join(" | ", failed.Reasons)}");
+        monitor.Dispose(); // whatever LiteDB left behind after the failure becomes garbage here
+        Finalizers.RunNow();
     }
 
     [MountFact]
@@ -198,6 +204,8 @@ public sealed class MonitoringFaultTests
         {
             disk.SetReadOnly(false);
         }
+        monitor.Dispose();
+        Finalizers.RunNow();
     }
 
     [MountFact]
@@ -233,6 +241,8 @@ public sealed class MonitoringFaultTests
         }
         Assert.Equal(epochs.Where(e => e.Epoch != 1).Select(e => e.Epoch), reader.Maps(run.Id).Where(m => m.Epoch != 1).Select(m => m.Epoch));
         _output.WriteLine($"full disk, epoch 1: {string.Join(" | ", failed.Reasons)}");
+        monitor.Dispose(); // whatever LiteDB left behind after the failure becomes garbage here
+        Finalizers.RunNow();
     }
 
     private static float[] Weights(nn.Module module) =>

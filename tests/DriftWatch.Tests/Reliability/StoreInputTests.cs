@@ -80,6 +80,7 @@ public sealed class StoreInputTests
         Assert.Single(process.Error.Trim().Split('\n'));
 
         Assert.Equal(before, File.ReadAllBytes(store));
+        Finalizers.RunNow();
     }
 
     [Fact]
@@ -123,6 +124,7 @@ public sealed class StoreInputTests
             AssertOneLine(SampleStore.Cli(args), "truncated");
         Assert.Contains("truncated", Assert.Throws<StoreException>(() => RunStore.OpenForWriting(store)).Message);
         Assert.Equal(before, File.ReadAllBytes(store));
+        Finalizers.RunNow();
     }
 
     [Fact]
@@ -214,6 +216,7 @@ public sealed class StoreInputTests
         Assert.Equal(before, File.ReadAllBytes(store));
         Assert.False(File.Exists(temp.File("absent.litedb")));
         _output.WriteLine($"bad inputs tried through the CLI: {tried}; each answered with one line and exit code 2; the store unchanged");
+        Finalizers.RunNow();
     }
 
     private static string ForeignLiteDb(string path)
