@@ -177,7 +177,17 @@ public sealed class RunStore : IDisposable
     {
         ArgumentNullException.ThrowIfNull(weights);
         string id = $"snapshots/{runId}/{epoch:D6}";
-        Guard(() => _database.FileStorage.Upload(id, $"run{runId}-epoch{epoch}.weights", weights));
+        Guard(() =>
+        {
+            // A process killed while uploading this snapshot before leaves LiteDB's file record (length still 0, so
+            // LiteDB keeps its chunks) and some chunks; a new upload would collide with them. Both go first.
+            _database.FileStorage.Delete(id);
+            _database.GetCollection("_chunks").DeleteMany(Query.Between(
+                "_id",
+                new BsonDocument { ["f"] = id, ["n"] = 0 },
+                new BsonDocument { ["f"] = id, ["n"] = int.MaxValue })); // a range of the _id index, not a scan
+            _database.FileStorage.Upload(id, $"run{runId}-epoch{epoch}.weights", weights);
+        });
         return id;
     }
 

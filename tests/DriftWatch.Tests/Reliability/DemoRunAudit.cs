@@ -116,7 +116,7 @@ internal sealed class DemoRunAudit
                 }
                 if (epoch.SnapshotId is null)
                 {
-                    problems.Add($"epoch {epoch.Epoch} has no snapshot");
+                    problems.Add($"epoch {epoch.Epoch} has no snapshot: {string.Join("; ", epoch.Problems)}");
                     continue;
                 }
                 if (epoch.Problems.Count > 0)

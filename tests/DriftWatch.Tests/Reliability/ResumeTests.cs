@@ -1,4 +1,7 @@
+using DriftWatch.Attribution;
 using DriftWatch.Demo;
+using DriftWatch.Hooks;
+using DriftWatch.Probing;
 using DriftWatch.Storage;
 using DriftWatch.Tests.Support;
 using Xunit;
@@ -45,6 +48,59 @@ public sealed class ResumeTests
         Assert.Contains("has no complete epoch yet; it starts at epoch 1", output);
         Assert.Contains("pass --resume to continue it", refused.Message);
         Assert.Equal(before, File.ReadAllBytes(temp.File("s.litedb")));
+    }
+
+    [Theory]
+    [InlineData(true)]
+    [InlineData(false)]
+    public void AnEpochRedoneAfterAKillDuringItsSnapshotUploadStoresAWholeSnapshot(bool fileRecordLeft)
+    {
+        using var temp = new TempFolder();
+        string store = temp.File("s.litedb");
+        using var model = new SmallNet(3, 5, 4);
+        var probe = ProbeSet.Select(new RowsBuilder().WithRows(60).WithSeed(1).Build(), new RowsBuilder().WithRows(60).WithSeed(2).Build(), 12, seed: 4);
+        var options = new MonitorOptions { StorePath = store, RunName = "r", Schema = model.Schema, Probe = probe, Methods = [new IntegratedGradients(8)] };
+        int runId;
+        using (var first = new TrainingMonitor(options))
+        {
+            first.EndEpoch(model, 0, new EpochMetrics(0.7, 0.7));
+            runId = first.Run.Id;
+        }
+        // What a kill in the middle of uploading epoch 1's snapshot leaves: LiteDB's file record, still of length 0
+        // (it is completed when the upload closes), and the first chunk.
+        string id = $"snapshots/{runId}/000001";
+        using (var raw = new LiteDB.LiteDatabase(new LiteDB.ConnectionString { Filename = store, Connection = LiteDB.ConnectionType.Shared }))
+        {
+            if (fileRecordLeft)
+            {
+                raw.GetCollection("_files").Insert(new LiteDB.BsonDocument
+                {
+                    ["_id"] = id,
+                    ["filename"] = "run1-epoch1.weights",
+                    ["mimeType"] = "application/octet-stream",
+                    ["length"] = 0L,
+                    ["chunks"] = 0,
+                    ["uploadDate"] = DateTime.UtcNow,
+                    ["metadata"] = new LiteDB.BsonDocument(),
+                });
+            }
+            raw.GetCollection("_chunks").Insert(new LiteDB.BsonDocument
+            {
+                ["_id"] = new LiteDB.BsonDocument { ["f"] = id, ["n"] = 0 },
+                ["data"] = new byte[1000],
+            });
+        }
+
+        using var resumed = new TrainingMonitor(options);
+        var verdict = resumed.EndEpoch(model, 1, new EpochMetrics(0.6, 0.7));
+
+        Assert.DoesNotContain(verdict.Findings, f => f.Kind == DriftWatch.Detection.FindingKind.MonitoringFailure);
+        var epoch = resumed.Store.Epochs(runId).Single(e => e.Epoch == 1);
+        Assert.Equal(id, epoch.SnapshotId);
+        using var restored = new SmallNet(3, 5, 4, seed: 9);
+        using (var weights = resumed.Store.ReadSnapshot(id))
+            restored.load(weights);
+        Assert.Equal(model.parameters().Select(p => p.data<float>().ToArray()).SelectMany(x => x), restored.parameters().Select(p => p.data<float>().ToArray()).SelectMany(x => x));
     }
 
     private static string Run(string[] args)
