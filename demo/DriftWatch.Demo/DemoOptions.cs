@@ -36,6 +36,12 @@ internal sealed record DemoOptions
 
     public bool Small { get; init; }
 
+    /// <summary>Continue a run the store already has, from the epoch after its last complete one.</summary>
+    public bool Resume { get; init; }
+
+    /// <summary>Train every epoch even when the gate advises stopping.</summary>
+    public bool KeepTraining { get; init; }
+
     public bool Help { get; init; }
 
     public static string Usage { get; } = $"""
@@ -62,11 +68,16 @@ internal sealed record DemoOptions
           --steps N          Integrated Gradients steps, 2–1024 (default: {DefaultSteps}; --small: {SmallSteps})
           --run NAME         run name in the store (default: scenario and seed, e.g. default-seed1, plus
                              -small, -rowsN or -stepsN when those differ from the defaults)
+          --resume           continue the run named by --run (or the derived name) from the epoch after its last complete
+                             one: the weights come from that epoch's snapshot in the store, Adam's state from
+                             STORE.training-state/ (fresh when missing); without a stored epoch it starts at epoch 1
+          --keep-training    train every epoch even when the gate advises stopping (verdicts are still printed and stored)
           --small            quick settings for CI: {SmallEpochs} epochs, {SmallProbePerHalf} probe rows per half, {SmallSteps} steps
                              (options given explicitly still win)
           -h, --help         show this help
 
-        Exit codes: 0 done (whatever the verdicts), 2 bad input (a bad option, or a run name already in the store),
+        Exit codes: 0 done (whatever the verdicts), 2 bad input (a bad option, a run name already in the store without
+        --resume, or a run that cannot be resumed),
         3 an internal error.
         """;
 
@@ -78,7 +89,7 @@ internal sealed record DemoOptions
         string? store = null, run = null;
         int? epochs = null, seed = null, rows = null, steps = null;
         var variant = GreenhouseVariant.Default;
-        bool small = false, help = false;
+        bool small = false, help = false, resume = false, keepTraining = false;
 
         for (int i = 0; i < args.Count; i++)
         {
@@ -109,6 +120,12 @@ internal sealed record DemoOptions
                 case "--small" when inline is null:
                     small = true;
                     break;
+                case "--resume" when inline is null:
+                    resume = true;
+                    break;
+                case "--keep-training" when inline is null:
+                    keepTraining = true;
+                    break;
                 case "--store":
                     store = Value("a file path such as runs/greenhouse.litedb");
                     if (string.IsNullOrWhiteSpace(store))
@@ -138,7 +155,7 @@ internal sealed record DemoOptions
                     break;
                 default:
                     throw new DriftWatchException(
-                        $"unknown option '{arg}'; valid options are --store, --scenario, --epochs, --seed, --rows, --steps, --run, --small and --help");
+                        $"unknown option '{arg}'; valid options are --store, --scenario, --epochs, --seed, --rows, --steps, --run, --resume, --keep-training, --small and --help");
             }
         }
 
@@ -152,6 +169,8 @@ internal sealed record DemoOptions
             Steps = steps ?? (small ? SmallSteps : DefaultSteps),
             ProbePerHalf = small ? SmallProbePerHalf : DefaultProbePerHalf,
             Small = small,
+            Resume = resume,
+            KeepTraining = keepTraining,
             Help = help,
         };
         return options with { RunName = run ?? options.DerivedRunName() };

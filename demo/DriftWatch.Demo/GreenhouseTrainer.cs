@@ -32,20 +32,38 @@ public static class GreenhouseTrainer
     /// <param name="seed">Seed of the minibatch order.</param>
     /// <param name="stopOnHalt">Stop after the first Halt verdict.</param>
     /// <param name="onEpoch">Called after each epoch, or null.</param>
+    /// <param name="firstEpoch">The first epoch to train; above 1 for a resumed run whose model already holds the weights of the epoch before.</param>
+    /// <param name="optimizerState">Where the optimizer's state is saved after every epoch and, for a resumed run, loaded from; null for none.</param>
     public static IReadOnlyList<EpochRecord> Train(
-        GreenhouseScenario scenario, GreenhouseNet model, TrainingMonitor monitor, int epochs, int seed, bool stopOnHalt, Action<EpochRecord>? onEpoch = null)
+        GreenhouseScenario scenario,
+        GreenhouseNet model,
+        TrainingMonitor monitor,
+        int epochs,
+        int seed,
+        bool stopOnHalt,
+        Action<EpochRecord>? onEpoch = null,
+        int firstEpoch = 1,
+        OptimizerStateFiles? optimizerState = null)
     {
         ArgumentNullException.ThrowIfNull(scenario);
         ArgumentNullException.ThrowIfNull(model);
         ArgumentNullException.ThrowIfNull(monitor);
+        ArgumentOutOfRangeException.ThrowIfLessThan(firstEpoch, 1);
         using var data = new TrainingData(scenario);
         using var optimizer = torch.optim.Adam(model.parameters(), lr: LearningRate);
         var shuffle = new Random(seed);
+        // A resumed run replays the data order of the epochs it skips, so each later epoch sees the minibatches an
+        // uninterrupted run would; with the weights and the optimizer's state restored, it continues the same run.
+        for (int skipped = 1; skipped < firstEpoch; skipped++)
+            NextOrder(data.TrainingCount, shuffle);
+        if (firstEpoch > 1)
+            optimizerState?.TryLoad(optimizer, firstEpoch - 1);
         var records = new List<EpochRecord>();
-        for (int epoch = 1; epoch <= epochs; epoch++)
+        for (int epoch = firstEpoch; epoch <= epochs; epoch++)
         {
             double trainLoss = TrainOneEpoch(model, optimizer, data, shuffle);
             var (validationLoss, accuracy) = Evaluate(model, data);
+            optimizerState?.Save(optimizer, epoch);
             var watch = System.Diagnostics.Stopwatch.StartNew();
             var verdict = monitor.EndEpoch(model, epoch, new EpochMetrics(trainLoss, validationLoss).With("validation_accuracy", accuracy));
             var record = new EpochRecord(epoch, trainLoss, validationLoss, accuracy, verdict, watch.Elapsed.TotalSeconds);
@@ -57,13 +75,19 @@ public static class GreenhouseTrainer
         return records;
     }
 
-    private static double TrainOneEpoch(GreenhouseNet model, optim.Optimizer optimizer, TrainingData data, Random shuffle)
+    private static long[] NextOrder(int count, Random shuffle)
     {
-        model.train();
-        var order = new long[data.TrainingCount];
+        var order = new long[count];
         for (int i = 0; i < order.Length; i++)
             order[i] = i;
         shuffle.Shuffle(order);
+        return order;
+    }
+
+    private static double TrainOneEpoch(GreenhouseNet model, optim.Optimizer optimizer, TrainingData data, Random shuffle)
+    {
+        model.train();
+        var order = NextOrder(data.TrainingCount, shuffle);
         double sum = 0;
         for (int start = 0; start < order.Length; start += BatchSize)
         {

@@ -12,7 +12,8 @@ namespace DriftWatch.Demo;
 /// <summary>Trains the greenhouse model with the monitor attached, one printed line per epoch.</summary>
 internal static class GreenhouseTraining
 {
-    private const int ValidationRows = 1000;
+    /// <summary>Validation rows of every demo scenario.</summary>
+    internal const int ValidationRows = 1000;
 
     /// <summary>Runs the demo and returns the process exit code.</summary>
     /// <exception cref="DriftWatchException">The store cannot be used, or the run name is taken.</exception>
@@ -37,15 +38,32 @@ internal static class GreenhouseTraining
             Methods = [new Attribution.IntegratedGradients(options.Steps)],
             TrainingValueCounts = scenario.TrainingValueCounts,
             Model = GreenhouseNetFactory.RecipeFor(model, scenario),
+            WatchedModel = model,
             Description = string.Create(CultureInfo.InvariantCulture,
                 $"DriftWatch demo, scenario {GreenhouseVariants.NameOf(options.Variant)}: {scenario.Describe()}. Model: embeddings {model.EmbeddingWidth} wide, MLP {model.Hidden}-{model.Hidden} ReLU, one logit; Adam lr {GreenhouseTrainer.LearningRate}, batch {GreenhouseTrainer.BatchSize}."),
         };
 
         using var monitor = new TrainingMonitor(monitorOptions);
-        if (monitor.LastEpoch >= 0)
+        if (monitor.LastEpoch >= 0 && !options.Resume)
         {
             throw new DriftWatchException(
-                $"run '{options.RunName}' already has epochs up to {monitor.LastEpoch} in '{monitorOptions.StorePath}'; pass --run NAME for a new run, or delete the store file to start over");
+                $"run '{options.RunName}' already has epochs up to {monitor.LastEpoch} in '{monitorOptions.StorePath}'; pass --resume to continue it, --run NAME for a new run, or delete the store file to start over");
+        }
+        var optimizerState = new OptimizerStateFiles(monitorOptions.StorePath, options.RunName, output);
+        int firstEpoch = 1;
+        string? resumed = null;
+        if (monitor.LastEpoch >= 0)
+        {
+            // The weights come back from the store; the data order is replayed and Adam's state read back by the trainer.
+            int restored = monitor.RestoreLastSnapshot(model);
+            firstEpoch = restored + 1;
+            resumed = optimizerState.Exists(restored)
+                ? Invariant($"run '{options.RunName}' from epoch {restored}: weights from its snapshot, optimizer state from {optimizerState.Folder}")
+                : Invariant($"run '{options.RunName}' from epoch {restored}: weights from its snapshot; no optimizer state found, Adam starts afresh");
+        }
+        else if (options.Resume)
+        {
+            resumed = $"run '{options.RunName}' has no complete epoch yet; it starts at epoch 1";
         }
 
         output.WriteLine($"scenario  {GreenhouseVariants.NameOf(options.Variant)}: {scenario.Describe()}");
@@ -54,24 +72,37 @@ internal static class GreenhouseTraining
             : $"planted   {string.Join(", ", scenario.PlantedFaults)} (should be flagged)");
         output.WriteLine(Invariant($"rule      a model that knew the grading rule would score validation loss {scenario.Validation.RuleLoss():F4}"));
         output.WriteLine(Invariant($"probe     {probe.HeldOutCount} held-out + {probe.TrainingCount} training rows, Integrated Gradients {options.Steps} steps; run '{options.RunName}'"));
+        if (resumed is not null)
+            output.WriteLine($"resumed   {resumed}");
+        if (firstEpoch > options.Epochs)
+            output.WriteLine(Invariant($"          it already has {firstEpoch - 1} epochs, as many as --epochs {options.Epochs} asks; nothing to train"));
         output.WriteLine();
 
-        var records = GreenhouseTrainer.Train(scenario, model, monitor, options.Epochs, options.Seed, stopOnHalt: true, onEpoch: record =>
+        var records = GreenhouseTrainer.Train(scenario, model, monitor, options.Epochs, options.Seed, stopOnHalt: !options.KeepTraining, firstEpoch: firstEpoch, optimizerState: optimizerState, onEpoch: record =>
         {
             output.WriteLine(Invariant(
                 $"epoch {record.Epoch,3}  train loss {record.TrainLoss:F4}  validation loss {record.ValidationLoss:F4}  accuracy {record.Accuracy:F3}  verdict {record.Verdict.Kind,-8}  monitor {record.MonitorSeconds:F2} s"));
             foreach (var finding in record.Verdict.Findings)
                 output.WriteLine($"          {finding.Severity.ToString().ToLowerInvariant()}: {finding.Evidence}");
             if (record.Verdict.Kind == VerdictKind.Halt)
-                output.WriteLine($"          the gate advises stopping; training stops at epoch {record.Epoch}");
+            {
+                output.WriteLine(options.KeepTraining
+                    ? "          the gate advises stopping; --keep-training goes on"
+                    : $"          the gate advises stopping; training stops at epoch {record.Epoch}");
+            }
         });
-        var best = records.MinBy(r => r.ValidationLoss)!;
-        double bestLoss = best.ValidationLoss;
-        int bestEpoch = best.Epoch;
-        int epoch = records[^1].Epoch;
 
+        // Over every stored epoch, so a resumed run reports the whole run and not only this session.
+        var stored = monitor.Store.Epochs(monitor.Run.Id)
+            .Where(e => e.Metrics.ContainsKey(EpochMetrics.ValidationLossKey))
+            .ToList();
         output.WriteLine();
-        output.WriteLine(Invariant($"lowest validation loss {bestLoss:F4} at epoch {bestEpoch}; {Math.Min(epoch, options.Epochs)} epochs in {total.Elapsed.TotalSeconds:F1} s"));
+        if (stored.Count > 0)
+        {
+            var best = stored.MinBy(e => e.Metrics[EpochMetrics.ValidationLossKey])!;
+            output.WriteLine(Invariant(
+                $"lowest validation loss {best.Metrics[EpochMetrics.ValidationLossKey]:F4} at epoch {best.Epoch}; {records.Count} epochs trained in {total.Elapsed.TotalSeconds:F1} s, {stored.Count} in the store"));
+        }
         string chart = RenderTrend(monitor, options.RunName, monitorOptions.StorePath);
         string store = Quote(monitorOptions.StorePath);
         string run = Quote(options.RunName);

@@ -61,6 +61,12 @@ public sealed record MonitorOptions
     /// <summary>The clock. Default: the system clock.</summary>
     public TimeProvider Time { get; init; } = TimeProvider.System;
 
+    /// <summary>
+    /// The watched model, optional. When given, the monitor checks its schema and weight shapes when it is built, so a run
+    /// name already used by a different model is refused at configuration time instead of failing every epoch.
+    /// </summary>
+    public IWatchedModel? WatchedModel { get; init; }
+
     /// <summary>Checks every setting, naming the first bad one.</summary>
     /// <exception cref="DriftWatchException">A setting is out of range or the probe set does not fit the schema.</exception>
     public void Validate()
@@ -104,6 +110,8 @@ public sealed record MonitorOptions
                 TorchSharp.torch.random.set_rng_state(state);
             }
         }
+        if (WatchedModel is not null && (!WatchedModel.Schema.Names.SequenceEqual(Schema.Names) || WatchedModel.Schema.ColumnCount != Schema.ColumnCount))
+            throw new DriftWatchException("WatchedModel's schema differs from Schema; pass model.Schema as Schema");
         foreach (var name in TrainingValueCounts.Keys)
         {
             if (!Schema.Features.Any(f => f.Name == name && f.Kind == FeatureKind.Categorical))

@@ -26,7 +26,7 @@ public sealed class TrainingMonitor : IDisposable
     private readonly RunDocument _run;
     private CrossMethodDetector _detector;
     private int _lastEpoch;
-    private bool _modelChecked;
+    private IWatchedModel? _checkedModel;
 
     /// <summary>Validates the options, opens the store and registers the run (or resumes it).</summary>
     /// <exception cref="DriftWatchException">Bad options, an unusable store, or a resumed run whose schema, probe set or methods differ.</exception>
@@ -41,6 +41,8 @@ public sealed class TrainingMonitor : IDisposable
             var wanted = Describe(options);
             var existing = _store.FindRun(options.RunName);
             _run = existing is null ? _store.AddRun(wanted) : Resume(existing, wanted);
+            if (options.WatchedModel is not null)
+                CheckModel(options.WatchedModel); // a run name reused by a different model fails here, before any epoch
             _lastEpoch = _store.Epochs(_run.Id).Select(e => e.Epoch).DefaultIfEmpty(-1).Max();
             _detector = CatchUp(before: int.MaxValue);
         }
@@ -91,6 +93,7 @@ public sealed class TrainingMonitor : IDisposable
             // readers and a resumed run look for) land together or not at all, and the file is opened once.
             try
             {
+                var storeClock = Stopwatch.StartNew();
                 _store.InOneTransaction(() =>
                 {
                     foreach (var map in maps)
@@ -111,6 +114,7 @@ public sealed class TrainingMonitor : IDisposable
                         RecordedUtc = _options.Time.GetUtcNow().UtcDateTime,
                         Problems = failures.Select(f => f.Evidence).ToList(),
                         MonitorSeconds = clock.Elapsed.TotalSeconds,
+                        StoreSeconds = storeClock.Elapsed.TotalSeconds,
                     });
                 });
             }
@@ -129,6 +133,33 @@ public sealed class TrainingMonitor : IDisposable
             var kind = failures.Max(f => f.Severity);
             return new Verdict(epoch, kind, failures.Select(f => f.Evidence).ToImmutableArray(), [.. failures]);
         }
+    }
+
+    /// <summary>
+    /// Loads the weight snapshot of the run's last complete epoch into <paramref name="module"/> and returns that epoch,
+    /// so a resumed training loop continues from <c>LastEpoch + 1</c> with the weights it had.
+    /// </summary>
+    /// <remarks>Only the weights are restored: optimizer state, learning-rate schedules and data order are the loop's to restore.</remarks>
+    /// <exception cref="DriftWatchException">The run has no complete epoch, its last epoch has no snapshot, or the snapshot does not fit the module.</exception>
+    public int RestoreLastSnapshot(nn.Module module)
+    {
+        ArgumentNullException.ThrowIfNull(module);
+        var last = _store.Epochs(_run.Id).LastOrDefault()
+            ?? throw new DriftWatchException($"run '{_run.Name}' has no complete epoch in '{_store.Path}' to restore; start it from its first epoch");
+        if (last.SnapshotId is null)
+            throw new DriftWatchException($"epoch {last.Epoch} of run '{_run.Name}' has no weight snapshot (snapshots were off or failed); the run cannot continue from the store");
+        if (_run.ModelShape.Length > 0 && _run.ModelShape != ModelShape(module))
+            throw new DriftWatchException($"run '{_run.Name}' was recorded with a model of another shape; its snapshot cannot be loaded into this model");
+        using var weights = _store.ReadSnapshot(last.SnapshotId);
+        try
+        {
+            module.load(weights);
+        }
+        catch (Exception e) when (e is ArgumentException or InvalidOperationException or IOException or FormatException)
+        {
+            throw new DriftWatchException($"the snapshot of epoch {last.Epoch} of run '{_run.Name}' could not be loaded: {e.Message}", e);
+        }
+        return last.Epoch;
     }
 
     /// <inheritdoc />
@@ -285,7 +316,7 @@ public sealed class TrainingMonitor : IDisposable
 
     private void CheckModel(IWatchedModel model)
     {
-        if (_modelChecked)
+        if (ReferenceEquals(_checkedModel, model))
             return;
         if (!model.Schema.Names.SequenceEqual(_options.Schema.Names) || model.Schema.ColumnCount != _options.Schema.ColumnCount)
             throw new DriftWatchException("the model's schema differs from the schema the monitor was configured with; pass model.Schema in MonitorOptions");
@@ -299,7 +330,7 @@ public sealed class TrainingMonitor : IDisposable
         {
             throw new DriftWatchException($"run '{_run.Name}' was recorded with a model of another shape; use a new run name for a different model");
         }
-        _modelChecked = true;
+        _checkedModel = model;
     }
 
     // A fresh detector fed the stored epochs before the given one, so a resumed run judges as if never interrupted.

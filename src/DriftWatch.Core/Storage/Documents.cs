@@ -213,6 +213,9 @@ public sealed record EpochDocument : IKeyedDocument
 
     /// <summary>Seconds the monitor spent on this epoch.</summary>
     public double MonitorSeconds { get; set; }
+
+    /// <summary>Of <see cref="MonitorSeconds"/>, the seconds spent writing maps, snapshot, statistics and verdict to the store (0 in stores written before it was recorded).</summary>
+    public double StoreSeconds { get; set; }
 }
 
 /// <summary>One finding as stored.</summary>

@@ -1,3 +1,4 @@
+using System.Buffers.Binary;
 using System.Text;
 using LiteDB;
 
@@ -19,8 +20,12 @@ public sealed class RunStore : IDisposable
     private const string MetaCollection = "driftwatch";
     private static readonly byte[] LiteDbSignature = Encoding.ASCII.GetBytes("** This is a LiteDB file **");
 
+    // LiteDB 5 data files (file version 8): 8 KiB pages; the header page holds the last page id at byte 64.
+    private const int PageSize = 8192;
+    private const int LastPageOffset = 64;
+
     // LiteDB's global mapper turns "" into null and trims strings; names from users' data must come back exactly as written.
-    private static readonly BsonMapper Mapper = new() { EmptyStringToNull = false, TrimWhitespace = false };
+    private static readonly BsonMapper Mapper = CreateMapper();
 
     private readonly LiteDatabase _database;
 
@@ -93,10 +98,10 @@ public sealed class RunStore : IDisposable
     }
 
     /// <summary>All runs, in creation order.</summary>
-    public IReadOnlyList<RunDocument> Runs() => Guard(() => RunsCollection.FindAll().OrderBy(r => r.Id).ToList());
+    public IReadOnlyList<RunDocument> Runs() => Guard(() => RunsCollection.FindAll().Select(r => StoreChecks.Run(Path, r)).OrderBy(r => r.Id).ToList());
 
     /// <summary>The run with this name, or null.</summary>
-    public RunDocument? FindRun(string name) => Guard(() => RunsCollection.FindOne(r => r.Name == name));
+    public RunDocument? FindRun(string name) => Guard(() => RunsCollection.FindOne(r => r.Name == name) is { } run ? StoreChecks.Run(Path, run) : null);
 
     /// <summary>The run with this name.</summary>
     /// <exception cref="StoreException">No such run; the message lists the runs there are.</exception>
@@ -236,7 +241,17 @@ public sealed class RunStore : IDisposable
     {
         ArgumentNullException.ThrowIfNull(weights);
         string id = $"snapshots/{runId}/{epoch:D6}";
-        Guard(() => _database.FileStorage.Upload(id, $"run{runId}-epoch{epoch}.weights", weights));
+        Guard(() =>
+        {
+            // A process killed while uploading this snapshot before leaves LiteDB's file record (length still 0, so
+            // LiteDB keeps its chunks) and some chunks; a new upload would collide with them. Both go first.
+            _database.FileStorage.Delete(id);
+            _database.GetCollection("_chunks").DeleteMany(Query.Between(
+                "_id",
+                new BsonDocument { ["f"] = id, ["n"] = 0 },
+                new BsonDocument { ["f"] = id, ["n"] = int.MaxValue })); // a range of the _id index, not a scan
+            _database.FileStorage.Upload(id, $"run{runId}-epoch{epoch}.weights", weights);
+        });
         return id;
     }
 
@@ -257,7 +272,7 @@ public sealed class RunStore : IDisposable
 
     /// <summary>The complete epochs of a run, in epoch order.</summary>
     public IReadOnlyList<EpochDocument> Epochs(int runId) =>
-        Guard(() => EpochsCollection.Find(e => e.RunId == runId).OrderBy(e => e.Epoch).ToList());
+        Guard(() => EpochsCollection.Find(e => e.RunId == runId).Select(e => StoreChecks.Epoch(Path, e)).OrderBy(e => e.Epoch).ToList());
 
     /// <summary>The maps of a run's complete epochs, in epoch order; optionally one method only.</summary>
     public IReadOnlyList<MapDocument> Maps(int runId, string? method = null)
@@ -268,7 +283,8 @@ public sealed class RunStore : IDisposable
             var maps = method is null
                 ? MapsCollection.Find(m => m.RunId == runId)
                 : MapsCollection.Find(m => m.RunId == runId && m.Method == method);
-            return maps.Where(m => complete.Contains(m.Epoch)).OrderBy(m => m.Epoch).ThenBy(m => m.Method).ToList();
+            var run = RunsCollection.FindById(runId);
+            return maps.Where(m => complete.Contains(m.Epoch)).Select(m => StoreChecks.Map(Path, m, run)).OrderBy(m => m.Epoch).ThenBy(m => m.Method).ToList();
         });
     }
 
@@ -278,7 +294,7 @@ public sealed class RunStore : IDisposable
         return Guard(() =>
         {
             var complete = EpochsCollection.Find(e => e.RunId == runId).Select(e => e.Epoch).ToHashSet();
-            return VerdictsCollection.Find(v => v.RunId == runId).Where(v => complete.Contains(v.Epoch)).OrderBy(v => v.Epoch).ToList();
+            return VerdictsCollection.Find(v => v.RunId == runId).Where(v => complete.Contains(v.Epoch)).Select(v => StoreChecks.Verdict(Path, v)).OrderBy(v => v.Epoch).ToList();
         });
     }
 
@@ -329,6 +345,37 @@ public sealed class RunStore : IDisposable
         }
     }
 
+    // LiteDB's BsonMapper registers a type before filling in its members, so two threads meeting a stored type for the
+    // first time at once (two stores opened side by side) could see it half-built: "Member Name not found on BsonMapper".
+    // Every stored type is mapped here, once, inside the type initialiser; afterwards the mapper is only read.
+    private static BsonMapper CreateMapper()
+    {
+        var mapper = new BsonMapper { EmptyStringToNull = false, TrimWhitespace = false };
+        var seen = new HashSet<Type>();
+        var pending = new Stack<Type>([typeof(RunDocument), typeof(EpochDocument), typeof(MapDocument), typeof(VerdictDocument), typeof(StatisticsDocument)]);
+        while (pending.TryPop(out var type))
+        {
+            if (!seen.Add(type))
+                continue;
+            mapper.ToDocument(type, Activator.CreateInstance(type)!);
+            foreach (var property in type.GetProperties(System.Reflection.BindingFlags.Public | System.Reflection.BindingFlags.Instance))
+            {
+                foreach (var nested in StoredTypesIn(property.PropertyType))
+                    pending.Push(nested);
+            }
+        }
+        return mapper;
+    }
+
+    private static IEnumerable<Type> StoredTypesIn(Type type)
+    {
+        type = Nullable.GetUnderlyingType(type) ?? type;
+        var parts = type.IsArray ? [type.GetElementType()!] : type.IsGenericType ? type.GetGenericArguments() : null;
+        if (parts is not null)
+            return parts.SelectMany(StoredTypesIn);
+        return type.IsClass && type.Assembly == typeof(RunStore).Assembly ? [type] : [];
+    }
+
     private static void CheckNotFolder(string full)
     {
         if (Directory.Exists(full))
@@ -341,14 +388,38 @@ public sealed class RunStore : IDisposable
         var info = new FileInfo(full);
         if (info.Length == 0)
             throw new StoreException($"store file '{full}' is empty (0 bytes); it was never written or was truncated; delete it or pass another --store");
-        var header = new byte[32 + LiteDbSignature.Length];
+        var header = new byte[LastPageOffset + 4];
         int read;
+        long length;
         using (var stream = new FileStream(full, FileMode.Open, FileAccess.Read, FileShare.ReadWrite | FileShare.Delete))
+        {
             read = stream.ReadAtLeast(header, header.Length, throwOnEndOfStream: false);
-        if (read < header.Length || !header.AsSpan(32).SequenceEqual(LiteDbSignature))
+            length = stream.Length; // after the header: a writer only ever lengthens the file, so this is at least the header's length unless it was cut
+        }
+        if (read < 32 + LiteDbSignature.Length || !header.AsSpan(32, LiteDbSignature.Length).SequenceEqual(LiteDbSignature))
             throw new StoreException($"'{full}' is not a DriftWatch store (not a LiteDB file); pass the .litedb file a monitored run wrote");
-        if (info.Length < 8192)
-            throw new StoreException($"store file '{full}' is truncated ({info.Length} bytes, less than one LiteDB header and data page)");
+        if (length < PageSize)
+            throw new StoreException($"store file '{full}' is truncated ({length} bytes, less than one LiteDB header and data page)");
+
+        // The header records the last page of the data file. A shorter file was cut off (an interrupted copy, a full disk);
+        // LiteDB would fail later on a missing page with a message about page types. While a write-ahead log is beside the
+        // file, a checkpoint may be half done (header first, pages after) and the log still holds the pages; a writer
+        // clears the log only after the pages are in the file, so the length is taken again after looking for the log.
+        long pages = (long)BinaryPrimitives.ReadUInt32LittleEndian(header.AsSpan(LastPageOffset)) + 1;
+        if (length < pages * PageSize && !HasLog(full) && new FileInfo(full).Length < pages * PageSize)
+        {
+            throw new StoreException(
+                $"store file '{full}' is truncated: {new FileInfo(full).Length} bytes, but its header records {pages} pages ({pages * PageSize} bytes); it was cut short (an interrupted copy or a full disk) — use an intact copy");
+        }
+    }
+
+    // LiteDB 5 keeps its write-ahead log in NAME-log.EXT beside the data file.
+    private static bool HasLog(string full)
+    {
+        string log = System.IO.Path.Combine(
+            System.IO.Path.GetDirectoryName(full)!,
+            System.IO.Path.GetFileNameWithoutExtension(full) + "-log" + System.IO.Path.GetExtension(full));
+        return File.Exists(log) && new FileInfo(log).Length > 0;
     }
 
     private void EnsureSchema()
@@ -359,7 +430,7 @@ public sealed class RunStore : IDisposable
             var format = meta.FindById("format");
             if (format is null)
             {
-                if (_database.GetCollectionNames().Any(n => n != MetaCollection && !n.StartsWith('$')))
+                if (HasForeignCollections())
                     throw new StoreException($"'{Path}' is a LiteDB file of another program, not a DriftWatch store; pass another --store");
                 meta.Insert(new BsonDocument { ["_id"] = "format", ["version"] = FormatVersion });
             }
@@ -378,11 +449,16 @@ public sealed class RunStore : IDisposable
         });
     }
 
+    private bool HasForeignCollections() => _database.GetCollectionNames().Any(n => n != MetaCollection && !n.StartsWith('$'));
+
     private void CheckFormat()
     {
         Guard(() =>
         {
             var format = _database.GetCollection(MetaCollection).FindById("format");
+            // A process killed while creating the store leaves a LiteDB file with nothing in it yet: a store with no runs.
+            if (format is null && !HasForeignCollections())
+                return;
             if (format is null)
                 throw new StoreException($"'{Path}' is a LiteDB file but not a DriftWatch store (no format record); pass the file a monitored run wrote");
             int version = format["version"].AsInt32;
@@ -407,5 +483,23 @@ public sealed class RunStore : IDisposable
         {
             throw new StoreException($"store '{Path}' could not be read or written: {e.Message}", e);
         }
+        catch (IOException e)
+        {
+            // A full disk, a read-only file system, a file removed underneath: LiteDB opens the file per operation in shared mode.
+            throw new StoreException($"store '{Path}' could not be read or written: {e.Message}", e);
+        }
+        catch (UnauthorizedAccessException e)
+        {
+            throw new StoreException($"no permission to read or write store '{Path}': {e.Message}", e);
+        }
+        catch (Exception e) when (e is not DriftWatchException && ThrownInsideLiteDb(e))
+        {
+            // LiteDB has no checksums; a damaged page surfaces as whatever its decoder meets (bad UTF-8, an unknown BSON type).
+            throw new StoreException($"store '{Path}' is damaged and could not be read ({e.GetType().Name}: {e.Message}); use an intact copy", e);
+        }
     }
+
+    private static bool ThrownInsideLiteDb(Exception e) =>
+        e is not (OutOfMemoryException or ThreadAbortException or OperationCanceledException)
+        && new System.Diagnostics.StackTrace(e, fNeedFileInfo: false).GetFrames().Any(f => f.GetMethod()?.DeclaringType?.Assembly == typeof(LiteDatabase).Assembly);
 }

@@ -1,0 +1,29 @@
+using System.Globalization;
+using Xunit;
+
+namespace DriftWatch.Tests.Reliability;
+
+/// <summary>A test that needs to mount a scratch tmpfs; skipped, with the reason shown, where the process may not mount.</summary>
+public sealed class MountFactAttribute : FactAttribute
+{
+    public MountFactAttribute()
+    {
+        if (!CanMount)
+            Skip = "needs a tmpfs of its own (Linux, root or CAP_SYS_ADMIN); the read-only and full-disk cases run where mounting is allowed";
+    }
+
+    // CAP_SYS_ADMIN is bit 21 of the effective capability set (capabilities(7)).
+    public static bool CanMount
+    {
+        get
+        {
+            if (!OperatingSystem.IsLinux() || !File.Exists("/proc/self/status"))
+                return false;
+            string? line = File.ReadLines("/proc/self/status").FirstOrDefault(l => l.StartsWith("CapEff:", StringComparison.Ordinal));
+            return line is not null
+                && ulong.TryParse(line["CapEff:".Length..].Trim(), NumberStyles.HexNumber, CultureInfo.InvariantCulture, out ulong capabilities)
+                && (capabilities & (1UL << 21)) != 0
+                && (File.Exists("/bin/mount") || File.Exists("/usr/bin/mount"));
+        }
+    }
+}
