@@ -407,7 +407,7 @@ public sealed class TrainingMonitor : IDisposable
             throw new DriftWatchException(Mismatch("target or baseline"));
         static string Methods(RunDocument r) => string.Join("; ", r.Methods.Select(m => m.Name + "(" + string.Join(",", m.Settings.OrderBy(s => s.Key, StringComparer.Ordinal).Select(s => s.Key + "=" + s.Value)) + ")"));
         if (Methods(existing) != Methods(wanted))
-            throw new DriftWatchException(Mismatch("attribution method settings"));
+            throw new DriftWatchException(Mismatch("set of attribution method settings"));
         if (existing.ModelFactory.Length == 0 && wanted.ModelFactory.Length > 0)
         {
             // A run begun without a model recipe learns it on resume, so its snapshots can be re-attributed.
