@@ -17,7 +17,7 @@ namespace DriftWatch.Detection;
 /// CUSUM of that gap in standard errors beyond the policy's threshold;
 /// <b>dominant feature</b> — one feature's share leads the next by more than its widths of W on both halves
 /// (a Caution), upgraded to <b>probable leak</b> when that categorical's attribution points at the true label on
-/// nearly every held-out row; <b>overfitting</b> — Prechelt's GL above the policy's threshold, with the features whose
+/// nearly every probe row, held-out rows included; <b>overfitting</b> — Prechelt's GL above the policy's threshold, with the features whose
 /// gap widened since the best-validation epoch as the diagnosis. Attribution rules become findings on their
 /// <see cref="GatePolicy.Patience"/>-th consecutive flagged epoch. Not thread-safe.
 /// </remarks>
@@ -319,7 +319,7 @@ public sealed class DivergenceDetector
                 ? Format($"beyond its noise floor ({s.AlignmentGapWidth[f]:0.00}) since epoch {start}")
                 : Format($"by a steady excess over its noise floor accumulated since epoch {start} (CUSUM {next:0.0} standard errors, threshold {_policy.IdentifierCusumThreshold:0.#})");
             findings.Add(new Finding(FindingKind.MemorisedIdentifier, _policy.SeverityOf(FindingKind.MemorisedIdentifier), names[f].Name, s.AlignmentGap[f], s.AlignmentGapWidth[f], Epochs(start, epoch),
-                Format($"identifier-like '{names[f].Name}' agrees with the label on training rows (alignment {s.AlignmentTraining[f]:+0.00;-0.00}) more than on held-out rows ({s.AlignmentHeldOut[f]:+0.00;-0.00}), ") + how + ": the model is memorising its values"));
+                Format($"identifier-like '{names[f].Name}' agrees with the label on training rows (alignment {s.AlignmentTraining[f]:+0.00;-0.00}) more than on held-out rows ({s.AlignmentHeldOut[f]:+0.00;-0.00}), ") + how + ": the model is memorising its values" + Replay(f, map)));
         }
 
         DominanceRule(epoch, s, map, findings);
@@ -346,35 +346,88 @@ public sealed class DivergenceDetector
 
         string name = _context.Schema.Features[top].Name;
         var purity = Purity(top, map);
-        if (purity is { } pure && pure.LowerBound >= _policy.PurityLowerBound)
+        if (purity is { } pure && pure.LowerBound >= _policy.PurityLowerBound && pure.HeldOutShare >= _policy.PurityLowerBound)
         {
             findings.Add(new Finding(FindingKind.ProbableLeak, _policy.SeverityOf(FindingKind.ProbableLeak), name, pure.LowerBound, _policy.PurityLowerBound, Epochs(since, epoch),
-                Format($"'{name}' decides on both halves ({s.ShareHeldOut[top]:P1} held-out share, next {s.ShareHeldOut[runnerUp]:P1}), and on held-out rows its attribution points at the true label in {pure.Agree} of {pure.Rows} rows across {pure.Values} values (one-sided 95% Wilson lower bound {pure.LowerBound:0.00}): a categorical whose values nearly fix the label suggests a leak present in validation data too, which the loss cannot show")));
+                Format($"'{name}' decides on both halves ({s.ShareHeldOut[top]:P1} held-out share, next {s.ShareHeldOut[runnerUp]:P1}), and its attribution points at the true label in {pure.Agree} of {pure.Rows} probe rows across {pure.Values} values ({pure.HeldOutAgree} of {pure.HeldOutRows} held-out; one-sided 95% Wilson lower bound {pure.LowerBound:0.00}): a categorical whose values nearly fix the label suggests a leak present in validation data too, which the loss cannot show")));
             return;
         }
         findings.Add(new Finding(FindingKind.DominantFeature, VerdictKind.Caution, name, lead, width, Epochs(since, epoch),
             Format($"'{name}' decides on both halves: {s.ShareHeldOut[top]:P1} of held-out attribution against {s.ShareHeldOut[runnerUp]:P1} for the next feature, since epoch {since}; may be genuine — check how it is produced")));
     }
 
-    private sealed record PurityResult(int Agree, int Rows, int Values, double LowerBound);
+    // Supporting evidence for a memorised identifier, never a rule on its own: a held-out row whose identifier value also
+    // sits on a training probe row "replays" when the feature's attribution points at that training row's label (the
+    // majority label when several rows share the value) rather than at its own. Only values shared within the probe set
+    // can be checked, so the sentence says how many rows that was.
+    private string Replay(int feature, AttributionMap map)
+    {
+        if (!_context.HasBinaryLabels)
+            return "";
+        var trainingVotes = new Dictionary<long, int>();
+        foreach (int row in _trainingRows)
+        {
+            long id = _context.IdOf(row, feature);
+            trainingVotes[id] = trainingVotes.GetValueOrDefault(id) + (_context.Labels![row] > 0.5f ? 1 : -1);
+        }
+        int shared = 0, replayed = 0, differing = 0, replayedDiffering = 0;
+        foreach (int row in _heldOutRows)
+        {
+            if (!trainingVotes.TryGetValue(_context.IdOf(row, feature), out int votes) || votes == 0)
+                continue;
+            double score = map[row, feature];
+            bool towardsTraining = score * votes > 0;
+            shared++;
+            if (towardsTraining)
+                replayed++;
+            if ((_context.Labels![row] > 0.5f ? 1 : -1) * votes < 0)
+            {
+                differing++;
+                if (towardsTraining)
+                    replayedDiffering++;
+            }
+        }
+        if (shared == 0)
+            return "; replay cannot be checked: no held-out probe row shares a value with a training probe row";
+        string text = Format($"; replay (supporting evidence): on {replayed} of {shared} held-out rows whose value also sits on training probe rows, the attribution points at that training label");
+        return differing == 0
+            ? text
+            : text + Format($", including {replayedDiffering} of the {differing} whose own label differs");
+    }
 
-    // For a categorical feature: over held-out rows, how often the sign of the feature's attribution agrees with the
-    // row's ±1 label, with its one-sided 95% Wilson lower bound. A leak makes every value point at the label; a genuine
-    // feature, however strong, has values whose effect is weak or is overruled by other features.
+    private sealed record PurityResult(int Agree, int Rows, int HeldOutAgree, int HeldOutRows, int Values, double LowerBound)
+    {
+        public double HeldOutShare => HeldOutRows == 0 ? 0 : (double)HeldOutAgree / HeldOutRows;
+    }
+
+    // For a categorical feature: over the whole probe set (both halves), how often the sign of the feature's attribution
+    // agrees with the row's ±1 label, with its one-sided 95% Wilson lower bound. The rule runs only when the feature
+    // decides on both halves, so both halves are evidence of the same property: a leak makes every value point at the
+    // label; a genuine feature, however strong, has values whose effect is weak or is overruled by other features.
+    // Pooling doubles the rows behind the bound; the held-out half alone must also reach it (as a plain share), so a
+    // feature that fixes the label only on memorised training rows cannot pass on the training half's strength.
     private PurityResult? Purity(int feature, AttributionMap map)
     {
         if (_context.CategoricalInput[feature] < 0 || !_context.HasBinaryLabels)
             return null;
-        int agree = 0;
         var values = new HashSet<long>();
-        foreach (int row in _heldOutRows)
+        int Agreeing(int[] rows)
         {
-            values.Add(_context.IdOf(row, feature));
-            if (map[row, feature] * (2 * _context.Labels![row] - 1) > 0)
-                agree++;
+            int agree = 0;
+            foreach (int row in rows)
+            {
+                values.Add(_context.IdOf(row, feature));
+                if (map[row, feature] * (2 * _context.Labels![row] - 1) > 0)
+                    agree++;
+            }
+            return agree;
         }
-        int rows = _heldOutRows.Length;
-        return rows == 0 ? null : new PurityResult(agree, rows, values.Count, Statistics.WilsonLowerBound(agree, rows, OneSided95));
+        int heldOut = Agreeing(_heldOutRows);
+        int training = Agreeing(_trainingRows);
+        int rows = _heldOutRows.Length + _trainingRows.Length;
+        return _heldOutRows.Length == 0
+            ? null
+            : new PurityResult(heldOut + training, rows, heldOut, _heldOutRows.Length, values.Count, Statistics.WilsonLowerBound(heldOut + training, rows, OneSided95));
     }
 
     private Finding Overfitting(int epoch, double gl, EpochStatistics? s)

@@ -53,7 +53,8 @@ public sealed record GatePolicy
 
     /// <summary>
     /// Probable leak: the one-sided 95% Wilson lower bound of how often the dominant categorical's attribution points at the
-    /// true label on held-out rows must be at least this. Default 0.76.
+    /// true label, over the probe rows of both halves, must be at least this, and so must the plain share on held-out rows.
+    /// Default 0.76.
     /// </summary>
     public double PurityLowerBound { get; init; } = 0.76;
 

@@ -73,6 +73,31 @@ public sealed class DivergenceDetectorTests
         Assert.DoesNotContain(new HistoryBuilder().Run(14).SelectMany(a => a.Verdict.Findings), f => f.Kind == FindingKind.MemorisedIdentifier);
     }
 
+    [Theory]
+    [InlineData(true)]
+    [InlineData(false)]
+    public void AMemorisedIdentifierReportsReplayAsSupportingEvidence(bool replay)
+    {
+        // Held-out rows share crate ids with training rows of the other label: a model that replays the training label
+        // of an id points against the held-out row's own label on every one of them (127 of the 128 held-out rows share).
+        var run = new HistoryBuilder().WithMemorisedCrate(fromEpoch: 1).WithSharedCrates(replay).Run(6);
+
+        var finding = run.SelectMany(a => a.Verdict.Findings).First(f => f.Kind == FindingKind.MemorisedIdentifier);
+        var counts = System.Text.RegularExpressions.Regex.Match(finding.Evidence, @"replay \(supporting evidence\): on (\d+) of (\d+) held-out rows");
+        Assert.True(counts.Success, finding.Evidence);
+        Assert.Equal(127, int.Parse(counts.Groups[2].Value, System.Globalization.CultureInfo.InvariantCulture));
+        int replayed = int.Parse(counts.Groups[1].Value, System.Globalization.CultureInfo.InvariantCulture);
+        if (replay)
+        {
+            Assert.Equal(127, replayed);
+            Assert.Contains("including 127 of the 127 whose own label differs", finding.Evidence);
+        }
+        else
+        {
+            Assert.InRange(replayed, 40, 87); // random signs: about half, well inside 127 ± 3.5 standard deviations
+        }
+    }
+
     [Fact]
     public void ADominantFeatureThatAgreesWithTheLabelOnlyAsOftenAsGenuineOnesIsACaution()
     {
@@ -92,6 +117,18 @@ public sealed class DivergenceDetectorTests
         Assert.Equal(FindingKind.ProbableLeak, finding.Kind);
         Assert.Equal("tray", finding.Feature);
         Assert.Equal(VerdictKind.Halt, run[3].Verdict.Kind);
+    }
+
+    [Fact]
+    public void ADominantCategoricalThatPointsAtTheLabelOnTrainingRowsOnlyStaysACaution()
+    {
+        // Pooled over both halves it agrees with the label on 85% of rows, enough for the bound; on held-out rows only
+        // as often as genuine features (75%), so it is not called a leak that validation data shares.
+        var run = new HistoryBuilder().WithDominant(HistoryBuilder.Tray, fromEpoch: 2, pureValue: true, pureHeldOut: false).Run(6);
+
+        var finding = Assert.Single(run[3].Verdict.Findings);
+        Assert.Equal(FindingKind.DominantFeature, finding.Kind);
+        Assert.Equal(VerdictKind.Caution, run[3].Verdict.Kind);
     }
 
     [Fact]

@@ -23,6 +23,9 @@ internal sealed class HistoryBuilder
     private int _dominantFrom = int.MaxValue;
     private int _dominantFeature = Tray;
     private bool _pureValue;
+    private bool _pureHeldOut = true;
+    private bool _sharedCrates;
+    private bool _replay;
     private double _trainingNudge = 1;
 
     public HistoryBuilder WithSeed(int seed)
@@ -47,11 +50,27 @@ internal sealed class HistoryBuilder
         return this;
     }
 
-    public HistoryBuilder WithDominant(int feature, int fromEpoch, bool pureValue)
+    /// <summary>
+    /// From the epoch on, the feature's scores are six times the others'; with <paramref name="pureValue"/> they point at
+    /// the true label on 95% of rows (on training rows only when <paramref name="pureHeldOut"/> is false).
+    /// </summary>
+    public HistoryBuilder WithDominant(int feature, int fromEpoch, bool pureValue, bool pureHeldOut = true)
     {
         _dominantFeature = feature;
         _dominantFrom = fromEpoch;
         _pureValue = pureValue;
+        _pureHeldOut = pureHeldOut;
+        return this;
+    }
+
+    /// <summary>
+    /// Held-out row r carries the crate id of training row r + 1 (whose label differs); with <paramref name="replay"/> a
+    /// memorised crate's held-out score points at that training row's label instead of at random.
+    /// </summary>
+    public HistoryBuilder WithSharedCrates(bool replay)
+    {
+        _sharedCrates = true;
+        _replay = replay;
         return this;
     }
 
@@ -70,7 +89,9 @@ internal sealed class HistoryBuilder
     public float[] Labels => Enumerable.Range(0, Rows).Select(r => (float)(r % 2)).ToArray();
 
     // Ids: crate ids unique per row; trays cycle through 4 values.
-    public long[] Categorical => Enumerable.Range(0, Rows).SelectMany(r => new long[] { r, r % 4 }).ToArray();
+    public long[] Categorical => Enumerable.Range(0, Rows).SelectMany(r => new long[] { CrateOf(r), r % 4 }).ToArray();
+
+    private long CrateOf(int row) => _sharedCrates && row < _perHalf - 1 ? _perHalf + row + 1 : row;
 
     public RunContext Context()
     {
@@ -100,11 +121,13 @@ internal sealed class HistoryBuilder
                 if (f == 0 && training)
                     size *= _trainingNudge;
                 if (f == Crate && epoch >= _memoriseFrom)
-                    sign = training && random.NextDouble() < _memoriseAgreement ? label : (random.NextDouble() < 0.5 ? 1 : -1);
+                    sign = training && random.NextDouble() < _memoriseAgreement ? label
+                        : !training && _replay && CrateOf(r) != r ? -label // the training row sharing its crate has the other label
+                        : (random.NextDouble() < 0.5 ? 1 : -1);
                 if (f == _dominantFeature && epoch >= _dominantFrom)
                 {
                     size *= 6;
-                    if (_pureValue)
+                    if (_pureValue && (training || _pureHeldOut))
                         sign = random.NextDouble() < 0.95 ? label : -label; // every tray value points at the true label
                 }
                 scores[r * features + f] = (float)(sign * size);
