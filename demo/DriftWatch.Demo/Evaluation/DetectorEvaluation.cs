@@ -46,11 +46,21 @@ public static class DetectorEvaluation
         ArgumentNullException.ThrowIfNull(options);
         ArgumentNullException.ThrowIfNull(output);
         Directory.CreateDirectory(options.OutputFolder);
+        var runs = new List<EvaluationRun>();
+        if (options.FromStore is { } earlier)
+        {
+            output.WriteLine(Invariant($"judging the runs stored in {earlier} again under the given policy (no training)"));
+            foreach (var run in Rejudge(earlier, options.Policy))
+            {
+                runs.Add(run);
+                output.WriteLine(Line(run));
+            }
+            return Finish(runs, options, output);
+        }
         string store = Path.Combine(options.OutputFolder, "evaluation.litedb");
         if (File.Exists(store))
             File.Delete(store);
         output.WriteLine(Invariant($"evaluating {options.Scenarios.Length} scenarios × {options.Seeds.Length} seeds, {options.Epochs} epochs each, IG {options.Steps} steps, probe {options.ProbePerHalf} + {options.ProbePerHalf}"));
-        var runs = new List<EvaluationRun>();
         foreach (var variant in options.Scenarios)
         {
             foreach (int seed in options.Seeds)
@@ -67,10 +77,17 @@ public static class DetectorEvaluation
                     continue;
                 }
                 runs.Add(run);
-                output.WriteLine(Invariant(
-                    $"  {run.Scenario,-15} seed {seed,3}  best {run.BestEpoch,2}  GL5 {Show(run.Gl5Epoch),3}  halt {Show(run.FirstHalt),3}  named {(run.FirstNamed.IsEmpty ? "-" : string.Join(", ", run.FirstNamed.OrderBy(n => n.Value).Select(n => $"{n.Key}@{n.Value}({run.Kinds[n.Key]})")))}  {run.Seconds:F1} s"));
+                output.WriteLine(Line(run));
             }
         }
+        return Finish(runs, options, output);
+    }
+
+    private static string Line(EvaluationRun run) => Invariant(
+        $"  {run.Scenario,-15} seed {run.Seed,3}  best {run.BestEpoch,2}  GL5 {Show(run.Gl5Epoch),3}  halt {Show(run.FirstHalt),3}  named {(run.FirstNamed.IsEmpty ? "-" : string.Join(", ", run.FirstNamed.OrderBy(n => n.Value).Select(n => $"{n.Key}@{n.Value}({run.Kinds[n.Key]})")))}  {run.Seconds:F1} s");
+
+    private static IReadOnlyList<EvaluationRun> Finish(List<EvaluationRun> runs, EvaluationOptions options, TextWriter output)
+    {
         var summary = Summarise(runs);
         File.WriteAllText(Path.Combine(options.OutputFolder, "runs.csv"), RunsCsv(runs));
         File.WriteAllText(Path.Combine(options.OutputFolder, "summary.csv"), SummaryCsv(summary));
@@ -101,7 +118,43 @@ public static class DetectorEvaluation
             SaveSnapshots = false,
         });
         var records = GreenhouseTrainer.Train(scenario, model, monitor, options.Epochs, seed, stopOnHalt: false);
+        return Judge(name, seed, scenario, records.Select(r => (r.Epoch, r.ValidationLoss, r.Verdict)).ToList(), clock.Elapsed.TotalSeconds);
+    }
 
+    /// <summary>
+    /// Judges every run of an earlier evaluation's store again under <paramref name="policy"/>, without training: the
+    /// stored maps and metrics are replayed through the detector, and each run's scenario is rebuilt from its name and seed
+    /// for the planted truth. Seconds are those of the replay.
+    /// </summary>
+    /// <exception cref="DriftWatchException">The store is missing or holds a run whose name is not <c>scenario-seedN-…</c>.</exception>
+    public static IReadOnlyList<EvaluationRun> Rejudge(string storePath, GatePolicy policy)
+    {
+        ArgumentNullException.ThrowIfNull(storePath);
+        ArgumentNullException.ThrowIfNull(policy);
+        using var store = Storage.RunStore.OpenForReading(storePath);
+        var result = new List<EvaluationRun>();
+        foreach (var run in store.Runs())
+        {
+            var clock = Stopwatch.StartNew();
+            int at = run.Name.LastIndexOf("-seed", StringComparison.Ordinal);
+            string[] tail = at < 0 ? [] : run.Name[(at + 5)..].Split('-');
+            if (at < 0 || !GreenhouseVariants.TryParse(run.Name[..at], out var variant)
+                || !int.TryParse(tail[0], NumberStyles.None, CultureInfo.InvariantCulture, out int seed))
+            {
+                throw new DriftWatchException($"run '{run.Name}' in {storePath} was not written by evaluate (expected a name like validation-leak-seed3-…); pass a store from evaluate --out");
+            }
+            var scenario = ScenarioBuilder.For(variant).WithSeed(seed).Build();
+            var losses = store.Epochs(run.Id).ToDictionary(e => e.Epoch, e => e.Metrics.GetValueOrDefault("validation_loss", double.NaN));
+            var judged = RunReview.Replay(store, run, policy)
+                .Select(a => (a.Statistics.Epoch, losses.GetValueOrDefault(a.Statistics.Epoch, double.NaN), a.Verdict))
+                .ToList();
+            result.Add(Judge(GreenhouseVariants.NameOf(variant), seed, scenario, judged, clock.Elapsed.TotalSeconds));
+        }
+        return result;
+    }
+
+    private static EvaluationRun Judge(string name, int seed, GreenhouseScenario scenario, IReadOnlyList<(int Epoch, double ValidationLoss, Verdict Verdict)> records, double seconds)
+    {
         var firstNamed = new Dictionary<string, int>();
         var kinds = new Dictionary<string, SortedSet<string>>();
         foreach (var record in records)
@@ -123,11 +176,11 @@ public static class DetectorEvaluation
             [.. scenario.Features.Where(f => f.Role == FeatureRole.Genuine).Select(f => f.Name)],
             firstNamed.ToImmutableDictionary(),
             kinds.ToImmutableDictionary(k => k.Key, k => string.Join("+", k.Value)),
-            records.FirstOrDefault(r => r.Verdict.Kind == VerdictKind.Halt)?.Epoch,
-            records.FirstOrDefault(r => r.Verdict.Findings.Any(f => f.Severity == VerdictKind.Halt && f.Kind != FindingKind.Overfitting))?.Epoch,
-            records.MinBy(r => r.ValidationLoss)!.Epoch,
+            records.Where(r => r.Verdict.Kind == VerdictKind.Halt).Select(r => (int?)r.Epoch).FirstOrDefault(),
+            records.Where(r => r.Verdict.Findings.Any(f => f.Severity == VerdictKind.Halt && f.Kind != FindingKind.Overfitting)).Select(r => (int?)r.Epoch).FirstOrDefault(),
+            records.MinBy(r => r.ValidationLoss).Epoch,
             glIndex < 0 ? null : records[glIndex].Epoch,
-            clock.Elapsed.TotalSeconds);
+            seconds);
     }
 
     /// <summary>Per scenario kind: how well the gate did.</summary>

@@ -39,6 +39,9 @@ public sealed record EvaluationOptions
     /// <summary>Show the evaluation's help.</summary>
     public bool Help { get; init; }
 
+    /// <summary>An evaluation store to judge again under <see cref="Policy"/> instead of training; null to train.</summary>
+    public string? FromStore { get; init; }
+
     /// <summary>The usage text.</summary>
     public static string Usage { get; } = """
         DriftWatch detector evaluation: trains seeded greenhouse scenarios with the monitor attached (never stopping at a
@@ -54,6 +57,8 @@ public sealed record EvaluationOptions
           --probe N          probe rows per half, 16-1024 (default: 128)
           --policy FILE      gate policy JSON (default: the built-in policy)
           --out FOLDER       where runs.csv, summary.csv and the store go (default: driftwatch-evaluation)
+          --from-store FILE  train nothing: judge every run in an earlier evaluation's store again under --policy
+                             (seeds and scenarios are the store's own; writes runs.csv and summary.csv to --out)
           -h, --help         show this help
 
         Exit codes: 0 done, 2 bad input, 3 an internal error.
@@ -84,7 +89,8 @@ public sealed record EvaluationOptions
                 "--probe" => options with { ProbePerHalf = Integer(name, Value(), 16, 1024) },
                 "--policy" => options with { Policy = GatePolicy.Load(Value()) },
                 "--out" => options with { OutputFolder = Value() },
-                _ => throw new DriftWatchException($"unknown option '{name}' for evaluate; valid options are --seeds, --scenarios, --epochs, --steps, --probe, --policy, --out and --help"),
+                "--from-store" => options with { FromStore = Value() },
+                _ => throw new DriftWatchException($"unknown option '{name}' for evaluate; valid options are --seeds, --scenarios, --epochs, --steps, --probe, --policy, --out, --from-store and --help"),
             };
         }
         return options;
