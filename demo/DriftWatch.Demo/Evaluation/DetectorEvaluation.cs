@@ -50,7 +50,7 @@ public static class DetectorEvaluation
         if (options.FromStore is { } earlier)
         {
             output.WriteLine(Invariant($"judging the runs stored in {earlier} again under the given policy (no training)"));
-            foreach (var run in Rejudge(earlier, options.Policy))
+            foreach (var run in Rejudge(earlier, options.Policy, output))
             {
                 runs.Add(run);
                 output.WriteLine(Line(run));
@@ -124,17 +124,26 @@ public static class DetectorEvaluation
     /// <summary>
     /// Judges every run of an earlier evaluation's store again under <paramref name="policy"/>, without training: the
     /// stored maps and metrics are replayed through the detector, and each run's scenario is rebuilt from its name and seed
-    /// for the planted truth. Seconds are those of the replay.
+    /// for the planted truth. Seconds are those of the replay. A run with fewer epochs than the longest in the store stopped
+    /// early (a failure inside training) and is left out, with a line on <paramref name="skipped"/> when given.
     /// </summary>
     /// <exception cref="DriftWatchException">The store is missing or holds a run whose name is not <c>scenario-seedN-…</c>.</exception>
-    public static IReadOnlyList<EvaluationRun> Rejudge(string storePath, GatePolicy policy)
+    public static IReadOnlyList<EvaluationRun> Rejudge(string storePath, GatePolicy policy, TextWriter? skipped = null)
     {
         ArgumentNullException.ThrowIfNull(storePath);
         ArgumentNullException.ThrowIfNull(policy);
         using var store = Storage.RunStore.OpenForReading(storePath);
         var result = new List<EvaluationRun>();
-        foreach (var run in store.Runs())
+        var stored = store.Runs();
+        var epochCounts = stored.ToDictionary(r => r.Id, r => store.Epochs(r.Id).Count);
+        int longest = epochCounts.Values.DefaultIfEmpty(0).Max();
+        foreach (var run in stored)
         {
+            if (epochCounts[run.Id] < longest)
+            {
+                skipped?.WriteLine(Invariant($"  {run.Name}: left out, {epochCounts[run.Id]} of {longest} epochs stored (the run stopped early)"));
+                continue;
+            }
             var clock = Stopwatch.StartNew();
             int at = run.Name.LastIndexOf("-seed", StringComparison.Ordinal);
             string[] tail = at < 0 ? [] : run.Name[(at + 5)..].Split('-');

@@ -54,9 +54,9 @@ public sealed record GatePolicy
     /// <summary>
     /// Probable leak: the one-sided 95% Wilson lower bound of how often the dominant categorical's attribution points at the
     /// true label, over the probe rows of both halves, must be at least this, and so must the plain share on held-out rows.
-    /// Default 0.76.
+    /// Default 0.77.
     /// </summary>
-    public double PurityLowerBound { get; init; } = 0.76;
+    public double PurityLowerBound { get; init; } = 0.77;
 
     /// <summary>Mean convergence delta, as a fraction of mean |F(x) − F(x′)|, beyond which an epoch's path maps are not trusted. Default 0.05.</summary>
     public double DeltaTolerance { get; init; } = 0.05;
