@@ -52,7 +52,11 @@ public sealed record MonitorOptions
     public ImmutableDictionary<string, ImmutableDictionary<long, int>> TrainingValueCounts { get; init; } =
         ImmutableDictionary<string, ImmutableDictionary<long, int>>.Empty;
 
-    /// <summary>How to rebuild the model from its stored settings (a factory type and its settings), so <c>driftwatch reattribute</c> can load the snapshots later. Default: none.</summary>
+    /// <summary>
+    /// How to rebuild the model from its stored settings (a factory type and its settings), so <c>driftwatch reattribute</c> can
+    /// load the snapshots later. Default: none — a model that is an <see cref="IRebuildableModel"/> (the ready families in
+    /// <c>DriftWatch.Hooks.Models</c>, e.g. <c>TabularNet</c>) records its own recipe.
+    /// </summary>
     public ModelRecipe? Model { get; init; }
 
     /// <summary>Measure each map's quality figures (infidelity, max-sensitivity) every attributed epoch. Default: null, off (they cost extra attribution).</summary>

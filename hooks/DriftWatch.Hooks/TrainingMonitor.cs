@@ -321,14 +321,20 @@ public sealed class TrainingMonitor : IDisposable
         if (!model.Schema.Names.SequenceEqual(_options.Schema.Names) || model.Schema.ColumnCount != _options.Schema.ColumnCount)
             throw new DriftWatchException("the model's schema differs from the schema the monitor was configured with; pass model.Schema in MonitorOptions");
         string shape = ModelShape(model.Module);
-        if (_run.ModelShape.Length == 0)
+        if (_run.ModelShape.Length > 0 && _run.ModelShape != shape)
+            throw new DriftWatchException($"run '{_run.Name}' was recorded with a model of another shape; use a new run name for a different model");
+        bool learnsRecipe = _run.ModelFactory.Length == 0 && model is IRebuildableModel;
+        if (learnsRecipe)
+        {
+            // A ready model family records how it is rebuilt, so the run's snapshots can be re-attributed later.
+            var recipe = ((IRebuildableModel)model).Recipe;
+            _run.ModelFactory = recipe.FactoryName;
+            _run.ModelSettings = new Dictionary<string, string>(recipe.Settings, StringComparer.Ordinal);
+        }
+        if (_run.ModelShape.Length == 0 || learnsRecipe)
         {
             _run.ModelShape = shape;
             _store.UpdateRun(_run);
-        }
-        else if (_run.ModelShape != shape)
-        {
-            throw new DriftWatchException($"run '{_run.Name}' was recorded with a model of another shape; use a new run name for a different model");
         }
         _checkedModel = model;
     }
@@ -386,14 +392,17 @@ public sealed class TrainingMonitor : IDisposable
             Target = options.Target.Label,
             Baseline = options.Baseline.Label,
             Policy = options.Policy.ToJson(),
-            ModelFactory = options.Model?.FactoryName ?? "",
-            ModelSettings = options.Model is null ? [] : new Dictionary<string, string>(options.Model.Settings, StringComparer.Ordinal),
+            ModelFactory = RecipeOf(options)?.FactoryName ?? "",
+            ModelSettings = RecipeOf(options) is { } recipe ? new Dictionary<string, string>(recipe.Settings, StringComparer.Ordinal) : [],
             BaselineValues = options.Baseline.Values is null ? null : FloatBytes.FromFloats(options.Baseline.Values),
             TrainingValueCounts = options.TrainingValueCounts.ToDictionary(
                 kv => kv.Key,
                 kv => kv.Value.ToDictionary(v => v.Key.ToString(CultureInfo.InvariantCulture), v => v.Value)),
         };
     }
+
+    // The recipe given in the options, or else the one a ready model family knows of itself.
+    private static ModelRecipe? RecipeOf(MonitorOptions options) => options.Model ?? (options.WatchedModel as IRebuildableModel)?.Recipe;
 
     private RunDocument Resume(RunDocument existing, RunDocument wanted)
     {

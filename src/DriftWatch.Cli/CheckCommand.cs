@@ -98,6 +98,8 @@ internal static class CheckCommand
                 ["noiseFloor"] = double.IsFinite(f.NoiseFloor) ? f.NoiseFloor : null,
                 ["epochs"] = f.Epochs.ToArray(),
                 ["evidence"] = f.Evidence,
+                ["seenOnlyBy"] = f.SeenOnlyBy.IsDefaultOrEmpty ? Array.Empty<string>() : f.SeenOnlyBy.ToArray(),
+                ["agreement"] = double.IsFinite(f.Agreement) ? f.Agreement : null,
             }).ToList() ?? [],
         };
         output.WriteLine(JsonSerializer.Serialize(document));

@@ -15,7 +15,7 @@ internal static class ModelFactories
         if (string.IsNullOrWhiteSpace(storedName))
         {
             throw new DriftWatchException(
-                $"run '{DisplayText.Clean(run)}' did not record how to rebuild its model; set MonitorOptions.Model to a ModelRecipe (an IModelFactory type and its settings) when training, then its snapshots can be re-attributed");
+                $"run '{DisplayText.Clean(run)}' did not record how to rebuild its model; train a ready model family (DriftWatch.Hooks.Models.TabularNet) or set MonitorOptions.Model to a ModelRecipe (an IModelFactory type and its settings), then its snapshots can be re-attributed");
         }
         int comma = storedName.LastIndexOf(", ", StringComparison.Ordinal);
         string typeName = comma < 0 ? storedName : storedName[..comma];
@@ -23,6 +23,8 @@ internal static class ModelFactories
 
         if (assemblyPath is null)
         {
+            // The hook library's ready model families (TabularNet) are DriftWatch's own: make sure their assembly is loaded.
+            _ = typeof(Hooks.Models.TabularNetFactory).Assembly;
             var type = AppDomain.CurrentDomain.GetAssemblies()
                 .Where(a => assemblyName.Length == 0 || a.GetName().Name == assemblyName)
                 .Select(a => a.GetType(typeName, throwOnError: false))

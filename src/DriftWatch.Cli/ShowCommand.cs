@@ -17,7 +17,7 @@ internal static class ShowCommand
         var run = CommonOptions.Run();
         var method = CommonOptions.Method();
         var top = CommonOptions.Bounded("--top", $"How many features to list per epoch, by share of importance on the held-out half (1 to {MaximumTop}).", 3, 1, MaximumTop);
-        var json = CommonOptions.Json("the run (header, every epoch with every feature's share on each half, the findings)");
+        var json = CommonOptions.Json("the run (header, every epoch with every feature's share on each half, the findings, every method's rank agreement and quality figures per epoch)");
         var command = new Command(
             "show",
             "Show a run epoch by epoch: train and validation loss, the verdict, the features with the largest share of "
@@ -41,6 +41,7 @@ internal static class ShowCommand
             IReadOnlyList<Storage.MapQualityDocument> quality;
             IReadOnlyList<Storage.MapDocument> maps;
             List<string> reattributed;
+            IReadOnlyList<MapTrust> trust;
             using (var runStore = CommonOptions.OpenStore(parse, store))
             {
                 history = RunHistory.Load(runStore, parse.GetValue(run)!, parse.GetValue(method)!);
@@ -49,10 +50,11 @@ internal static class ShowCommand
                 quality = runStore.Quality(document.Id, history.Method);
                 maps = runStore.Maps(document.Id);
                 reattributed = runStore.MapMethods(document.Id).Where(m => !history.Methods.Contains(m)).ToList();
+                trust = RunTrust.Load(runStore, document);
             }
             if (parse.GetValue(json))
             {
-                WriteJson(output, history, path);
+                WriteJson(output, history, path, trust);
                 return ExitCodes.Fine;
             }
             WriteHeader(output, history, path);
@@ -65,7 +67,7 @@ internal static class ShowCommand
             output.WriteLine();
             WriteTable(output, history, parse.GetValue(top));
             output.WriteLine();
-            TrustSection.Write(output, history.Method, maps, quality, reattributed);
+            TrustSection.Write(output, history.Method, maps, quality, reattributed, trust);
             output.WriteLine();
             WriteReasons(output, history);
             return ExitCodes.Fine;
@@ -73,7 +75,7 @@ internal static class ShowCommand
         return command;
     }
 
-    private static void WriteJson(TextWriter output, RunHistory history, string path)
+    private static void WriteJson(TextWriter output, RunHistory history, string path, IReadOnlyList<MapTrust> trust)
     {
         static double? Number(double? value) => value is double v && double.IsFinite(v) ? v : null;
         var document = new Dictionary<string, object?>
@@ -109,6 +111,20 @@ internal static class ShowCommand
                 ["size"] = Number(f.Size),
                 ["noiseFloor"] = Number(f.NoiseFloor),
                 ["evidence"] = f.Evidence,
+                ["seenOnlyBy"] = f.SeenOnlyBy.IsDefaultOrEmpty ? Array.Empty<string>() : f.SeenOnlyBy.ToArray(),
+                ["agreement"] = Number(f.Agreement),
+            }).ToList(),
+            ["trust"] = trust.Select(t => new Dictionary<string, object?>
+            {
+                ["epoch"] = t.Epoch,
+                ["method"] = t.Method,
+                ["agreement"] = Number(t.Agreement),
+                ["measured"] = t.Measured,
+                ["relativeInfidelity"] = Number(t.RelativeInfidelity),
+                ["relativeMaxSensitivity"] = Number(t.RelativeMaxSensitivity),
+                ["infidelity"] = Number(t.Infidelity),
+                ["maxSensitivity"] = Number(t.MaxSensitivity),
+                ["rows"] = t.Rows,
             }).ToList(),
         };
         output.WriteLine(System.Text.Json.JsonSerializer.Serialize(document));

@@ -14,7 +14,21 @@ internal static class TrustSection
     /// <param name="maps">Every map of the run (all methods), for the rank agreement.</param>
     /// <param name="quality">The shown method's stored quality documents.</param>
     /// <param name="reattributed">The run's re-attributed map names (not configured methods).</param>
-    public static void Write(TextWriter output, string method, IReadOnlyList<MapDocument> maps, IReadOnlyList<MapQualityDocument> quality, IReadOnlyList<string> reattributed)
+    /// <param name="trust">Every method's trust documents, for the summary of all methods' quality figures.</param>
+    public static void Write(TextWriter output, string method, IReadOnlyList<MapDocument> maps, IReadOnlyList<MapQualityDocument> quality, IReadOnlyList<string> reattributed, IReadOnlyList<MapTrust> trust)
+    {
+        WriteMethod(output, method, maps, quality, reattributed);
+        var measured = RunTrust.Summarise(trust).Where(s => s.MeasuredEpochs > 0).ToList();
+        if (measured.Count == 0 || (measured.Count == 1 && measured[0].Method == method))
+            return;
+        output.WriteLine("Quality figures of every method (relative; median over measured epochs, last in brackets; 0 is best):");
+        var table = new TextTable("method", ">epochs measured", ">infidelity", ">max-sensitivity");
+        foreach (var s in measured)
+            table.Add(DisplayText.Clean(s.Method), Formats.Integer(s.MeasuredEpochs), $"{Figure(s.MedianInfidelity)} ({Figure(s.LastInfidelity)})", $"{Figure(s.MedianSensitivity)} ({Figure(s.LastSensitivity)})");
+        table.Write(output);
+    }
+
+    private static void WriteMethod(TextWriter output, string method, IReadOnlyList<MapDocument> maps, IReadOnlyList<MapQualityDocument> quality, IReadOnlyList<string> reattributed)
     {
         string name = DisplayText.Clean(method);
         if (reattributed.Count > 0)

@@ -20,7 +20,14 @@ public sealed record FindingSummary(
     int Since,
     double Size,
     double NoiseFloor,
-    string Evidence);
+    string Evidence)
+{
+    /// <summary>The methods whose maps alone showed it, when the method the verdict reads did not; empty for that method's own findings.</summary>
+    public ImmutableArray<string> SeenOnlyBy { get; init; } = [];
+
+    /// <summary>Spearman ρ of held-out importance between the methods at the last epoch raised (see <see cref="Finding.Agreement"/>); NaN when none.</summary>
+    public double Agreement { get; init; } = double.NaN;
+}
 
 /// <summary>Summarises a run's findings for tables: one row per (kind, feature).</summary>
 public static class RunFindings
@@ -29,13 +36,14 @@ public static class RunFindings
     public static IReadOnlyList<FindingSummary> Summarise(RunHistory history)
     {
         ArgumentNullException.ThrowIfNull(history);
-        var groups = new Dictionary<(FindingKind, string), List<(int Epoch, Finding Finding)>>();
-        var order = new List<(FindingKind, string)>();
+        // A finding only other methods showed is kept apart from the verdict's method's finding of the same kind and feature.
+        var groups = new Dictionary<(FindingKind, string, string), List<(int Epoch, Finding Finding)>>();
+        var order = new List<(FindingKind, string, string)>();
         foreach (var epoch in history.Epochs)
         {
             foreach (var finding in epoch.Findings)
             {
-                var key = (finding.Kind, finding.Feature);
+                var key = (finding.Kind, finding.Feature, finding.IsSeenByOtherMethodsOnly ? string.Join("\n", finding.SeenOnlyBy) : "");
                 if (!groups.TryGetValue(key, out var list))
                 {
                     groups[key] = list = [];
@@ -50,7 +58,11 @@ public static class RunFindings
                 var list = groups[key];
                 var last = list[^1].Finding;
                 int since = list.Min(p => p.Finding.Epochs.IsDefaultOrEmpty ? p.Epoch : Math.Min(p.Finding.Epochs[0], p.Epoch));
-                return new FindingSummary(key.Item1, key.Item2, list.Max(p => p.Finding.Severity), [.. list.Select(p => p.Epoch)], since, last.Size, last.NoiseFloor, last.Evidence);
+                return new FindingSummary(key.Item1, key.Item2, list.Max(p => p.Finding.Severity), [.. list.Select(p => p.Epoch)], since, last.Size, last.NoiseFloor, last.Evidence)
+                {
+                    SeenOnlyBy = last.IsSeenByOtherMethodsOnly ? last.SeenOnlyBy : [],
+                    Agreement = last.Agreement,
+                };
             })
             .OrderByDescending(s => s.Severity)
             .ThenBy(s => s.FlaggedEpochs[0])
@@ -72,6 +84,15 @@ public static class RunFindings
                 spans.Add((epoch.Epoch, epoch.Epoch, kind));
         }
         return spans;
+    }
+
+    /// <summary>The finding's name in plain words with, for one only other methods showed, which ones: e.g. <c>leak, seen by smoothgrad only</c> (names as stored; escape them for display).</summary>
+    public static string Describe(FindingSummary finding)
+    {
+        ArgumentNullException.ThrowIfNull(finding);
+        return finding.SeenOnlyBy.IsDefaultOrEmpty
+            ? Describe(finding.Kind)
+            : $"{Describe(finding.Kind)}, seen by {string.Join(" and ", finding.SeenOnlyBy)} only";
     }
 
     /// <summary>The kind's name in plain words, e.g. <c>memorised identifier</c>.</summary>

@@ -76,6 +76,7 @@ public static class RunReport
 
         progress?.Invoke("writing the report");
         var findings = RunFindings.Summarise(history);
+        var trust = RunTrust.Load(store, store.GetRun(history.RunName));
         var now = options.Clock.GetUtcNow();
         string stem = ChartFiles.SafePart(history.RunName) + "-report";
         string html = Path.Combine(folder, stem + ".html");
@@ -83,8 +84,8 @@ public static class RunReport
         try
         {
             Directory.CreateDirectory(folder);
-            File.WriteAllText(html, Html(history, findings, charts, store.Path, now), new UTF8Encoding(false));
-            File.WriteAllText(markdown, Markdown(history, findings, charts, folder, store.Path, now), new UTF8Encoding(false));
+            File.WriteAllText(html, Html(history, findings, trust, charts, store.Path, now), new UTF8Encoding(false));
+            File.WriteAllText(markdown, Markdown(history, findings, trust, charts, folder, store.Path, now), new UTF8Encoding(false));
         }
         catch (Exception e) when (e is IOException or UnauthorizedAccessException)
         {
@@ -108,7 +109,7 @@ public static class RunReport
         return text;
     }
 
-    private static string Html(RunHistory history, IReadOnlyList<FindingSummary> findings, IReadOnlyList<(ChartKind Kind, string Path)> charts, string storePath, DateTimeOffset now)
+    private static string Html(RunHistory history, IReadOnlyList<FindingSummary> findings, IReadOnlyList<MapTrust> trust, IReadOnlyList<(ChartKind Kind, string Path)> charts, string storePath, DateTimeOffset now)
     {
         string scriptHash = Convert.ToBase64String(SHA256.HashData(Encoding.UTF8.GetBytes(PageCheckScript)));
         var h = new StringBuilder();
@@ -159,12 +160,47 @@ public static class RunReport
                 + "<th scope=\"col\">raised at epochs</th><th scope=\"col\">covers since</th><th scope=\"col\">size</th><th scope=\"col\">noise floor</th><th scope=\"col\">evidence (latest)</th></tr></thead>\n<tbody>\n");
             foreach (var f in findings)
             {
-                h.Append($"<tr class=\"severity-{f.Severity.ToString().ToLowerInvariant()}\" data-kind=\"{f.Kind}\" data-feature=\"{ReportText.Html(f.Feature)}\">");
-                h.Append($"<td>{f.Severity}</td><td>{ReportText.Html(RunFindings.Describe(f.Kind))}</td><td>{(f.Feature.Length == 0 ? "(run)" : ReportText.Html(f.Feature))}</td>");
+                h.Append($"<tr class=\"severity-{f.Severity.ToString().ToLowerInvariant()}\" data-kind=\"{f.Kind}\" data-feature=\"{ReportText.Html(f.Feature)}\" data-seen-only-by=\"{ReportText.Html(string.Join(", ", f.SeenOnlyBy))}\">");
+                h.Append($"<td>{f.Severity}</td><td>{ReportText.Html(RunFindings.Describe(f))}</td><td>{(f.Feature.Length == 0 ? "(run)" : ReportText.Html(f.Feature))}</td>");
                 h.Append($"<td>{ReportText.Html(ReportText.Ranges(f.FlaggedEpochs))}</td><td>{ReportText.Integer(f.Since)}</td>");
                 h.Append($"<td class=\"number\">{ReportText.Number(f.Size)}</td><td class=\"number\">{ReportText.Number(f.NoiseFloor)}</td><td>{ReportText.Html(f.Evidence)}</td></tr>\n");
             }
             h.Append("</tbody>\n</table>\n");
+        }
+        h.Append("</section>\n");
+
+        h.Append("<section id=\"trust\">\n<h2>Trust in the maps</h2>\n");
+        if (trust.Count == 0)
+        {
+            h.Append($"<p>{ReportText.Html(NoTrust)}</p>\n");
+        }
+        else
+        {
+            h.Append($"<p>{ReportText.Html(TrustIntroduction(history))}</p>\n");
+            h.Append("<table id=\"trust-table\" class=\"trust\">\n<thead><tr>");
+            foreach (string header in TrustHeaders(history))
+                h.Append($"<th scope=\"col\">{ReportText.Html(header)}</th>");
+            h.Append("</tr></thead>\n<tbody>\n");
+            foreach (var row in TrustRows(history, trust))
+            {
+                h.Append($"<tr data-method=\"{ReportText.Html(row[0])}\"><td>{ReportText.Html(row[0])}</td>");
+                foreach (string cell in row.Skip(1))
+                    h.Append($"<td class=\"number\">{ReportText.Html(cell)}</td>");
+                h.Append("</tr>\n");
+            }
+            h.Append("</tbody>\n</table>\n");
+            h.Append($"<details><summary>Per epoch and method ({ReportText.Integer(trust.Count)} maps)</summary>\n<table id=\"trust-epochs\" class=\"trust\">\n<thead><tr>");
+            foreach (string header in EpochTrustHeaders)
+                h.Append($"<th scope=\"col\">{ReportText.Html(header)}</th>");
+            h.Append("</tr></thead>\n<tbody>\n");
+            foreach (var t in trust)
+            {
+                h.Append($"<tr><td class=\"number\">{ReportText.Integer(t.Epoch)}</td><td>{ReportText.Html(t.Method)}</td>");
+                foreach (string cell in EpochTrustCells(t))
+                    h.Append($"<td class=\"number\">{ReportText.Html(cell)}</td>");
+                h.Append("</tr>\n");
+            }
+            h.Append("</tbody>\n</table>\n</details>\n");
         }
         h.Append("</section>\n");
 
@@ -194,7 +230,7 @@ public static class RunReport
         return h.ToString();
     }
 
-    private static string Markdown(RunHistory history, IReadOnlyList<FindingSummary> findings, IReadOnlyList<(ChartKind Kind, string Path)> charts, string folder, string storePath, DateTimeOffset now)
+    private static string Markdown(RunHistory history, IReadOnlyList<FindingSummary> findings, IReadOnlyList<MapTrust> trust, IReadOnlyList<(ChartKind Kind, string Path)> charts, string folder, string storePath, DateTimeOffset now)
     {
         var m = new StringBuilder();
         m.Append($"# Run “{ReportText.Markdown(history.RunName)}”\n\n");
@@ -230,10 +266,36 @@ public static class RunReport
             m.Append("| severity | finding | feature | raised at epochs | covers since | size | noise floor | evidence (latest) |\n|---|---|---|---|---:|---:|---:|---|\n");
             foreach (var f in findings)
             {
-                m.Append($"| {f.Severity} | {ReportText.Markdown(RunFindings.Describe(f.Kind))} | {(f.Feature.Length == 0 ? "(run)" : ReportText.Markdown(f.Feature))} | {ReportText.Markdown(ReportText.Ranges(f.FlaggedEpochs))} | ");
+                m.Append($"| {f.Severity} | {ReportText.Markdown(RunFindings.Describe(f))} | {(f.Feature.Length == 0 ? "(run)" : ReportText.Markdown(f.Feature))} | {ReportText.Markdown(ReportText.Ranges(f.FlaggedEpochs))} | ");
                 m.Append($"{ReportText.Integer(f.Since)} | {ReportText.Number(f.Size)} | {ReportText.Number(f.NoiseFloor)} | {ReportText.Markdown(f.Evidence)} |\n");
             }
             m.Append('\n');
+        }
+
+        m.Append("## Trust in the maps\n\n");
+        if (trust.Count == 0)
+        {
+            m.Append($"{ReportText.Markdown(NoTrust)}\n\n");
+        }
+        else
+        {
+            m.Append($"{ReportText.Markdown(TrustIntroduction(history))}\n\n");
+            var headers = TrustHeaders(history);
+            m.Append("| " + string.Join(" | ", headers.Select(x => ReportText.Markdown(x))) + " |\n|---|" + string.Concat(Enumerable.Repeat("---:|", headers.Count - 1)) + "\n");
+            foreach (var row in TrustRows(history, trust))
+                m.Append("| " + string.Join(" | ", row.Select(x => ReportText.Markdown(x))) + " |\n");
+            m.Append('\n');
+            if (trust.Count <= MarkdownTrustRows)
+            {
+                m.Append("Per epoch and method:\n\n| " + string.Join(" | ", EpochTrustHeaders.Select(x => ReportText.Markdown(x))) + " |\n|---:|---|" + string.Concat(Enumerable.Repeat("---:|", EpochTrustHeaders.Length - 2)) + "\n");
+                foreach (var t in trust)
+                    m.Append($"| {ReportText.Integer(t.Epoch)} | {ReportText.Markdown(t.Method)} | " + string.Join(" | ", EpochTrustCells(t).Select(x => ReportText.Markdown(x))) + " |\n");
+                m.Append('\n');
+            }
+            else
+            {
+                m.Append($"The {ReportText.Integer(trust.Count)} per-epoch figures are in the HTML report and in `driftwatch show --method NAME`.\n\n");
+            }
         }
 
         m.Append("## Charts\n\n");
@@ -252,13 +314,16 @@ public static class RunReport
     {
         ArgumentNullException.ThrowIfNull(history);
         ArgumentNullException.ThrowIfNull(findings);
-        string Names(FindingKind kind) => string.Join(", ", findings.Where(f => f.Kind == kind && f.Feature.Length > 0).Select(f => $"'{f.Feature}'"));
         var steps = new List<string>();
         if (findings.Count == 0)
         {
             steps.Add("Nothing was flagged at any epoch. The charts still show what the model leans on; a feature with a large share deserves a look at how it is produced.");
             return steps;
         }
+        // Findings that only other methods showed get their own step; the steps by kind are about the verdict's method's.
+        var others = findings.Where(f => !f.SeenOnlyBy.IsDefaultOrEmpty).ToList();
+        findings = findings.Where(f => f.SeenOnlyBy.IsDefaultOrEmpty).ToList();
+        string Names(FindingKind kind) => string.Join(", ", findings.Where(f => f.Kind == kind && f.Feature.Length > 0).Select(f => $"'{f.Feature}'").Distinct());
         if (findings.Any(f => f.Kind == FindingKind.Leak))
             steps.Add($"Check how {Names(FindingKind.Leak)} is produced for training rows and for held-out rows: a value that carries the label only where the model trained is a leak. The divergence chart shows the gap.");
         if (findings.Any(f => f.Kind == FindingKind.ProbableLeak))
@@ -276,8 +341,56 @@ public static class RunReport
             steps.Add($"{Names(FindingKind.DominantFeature)} decides on both halves; that may be genuine, but check how it is produced before trusting it.");
         if (findings.Any(f => f.Kind is FindingKind.NumericalTrouble or FindingKind.MonitoringFailure))
             steps.Add("Some epochs had numerical trouble or a monitoring failure; their attributions are not trusted ('driftwatch show' lists the problems).");
+        foreach (var group in others.GroupBy(f => string.Join(" and ", f.SeenOnlyBy)))
+        {
+            string features = string.Join(", ", group.Select(f => $"'{f.Feature}' ({RunFindings.Describe(f.Kind)})").Distinct());
+            steps.Add($"{features} swung in the maps of {group.Key} only, not in those of {history.PrimaryMethod}, which the verdict reads: it may be an artefact of one method or a swing the other misses. Compare the charts of both methods (--method {group.First().SeenOnlyBy[0]}) before acting.");
+        }
         return steps;
     }
+
+    private const int MarkdownTrustRows = 200;
+
+    private const string NoTrust =
+        "The run has one method and no quality figures. Configure several methods (their rank agreement is then stored) or MonitorOptions.Quality, or add maps of another method with 'driftwatch reattribute --quality'.";
+
+    private static readonly string[] EpochTrustHeaders =
+        ["epoch", "method", "ρ", "relative infidelity", "relative max-sensitivity", "infidelity", "max-sensitivity", "rows"];
+
+    private static string TrustIntroduction(RunHistory history) =>
+        $"ρ is Spearman's rank correlation of held-out importance with {history.PrimaryMethod}, the method the verdict reads (1 = same order; "
+        + $"for {history.PrimaryMethod} itself, its lowest ρ with any other method). Quality figures after Yeh, Hsieh, Suggala, Inouye, Ravikumar 2019, "
+        + "on a seeded subsample of probe rows, relative so methods compare (0 is best): infidelity is the squared error of the output change a map predicts "
+        + "when random feature subsets are set to the baseline, over the squared change itself (1 = no better than predicting no change; plain-gradient maps "
+        + "such as saliency and smoothgrad are per unit of input, so theirs is high by construction); max-sensitivity is the largest change of a row's scores "
+        + "when its inputs move a little, over the scores' own size. Median over epochs, last measured value in brackets.";
+
+    private static List<string> TrustHeaders(RunHistory history) =>
+        ["method", "epochs", "quality measured", "relative infidelity", "relative max-sensitivity", $"ρ with {history.PrimaryMethod}: median (lowest, at epoch)"];
+
+    private static IEnumerable<string[]> TrustRows(RunHistory history, IReadOnlyList<MapTrust> trust) =>
+        RunTrust.Summarise(trust).Select(s => new[]
+        {
+            s.Method,
+            ReportText.Integer(s.Epochs),
+            ReportText.Integer(s.MeasuredEpochs),
+            s.MeasuredEpochs == 0 ? "-" : $"{Figure(s.MedianInfidelity)} ({Figure(s.LastInfidelity)})",
+            s.MeasuredEpochs == 0 ? "-" : $"{Figure(s.MedianSensitivity)} ({Figure(s.LastSensitivity)})",
+            double.IsFinite(s.MedianAgreement) ? $"{MethodAgreement.Format(s.MedianAgreement)} ({MethodAgreement.Format(s.LowestAgreement)}, {ReportText.Integer(s.LowestAgreementEpoch)})" : "-",
+        });
+
+    private static IEnumerable<string> EpochTrustCells(MapTrust t) =>
+    [
+        MethodAgreement.Format(t.Agreement),
+        t.Measured ? Figure(t.RelativeInfidelity) : "-",
+        t.Measured ? Figure(t.RelativeMaxSensitivity) : "-",
+        t.Measured ? ReportText.Number(t.Infidelity) : "-",
+        t.Measured ? ReportText.Number(t.MaxSensitivity) : "-",
+        t.Measured ? ReportText.Integer(t.Rows) : "-",
+    ];
+
+    private static string Figure(double value) =>
+        double.IsFinite(value) ? value.ToString("0.000", CultureInfo.InvariantCulture) : "n/a";
 
     private static List<(string Name, string Value)> Facts(RunHistory history, string storePath)
     {

@@ -77,6 +77,13 @@ public sealed record GatePolicy
     public ImmutableArray<FindingKind> HaltOn { get; init; } =
         [FindingKind.Leak, FindingKind.MemorisedIdentifier, FindingKind.ProbableLeak, FindingKind.Overfitting];
 
+    /// <summary>
+    /// Whether a finding that only other methods than the first configured one show may raise a Halt (by its kind, as
+    /// <see cref="HaltOn"/> says). Default false: such a finding asks for Caution at most, since one method's swing can be
+    /// that method's artefact.
+    /// </summary>
+    public bool SingleMethodMayHalt { get; init; }
+
     /// <summary>The built-in policy.</summary>
     public static GatePolicy Default { get; } = new();
 
@@ -102,10 +109,14 @@ public sealed record GatePolicy
         ["cusumAllowance"] = "number ≥ 0",
         ["cusumThreshold"] = "number > 0",
         ["haltOn"] = "array of " + string.Join(", ", Enum.GetNames<FindingKind>()),
+        ["singleMethodMayHalt"] = "true or false",
     }.ToImmutableDictionary();
 
     /// <summary>Whether a finding of this kind may raise a Halt.</summary>
     public VerdictKind SeverityOf(FindingKind kind) => HaltOn.Contains(kind) ? VerdictKind.Halt : VerdictKind.Caution;
+
+    /// <summary>The severity of a finding of this kind that only methods other than the first configured one show.</summary>
+    public VerdictKind SeverityOfSingleMethod(FindingKind kind) => SingleMethodMayHalt ? SeverityOf(kind) : VerdictKind.Caution;
 
     /// <summary>Reads a policy file; keys left out keep their defaults.</summary>
     /// <exception cref="DriftWatchException">Missing file, bad JSON, an unknown key or a value out of range; the message names it.</exception>
@@ -166,6 +177,7 @@ public sealed record GatePolicy
             ["cusumAllowance"] = CusumAllowance,
             ["cusumThreshold"] = CusumThreshold,
             ["haltOn"] = HaltOn.Select(k => k.ToString()).ToArray(),
+            ["singleMethodMayHalt"] = SingleMethodMayHalt,
         };
         return JsonSerializer.Serialize(values, new JsonSerializerOptions { WriteIndented = true });
     }
@@ -211,6 +223,7 @@ public sealed record GatePolicy
             "cusumAllowance" => p with { CusumAllowance = Number(d => d >= 0) },
             "cusumThreshold" => p with { CusumThreshold = Number(d => d > 0) },
             "haltOn" => p with { HaltOn = Kinds(value, Bad) },
+            "singleMethodMayHalt" => p with { SingleMethodMayHalt = value.ValueKind is JsonValueKind.True or JsonValueKind.False ? value.GetBoolean() : throw Bad() },
             _ => throw Bad(),
         };
     }

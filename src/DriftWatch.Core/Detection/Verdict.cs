@@ -55,7 +55,25 @@ public sealed record Finding(
     double Size,
     double NoiseFloor,
     ImmutableArray<int> Epochs,
-    string Evidence);
+    string Evidence)
+{
+    /// <summary>
+    /// The methods whose maps alone show this finding, when the run has several methods and the one the verdict reads
+    /// (the first configured) does not; empty for that method's own findings.
+    /// </summary>
+    public ImmutableArray<string> SeenOnlyBy { get; init; } = [];
+
+    /// <summary>
+    /// Confidence from method agreement: Spearman ρ of held-out importance between the method that raised the finding and
+    /// the others at this epoch — for a finding seen without the verdict's method, the first method that sees it against
+    /// the verdict's method; for the verdict's method's own findings, the lowest ρ with any other method. NaN when no
+    /// other method's map was there or with one method configured.
+    /// </summary>
+    public double Agreement { get; init; } = double.NaN;
+
+    /// <summary>Whether only other methods than the one the verdict reads show this finding.</summary>
+    public bool IsSeenByOtherMethodsOnly => !SeenOnlyBy.IsDefaultOrEmpty;
+}
 
 /// <summary>The gate's verdict at an epoch, with the reasons and findings behind it.</summary>
 /// <param name="Epoch">The epoch judged.</param>

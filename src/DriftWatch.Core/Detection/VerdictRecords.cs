@@ -25,6 +25,8 @@ public static class VerdictRecords
                 NoiseFloor = f.NoiseFloor,
                 Epochs = [.. f.Epochs],
                 Evidence = f.Evidence,
+                SeenOnlyBy = f.SeenOnlyBy.IsDefaultOrEmpty ? [] : [.. f.SeenOnlyBy],
+                Agreement = f.Agreement,
             }).ToList(),
         };
     }
@@ -40,7 +42,11 @@ public static class VerdictRecords
             f.Size,
             f.NoiseFloor,
             [.. f.Epochs],
-            f.Evidence)).ToImmutableArray();
+            f.Evidence)
+        {
+            SeenOnlyBy = f.SeenOnlyBy is null ? [] : [.. f.SeenOnlyBy],
+            Agreement = f.Agreement,
+        }).ToImmutableArray();
         return new Verdict(document.Epoch, Enum.Parse<VerdictKind>(document.Kind), [.. document.Reasons], findings);
     }
 }

@@ -59,3 +59,11 @@ public sealed record ModelRecipe(Type Factory, ImmutableSortedDictionary<string,
         return instance.Create(settings) ?? throw new DriftWatchException($"model factory '{factory.FullName}' returned no model");
     }
 }
+
+/// <summary>A watched model that knows how it is rebuilt: a run watching it records its recipe without being told.</summary>
+/// <remarks>The hook library's ready model families implement it; <c>MonitorOptions.Model</c>, when set, takes precedence.</remarks>
+public interface IRebuildableModel : IWatchedModel
+{
+    /// <summary>The factory and settings that build a model of this architecture with fresh weights.</summary>
+    ModelRecipe Recipe { get; }
+}

@@ -241,6 +241,12 @@ public sealed record FindingDocument
 
     /// <summary>Plain-language evidence.</summary>
     public string Evidence { get; set; } = "";
+
+    /// <summary>The methods whose maps alone show it, when the method the verdict reads does not; empty otherwise (and in older stores).</summary>
+    public List<string> SeenOnlyBy { get; set; } = [];
+
+    /// <summary>Spearman ρ of held-out importance with the other methods at that epoch (see <c>Finding.Agreement</c>); NaN when none.</summary>
+    public double Agreement { get; set; } = double.NaN;
 }
 
 /// <summary>The gate's verdict at an epoch, with the findings behind it.</summary>

@@ -68,7 +68,8 @@ internal static class StoreChecks
     public static VerdictDocument Verdict(string path, VerdictDocument verdict)
     {
         Require(path, Present(verdict.Reasons, verdict.Findings) && verdict.Reasons.All(r => Present(r)) && Known<VerdictKind>(verdict.Kind)
-            && verdict.Findings.All(f => Present(f, f?.Epochs, f?.Feature, f?.Evidence) && Known<FindingKind>(f!.Kind) && Known<VerdictKind>(f.Severity)),
+            && verdict.Findings.All(f => Present(f, f?.Epochs, f?.Feature, f?.Evidence) && Known<FindingKind>(f!.Kind) && Known<VerdictKind>(f.Severity)
+                && (f.SeenOnlyBy is null || f.SeenOnlyBy.All(m => m is not null))),
             $"the verdict of epoch {verdict.Epoch} is damaged (an unknown kind or a missing field)");
         return verdict;
     }

@@ -151,6 +151,29 @@ public sealed class ShapleyTests
     }
 
     [Fact]
+    public void AntitheticSamplingOfTwoPlayersIsExactWithOneOrderingAndItsReverse()
+    {
+        // Two players: v({1}) = 1, v({2}) = 0, v({1, 2}) = 3. The Shapley value is the mean marginal contribution over
+        // the 2! orderings (Shapley 1953): φ1 = ((1 − 0) + (3 − 0)) / 2 = 2, φ2 = ((0 − 0) + (3 − 1)) / 2 = 1 (worked by
+        // hand from the definition). An ordering and its reverse are both orderings, so antithetic sampling with 2 is exact
+        // for every seed; two independent draws repeat one ordering for some seeds.
+        var two = FeatureSchema.CreateBuilder().AddDense("player 1").AddDense("player 2").Build();
+        static Tensor Game(Tensor z) => z[.., 0] + 2 * z[.., 0] * z[.., 1];
+        double[] Shapley(ShapleySampling method)
+        {
+            using var scope = torch.NewDisposeScope();
+            var result = method.Attribute(new AttributionInput(Game, torch.ones(1, 2), torch.zeros(2), 64).WithSchema(two));
+            return [result.Scores[0], result.Scores[1]];
+        }
+
+        for (int seed = 0; seed < 10; seed++)
+            Assert.Equal(new[] { 2.0, 1.0 }, Shapley(new ShapleySampling(2, antithetic: true, seed: seed)).Select(v => Math.Round(v, 5)));
+        var plain = Enumerable.Range(0, 10).Select(seed => Shapley(new ShapleySampling(2, antithetic: false, seed: seed))).ToList();
+        Assert.Contains(plain, v => Math.Abs(v[0] - 2) > 0.5); // both draws were the same ordering: φ = (1, 2) or (3, 0)
+        Assert.All(plain, v => Assert.Equal(3.0, v[0] + v[1], 5)); // efficiency holds for every ordering, sampled or not
+    }
+
+    [Fact]
     public void AntitheticSamplingNeedsAnEvenNumberOfOrderings()
     {
         var error = Assert.Throws<DriftWatchException>(() => new ShapleySampling(25, antithetic: true));

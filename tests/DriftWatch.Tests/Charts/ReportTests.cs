@@ -81,7 +81,7 @@ public sealed class ReportTests : IClassFixture<DemoStoreFixture>
         var html = new HtmlParser().ParseDocument(Markdown.ToHtml(markdown, new MarkdownPipelineBuilder().UseAdvancedExtensions().Build()));
 
         Assert.Equal($"Run “{DemoStoreFixture.LeakRun}”", html.QuerySelector("h1")!.TextContent);
-        Assert.Equal(["What to look at next", "The run", "Verdict timeline", "Findings", "Charts"], html.QuerySelectorAll("h2").Select(h => h.TextContent));
+        Assert.Equal(["What to look at next", "The run", "Verdict timeline", "Findings", "Trust in the maps", "Charts"], html.QuerySelectorAll("h2").Select(h => h.TextContent));
         Assert.Contains(html.QuerySelectorAll("li"), li => li.TextContent.StartsWith("Check how 'inspection tray' is produced", StringComparison.Ordinal));
         Assert.Contains("Attributions describe the model, not causes", html.QuerySelector("blockquote")!.TextContent, StringComparison.Ordinal);
         Assert.Contains(html.QuerySelectorAll("li"), li => li.TextContent.Contains("Halt", StringComparison.Ordinal));

@@ -112,7 +112,7 @@ public sealed class ReattributeCommandTests
         var wrongAssembly = Run("reattribute", DemoStoreFixture.CleanRun, "--store", store, "--method", "saliency", "--model-assembly", typeof(RunStore).Assembly.Location);
 
         Assert.Equal(ExitCodes.BadInput, noRecipe.Code);
-        Assert.Contains("did not record how to rebuild its model; set MonitorOptions.Model", noRecipe.Error);
+        Assert.Contains("did not record how to rebuild its model; train a ready model family (DriftWatch.Hooks.Models.TabularNet) or set MonitorOptions.Model", noRecipe.Error);
         Assert.Equal(ExitCodes.BadInput, wrongFile.Code);
         Assert.Contains("is not a .NET assembly", wrongFile.Error);
         Assert.Equal(ExitCodes.BadInput, wrongAssembly.Code);
