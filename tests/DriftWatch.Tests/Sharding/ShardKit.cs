@@ -3,12 +3,44 @@ using System.Security.Cryptography;
 using System.Text;
 using DriftWatch.Cli;
 using DriftWatch.Storage;
+using DriftWatch.Tests.Demo;
 
 namespace DriftWatch.Tests.Sharding;
 
 /// <summary>Runs the CLI in process and reads re-attributed maps back as text, to compare stores document by document.</summary>
 internal static class ShardKit
 {
+    /// <summary>
+    /// The re-attribution the shard tests split: SmoothGrad with its own seeded noise, a method whose maps depend on a
+    /// random stream, so equal results also show that a shard draws the same noise for an epoch as the whole job does.
+    /// </summary>
+    public static readonly string[] Method = ["--method", "smoothgrad", "--setting", "samples=4"];
+
+    /// <summary>The name <see cref="Method"/>'s maps are stored under.</summary>
+    public const string StoredName = "re-smoothgrad";
+
+    private static readonly object WholeLock = new();
+
+    /// <summary>The clean run re-attributed with <paramref name="method"/> in one piece, once per fixture (a store beside the fixture's; only read).</summary>
+    public static string WholeReattribution(DemoStoreFixture fixture, string[] method)
+    {
+        lock (WholeLock)
+        {
+            string key = Convert.ToHexString(SHA256.HashData(Encoding.UTF8.GetBytes(string.Join('\n', method))))[..12];
+            string store = Path.Combine(fixture.Folder, "whole-" + key + ".litedb");
+            if (!File.Exists(store))
+            {
+                string partial = store + ".partial";
+                File.Copy(fixture.StorePath, partial, overwrite: true);
+                var (code, _, error) = RunCli(["reattribute", DemoStoreFixture.CleanRun, "--store", partial, .. method]);
+                if (code != ExitCodes.Fine)
+                    throw new InvalidOperationException($"the whole re-attribution failed ({code}): {error}");
+                File.Move(partial, store);
+            }
+            return store;
+        }
+    }
+
     public static (int Code, string Output, string Error) RunCli(params string[] args)
     {
         var output = new StringWriter();

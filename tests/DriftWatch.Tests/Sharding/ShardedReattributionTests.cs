@@ -20,8 +20,8 @@ public sealed class ShardedReattributionTests
 {
     // SmoothGrad with its own seeded noise: a method whose maps depend on a random stream, so the test also shows that a
     // shard draws the same noise for an epoch as the whole job does.
-    private static readonly string[] Method = ["--method", "smoothgrad", "--setting", "samples=4"];
-    private const string StoredName = "re-smoothgrad";
+    private static readonly string[] Method = ShardKit.Method;
+    private const string StoredName = ShardKit.StoredName;
 
     private readonly DemoStoreFixture _fixture;
 
@@ -34,25 +34,7 @@ public sealed class ShardedReattributionTests
         return store;
     }
 
-    // The whole job done in one piece, once for every test here (beside the fixture's store, read only).
-    private string Unsharded()
-    {
-        lock (WholeLock)
-        {
-            string store = Path.Combine(_fixture.Folder, "whole-smoothgrad.litedb");
-            if (!File.Exists(store))
-            {
-                string partial = Path.Combine(_fixture.Folder, "whole-smoothgrad.partial.litedb");
-                File.Copy(_fixture.StorePath, partial, overwrite: true);
-                var (code, _, error) = RunCli(["reattribute", DemoStoreFixture.CleanRun, "--store", partial, .. Method]);
-                Assert.True(code == ExitCodes.Fine, error);
-                File.Move(partial, store);
-            }
-            return store;
-        }
-    }
-
-    private static readonly object WholeLock = new();
+    private string Unsharded() => WholeReattribution(_fixture, Method);
 
     private static string[] Shards(string store, string folder, int count, string run = DemoStoreFixture.CleanRun, string[]? extra = null, int[]? only = null)
     {
