@@ -66,6 +66,8 @@ public static class ShardMerge
             records.Add(record);
         }
         var job = records[0];
+        if (target.FindShard() is not null)
+            throw new DriftWatchException($"the target '{target.Path}' is itself a shard store; --into names the store the shards were cut from (the one reattribute read)");
         var run = target.FindRun(job.RunName)
             ?? throw new DriftWatchException($"the target store '{target.Path}' has no run named '{job.RunName}'; --into names the store the shards were cut from (the one reattribute read)");
         if (ShardRecords.RunDifference(job, run) is { } runDifference)
