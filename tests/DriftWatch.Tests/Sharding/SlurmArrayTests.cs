@@ -105,7 +105,7 @@ public sealed class SlurmArrayTests
         {
             var (code, output) = Run(Path.Combine(Path.GetDirectoryName(sbatch)!, "sinfo"), ["-h", "-o", "%a %t"], []);
             if (code != 0 || !output.Contains("up", StringComparison.Ordinal))
-                problem = $"Slurm is installed but no cluster answers (sinfo exited {code}: {output.Trim()}); start one with bash .ci/slurm-up and export the SLURM_CONF it prints";
+                problem = $"Slurm is installed but no cluster answers (sinfo exited {code}: {output.Trim().Split('\n')[0]}); start one with bash .ci/slurm-up and export the SLURM_CONF it prints";
         }
         if (problem is null)
             return sbatch!;
