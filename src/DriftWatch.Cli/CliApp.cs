@@ -50,10 +50,10 @@ public static class CliApp
         var root = new RootCommand(
             "DriftWatch: read the run store a monitored training wrote; list runs, show their epochs and findings, render charts, "
             + "write a report, compare two runs, export tidy tables, check the gate's verdict (exit 1 on Halt) for a scheduler, "
-            + "re-attribute stored snapshots with another method, and follow a Python run folder. "
+            + "re-attribute stored snapshots with another method (whole, or in shards that merge joins), and follow a Python run folder. "
             + "Attributions describe the model, not causes; a Halt is advice, not proof.\n"
             + $"The store is --store PATH, else ${CommonOptions.StoreVariable}, else {CommonOptions.DefaultStoreFile} in the current folder; "
-            + "only reattribute (new maps beside the originals) and follow (the run it watches) write to it; no other command creates or changes it.\n"
+            + "only reattribute (new maps beside the originals), merge (the shards' maps, into --into) and follow (the run it watches) write to a store; no other command creates or changes one.\n"
             + "Examples:\n"
             + "  driftwatch runs --store night.litedb\n"
             + "  driftwatch report night-7 --store night.litedb --out reports\n"
@@ -70,6 +70,7 @@ public static class CliApp
             ReportCommand.Create(store),
             ExportCommand.Create(store),
             CompareCommand.Create(store),
+            MergeCommand.Create(),
         };
         return root;
     }

@@ -19,7 +19,7 @@ internal static class CommonOptions
     {
         var option = new Option<string>("--store")
         {
-            Description = $"The run store file (only follow creates or writes runs; reattribute adds maps beside the originals; every other command only reads it). Default: ${StoreVariable} if set, else {DefaultStoreFile} in the current folder.",
+            Description = $"The run store file (only follow creates or writes runs; reattribute adds maps beside the originals; merge writes to --into and ignores it; every other command only reads it). Default: ${StoreVariable} if set, else {DefaultStoreFile} in the current folder.",
             HelpName = "PATH",
             Recursive = true,
             DefaultValueFactory = _ => DefaultStore(),

@@ -15,6 +15,9 @@ public static class ExitCodes
     /// <summary>An internal error: a bug in DriftWatch; the message and stack trace are printed for a report.</summary>
     public const int InternalError = 3;
 
+    /// <summary>Merged what was given, but shards or epochs of the split are still missing (returned by <c>merge</c> only); they are named on the output.</summary>
+    public const int Incomplete = 4;
+
     /// <summary>The exit codes as help text lists them, for commands that never return <see cref="Halt"/>.</summary>
     public const string ReadingCommandsHelp =
         "Exit codes: 0 done; 2 bad input (missing or foreign store, unknown run or method, bad option); 3 internal error.";
@@ -22,5 +25,6 @@ public static class ExitCodes
     /// <summary>The full list, for the root command's help.</summary>
     public const string AllHelp =
         "Exit codes: 0 done; 1 the verdict is Halt (verdict-checking commands only); "
-        + "2 bad input (missing or foreign store, unknown run or method, bad option), nothing written; 3 internal error.";
+        + "2 bad input (missing or foreign store, unknown run or method, bad option), nothing written; 3 internal error; "
+        + "4 merged, but shards or epochs are still missing (merge only).";
 }

@@ -4,6 +4,7 @@ using System.Globalization;
 using DriftWatch.Attribution;
 using DriftWatch.Charts;
 using DriftWatch.Model;
+using DriftWatch.Sharding;
 using DriftWatch.Storage;
 
 namespace DriftWatch.Cli;
@@ -48,12 +49,25 @@ internal static class ReattributeCommand
         {
             Description = "Also measure the new maps' infidelity and max-sensitivity (Yeh et al. 2019) on 32 probe rows; costs about as much again.",
         };
+        var shardOption = new Option<string?>("--shard")
+        {
+            Description = "Do only shard K of N (from 0) of the epochs, a contiguous block, and write its maps to a shard store of its own in --shard-folder "
+                + "instead of the store, which is then only read; join the shards with 'driftwatch merge'. For a Slurm job array: hooks/driftwatch-shard.sbatch.",
+            HelpName = "K/N",
+        };
+        var shardFolder = new Option<string>("--shard-folder")
+        {
+            Description = "Where --shard writes its shard store, shard-K-of-N.litedb (created when missing). Default: driftwatch-shards in the current folder.",
+            HelpName = "FOLDER",
+            DefaultValueFactory = _ => "driftwatch-shards",
+        };
 
         var command = new Command(
             "reattribute",
             "Recompute a run's attribution maps from its stored weight snapshots and probe set with another method (or other settings) "
             + "and store them beside the originals under their own name, with their agreement with the maps already there; "
             + "stored maps are never changed, and epochs already re-attributed under that name are skipped. "
+            + "With --shard K/N only a slice of the epochs is done and written to a shard store of its own, for many machines at once; 'merge' joins them. "
             + "The model is rebuilt with the factory the run recorded. Progress goes to stderr on a terminal. "
             + "Attributions describe the model, not causes in the data.\n"
             + "Exit codes: 0 done; 2 bad input (missing or foreign store, unknown run or method, bad setting, a model or snapshot that does not fit), nothing changed; 3 internal error.")
@@ -66,6 +80,8 @@ internal static class ReattributeCommand
             assembly,
             chunk,
             quality,
+            shardOption,
+            shardFolder,
         };
         command.SetAction(parse =>
         {
@@ -76,6 +92,11 @@ internal static class ReattributeCommand
             var overrides = ParseSettings(parse.GetValue(settings) ?? []);
             var (first, last) = ParseEpochs(parse.GetValue(epochs));
             string path = parse.GetValue(store)!;
+            Shard? shard = parse.GetValue(shardOption) is { } shardText ? Shard.Parse(shardText) : null;
+            if (shard is null && parse.GetResult(shardFolder) is { Implicit: false })
+                throw new DriftWatchException("--shard-folder goes with --shard K/N; without --shard the maps are stored in the store itself");
+            if (shard is not null)
+                return RunShard(parse, path, runName, methodName, overrides, first, last, shard.Value, parse.GetValue(shardFolder)!, parse.GetValue(storedAs), parse.GetValue(assembly), parse.GetValue(chunk), parse.GetValue(quality));
 
             // Everything that can be refused is checked on a read-only store first, so bad input leaves the file untouched.
             RunDocument document;
@@ -130,6 +151,68 @@ internal static class ReattributeCommand
             return ExitCodes.Fine;
         });
         return command;
+    }
+
+    // A shard: the store is only read; the maps go to a shard store of the shard's own, checked before anything is written.
+    private static int RunShard(
+        ParseResult parse, string path, string runName, string methodName, List<(string Key, string Value)> overrides, int first, int last,
+        Shard shard, string folder, string? storedAs, string? assemblyPath, int chunkRows, bool measureQuality)
+    {
+        var output = parse.InvocationConfiguration.Output;
+        var error = parse.InvocationConfiguration.Error;
+        if (string.IsNullOrWhiteSpace(folder))
+            throw new DriftWatchException("--shard-folder must name a folder; got an empty path");
+        string shardPath = Path.GetFullPath(Path.Combine(folder, shard.Name + ".litedb"));
+        if (shardPath == Path.GetFullPath(path))
+            throw new DriftWatchException($"the shard store '{shardPath}' would be the store itself; pass another --shard-folder");
+        using var reading = RunStore.OpenForReading(path);
+        var document = reading.GetRun(runName);
+        var recorded = document.Methods.FirstOrDefault(m => m.Name == methodName)?.Settings ?? [];
+        var merged = new Dictionary<string, string>(recorded, StringComparer.Ordinal);
+        foreach (var (key, value) in overrides)
+            merged[key] = value;
+        var attribution = AttributionMethods.Create(methodName, merged);
+        var factory = ModelFactories.Resolve(document.Name, document.ModelFactory, assemblyPath);
+        var request = new ReattributionRequest
+        {
+            Method = attribution,
+            StoredName = storedAs,
+            FirstEpoch = first,
+            LastEpoch = last,
+            ChunkRows = chunkRows,
+            Quality = measureQuality ? new QualityOptions() : null,
+        };
+        var model = ModelRecipe.Build(factory, document.ModelSettings);
+        bool terminal = ReferenceEquals(error, Console.Error) && !Console.IsErrorRedirected;
+        IReadOnlyList<ReattributedEpoch> results;
+        try
+        {
+            var all = Reattribution.Check(reading, document, model, request);
+            if (File.Exists(shardPath))
+            {
+                using var existing = RunStore.OpenForReading(shardPath);
+                Reattribution.CheckShardStore(existing, ShardRecords.For(document, request, shard, all, shard.Slice(all), reading.Path));
+            }
+            using var shardStore = RunStore.OpenForWriting(shardPath);
+            results = Reattribution.RunShard(reading, document, model, request, shard, shardStore, terminal ? new TerminalProgress(error) : null);
+        }
+        finally
+        {
+            model.Module.Dispose();
+            if (terminal)
+                error.WriteLine();
+        }
+        int stored = results.Count(r => r.Outcome == ReattributionOutcome.Stored);
+        string epochs = results.Count == 0 ? "no epochs (more shards than epochs)" : "epochs " + Shard.Describe(results.Select(r => r.Epoch));
+        output.WriteLine($"run {DisplayText.Clean(document.Name)}, shard {shard}: {epochs}; {Formats.Integer(stored)} re-attributed with {attribution.Name}, stored as '{DisplayText.Clean(request.Name)}' in {DisplayText.Clean(shardPath)}");
+        var already = results.Where(r => r.Outcome == ReattributionOutcome.AlreadyStored).Select(r => r.Epoch).ToList();
+        if (already.Count > 0)
+            output.WriteLine($"  already there (in the store or this shard store), left as they were: epochs {Shard.Describe(already)}");
+        var missing = results.Where(r => r.Outcome == ReattributionOutcome.NoSnapshot).Select(r => r.Epoch).ToList();
+        if (missing.Count > 0)
+            output.WriteLine($"  no weight snapshot, skipped: epochs {Shard.Describe(missing)}");
+        output.WriteLine($"  the store was only read; when every shard is done: driftwatch merge {Quote(folder)}/shard-*-of-{shard.Count.ToString(CultureInfo.InvariantCulture)}.litedb --into {Quote(path)}");
+        return ExitCodes.Fine;
     }
 
     private static void WriteSummary(TextWriter output, RunDocument run, ReattributionRequest request, IAttributionMethod method, Type factory, IReadOnlyList<ReattributedEpoch> results, string store)

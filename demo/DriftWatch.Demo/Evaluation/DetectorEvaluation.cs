@@ -41,60 +41,84 @@ public static class DetectorEvaluation
     private static readonly FindingKind[] FeatureKinds = [FindingKind.Leak, FindingKind.MemorisedIdentifier, FindingKind.ProbableLeak];
 
     /// <summary>Runs every scenario × seed, writes runs.csv and summary.csv, prints the summary table, returns the runs.</summary>
+    /// <remarks>With <see cref="EvaluationOptions.Shard"/>, runs that shard's block only, into its own folder; with <see cref="EvaluationOptions.MergeShards"/>, joins finished shards instead (<see cref="EvaluationShards"/>).</remarks>
     public static IReadOnlyList<EvaluationRun> Run(EvaluationOptions options, TextWriter output)
     {
         ArgumentNullException.ThrowIfNull(options);
         ArgumentNullException.ThrowIfNull(output);
-        Directory.CreateDirectory(options.OutputFolder);
-        var runs = new List<EvaluationRun>();
+        if (options.MergeShards)
+            return EvaluationShards.Merge(options.OutputFolder, output);
         if (options.FromStore is { } earlier)
         {
             output.WriteLine(Invariant($"judging the runs stored in {earlier} again under the given policy (no training)"));
+            var judged = new List<EvaluationRun>();
             foreach (var run in Rejudge(earlier, options.Policy, output))
             {
-                runs.Add(run);
+                judged.Add(run);
                 output.WriteLine(Line(run));
             }
-            return Finish(runs, options, output);
+            Directory.CreateDirectory(options.OutputFolder);
+            WriteTables(judged, options.OutputFolder, output);
+            return judged;
         }
-        string store = Path.Combine(options.OutputFolder, "evaluation.litedb");
-        if (File.Exists(store))
-            File.Delete(store);
-        output.WriteLine(Invariant($"evaluating {options.Scenarios.Length} scenarios × {options.Seeds.Length} seeds, {options.Epochs} epochs each, IG {options.Steps} steps, probe {options.ProbePerHalf} + {options.ProbePerHalf}"));
-        foreach (var variant in options.Scenarios)
+        if (options.Shard is { } shard)
         {
-            foreach (int seed in options.Seeds)
-            {
-                EvaluationRun run;
-                try
-                {
-                    run = RunOne(variant, seed, options, store);
-                }
-                catch (System.Runtime.InteropServices.ExternalException e)
-                {
-                    // A native failure inside the training loop itself (seen once, in the optimizer step): record and go on.
-                    output.WriteLine(Invariant($"  {GreenhouseVariants.NameOf(variant),-15} seed {seed,3}  failed inside training: {e.Message.Split('\n')[0]}"));
-                    continue;
-                }
-                runs.Add(run);
-                output.WriteLine(Line(run));
-            }
+            string folder = Path.Combine(options.OutputFolder, shard.Name);
+            var items = shard.Slice(EvaluationShards.Items(options));
+            output.WriteLine(Invariant($"shard {shard}: {items.Count} of the {options.Scenarios.Length * options.Seeds.Length} runs, into {folder}"));
+            var (shardRuns, failed) = RunItems(options, items, folder, output);
+            EvaluationShards.Write(folder, options, shard, items, shardRuns, failed);
+            output.WriteLine($"wrote {Path.Combine(folder, EvaluationShards.ResultsFile)} and runs.csv; when every shard is done: evaluate --merge-shards --out {options.OutputFolder}");
+            return shardRuns;
         }
-        return Finish(runs, options, output);
+        var (runs, _) = RunItems(options, EvaluationShards.Items(options), options.OutputFolder, output);
+        WriteTables(runs, options.OutputFolder, output);
+        return runs;
     }
 
     private static string Line(EvaluationRun run) => Invariant(
         $"  {run.Scenario,-15} seed {run.Seed,3}  best {run.BestEpoch,2}  GL5 {Show(run.Gl5Epoch),3}  halt {Show(run.FirstHalt),3}  named {(run.FirstNamed.IsEmpty ? "-" : string.Join(", ", run.FirstNamed.OrderBy(n => n.Value).Select(n => $"{n.Key}@{n.Value}({run.Kinds[n.Key]})")))}  {run.Seconds:F1} s");
 
-    private static IReadOnlyList<EvaluationRun> Finish(List<EvaluationRun> runs, EvaluationOptions options, TextWriter output)
+    /// <summary>Writes runs.csv and summary.csv into <paramref name="folder"/> and prints the summary table.</summary>
+    internal static void WriteTables(IReadOnlyList<EvaluationRun> runs, string folder, TextWriter output)
     {
         var summary = Summarise(runs);
-        File.WriteAllText(Path.Combine(options.OutputFolder, "runs.csv"), RunsCsv(runs));
-        File.WriteAllText(Path.Combine(options.OutputFolder, "summary.csv"), SummaryCsv(summary));
+        File.WriteAllText(Path.Combine(folder, "runs.csv"), RunsCsv(runs));
+        File.WriteAllText(Path.Combine(folder, "summary.csv"), SummaryCsv(summary));
         output.WriteLine();
         output.WriteLine(SummaryTable(summary));
-        output.WriteLine($"wrote {Path.Combine(options.OutputFolder, "runs.csv")} and summary.csv");
-        return runs;
+        output.WriteLine($"wrote {Path.Combine(folder, "runs.csv")} and summary.csv");
+    }
+
+    // Trains the given scenario × seed runs into a fresh store in the folder; a run that fails inside training is recorded, not fatal.
+    private static (List<EvaluationRun> Runs, List<string> Failed) RunItems(
+        EvaluationOptions options, IReadOnlyList<(GreenhouseVariant Variant, int Seed)> items, string folder, TextWriter output)
+    {
+        Directory.CreateDirectory(folder);
+        string store = Path.Combine(folder, "evaluation.litedb");
+        if (File.Exists(store))
+            File.Delete(store);
+        output.WriteLine(Invariant($"evaluating {options.Scenarios.Length} scenarios × {options.Seeds.Length} seeds, {options.Epochs} epochs each, IG {options.Steps} steps, probe {options.ProbePerHalf} + {options.ProbePerHalf}"));
+        var runs = new List<EvaluationRun>();
+        var failures = new List<string>();
+        foreach (var (variant, seed) in items)
+        {
+            EvaluationRun run;
+            try
+            {
+                run = RunOne(variant, seed, options, store);
+            }
+            catch (System.Runtime.InteropServices.ExternalException e)
+            {
+                // A native failure inside the training loop itself (seen once, in the optimizer step): record and go on.
+                output.WriteLine(Invariant($"  {GreenhouseVariants.NameOf(variant),-15} seed {seed,3}  failed inside training: {e.Message.Split('\n')[0]}"));
+                failures.Add(Invariant($"{GreenhouseVariants.NameOf(variant)} seed {seed}: {e.Message.Split('\n')[0]}"));
+                continue;
+            }
+            runs.Add(run);
+            output.WriteLine(Line(run));
+        }
+        return (runs, failures);
     }
 
     /// <summary>Trains one scenario run to the end with the monitor attached and reads off what the gate did.</summary>
@@ -252,7 +276,8 @@ public static class DetectorEvaluation
         return text.ToString();
     }
 
-    private static string RunsCsv(IReadOnlyList<EvaluationRun> runs)
+    /// <summary>The runs as runs.csv holds them.</summary>
+    internal static string RunsCsv(IReadOnlyList<EvaluationRun> runs)
     {
         var csv = new StringBuilder("scenario,seed,best_epoch,gl5_epoch,first_halt,first_attribution_halt,named,planted,seconds\n");
         foreach (var r in runs)

@@ -36,6 +36,12 @@ public sealed record EvaluationOptions
     /// <summary>The gate policy under test.</summary>
     public GatePolicy Policy { get; init; } = GatePolicy.Default;
 
+    /// <summary>Run only this shard of the scenario × seed runs, into its own folder under <see cref="OutputFolder"/>. Default: null, every run.</summary>
+    public Sharding.Shard? Shard { get; init; }
+
+    /// <summary>Join the shard folders in <see cref="OutputFolder"/> into runs.csv and summary.csv instead of running anything.</summary>
+    public bool MergeShards { get; init; }
+
     /// <summary>Show the evaluation's help.</summary>
     public bool Help { get; init; }
 
@@ -59,9 +65,14 @@ public sealed record EvaluationOptions
           --out FOLDER       where runs.csv, summary.csv and the store go (default: driftwatch-evaluation)
           --from-store FILE  train nothing: judge every run in an earlier evaluation's store again under --policy
                              (seeds and scenarios are the store's own; writes runs.csv and summary.csv to --out)
+          --shard K/N        run only shard K of N (from 0): a contiguous block of the scenario × seed runs, in suite
+                             order, written to FOLDER/shard-K-of-N/ (runs.csv, results.json, its own store); one Slurm
+                             array task each (hooks/driftwatch-shard.sbatch)
+          --merge-shards     run nothing: join FOLDER/shard-*-of-N/ into FOLDER/runs.csv and summary.csv; refuses
+                             shards run with other settings and names every missing shard, writing nothing then
           -h, --help         show this help
 
-        Exit codes: 0 done, 2 bad input, 3 an internal error.
+        Exit codes: 0 done, 2 bad input (also: shards missing or of different settings at --merge-shards), 3 an internal error.
         """;
 
     /// <summary>Parses the arguments after <c>evaluate</c>.</summary>
@@ -90,9 +101,15 @@ public sealed record EvaluationOptions
                 "--policy" => options with { Policy = GatePolicy.Load(Value()) },
                 "--out" => options with { OutputFolder = Value() },
                 "--from-store" => options with { FromStore = Value() },
-                _ => throw new DriftWatchException($"unknown option '{name}' for evaluate; valid options are --seeds, --scenarios, --epochs, --steps, --probe, --policy, --out, --from-store and --help"),
+                "--shard" => options with { Shard = Sharding.Shard.Parse(Value()) },
+                "--merge-shards" => options with { MergeShards = true },
+                _ => throw new DriftWatchException($"unknown option '{name}' for evaluate; valid options are --seeds, --scenarios, --epochs, --steps, --probe, --policy, --out, --from-store, --shard, --merge-shards and --help"),
             };
         }
+        if (options.Shard is not null && options.MergeShards)
+            throw new DriftWatchException("--shard runs one shard and --merge-shards joins finished ones; give one of them");
+        if (options.FromStore is not null && (options.Shard is not null || options.MergeShards))
+            throw new DriftWatchException("--from-store judges stored runs again and trains nothing; give it without --shard or --merge-shards");
         return options;
     }
 

@@ -2,6 +2,7 @@ using System.Diagnostics;
 using DriftWatch.Detection;
 using DriftWatch.Model;
 using DriftWatch.Probing;
+using DriftWatch.Sharding;
 using DriftWatch.Storage;
 using TorchSharp;
 using static TorchSharp.torch;
@@ -104,6 +105,84 @@ public static class Reattribution
     public static IReadOnlyList<ReattributedEpoch> Run(RunStore store, RunDocument run, IWatchedModel model, ReattributionRequest request, IProgress<ReattributedEpoch>? progress = null)
     {
         var epochs = Check(store, run, model, request);
+        string label = AttributionTarget.Parse(run.Target).Label;
+        return Execute(
+            store, run, model, request, epochs, progress,
+            epoch => store.FindMap(run.Id, epoch, request.Name, label) is not null,
+            (map, quality) =>
+            {
+                store.WriteMap(map);
+                store.WriteQuality(quality);
+            });
+    }
+
+    /// <summary>
+    /// Re-attributes one shard of the requested epochs, reading the run and its snapshots from <paramref name="source"/>
+    /// (never written) and writing the maps to <paramref name="shardStore"/>, a store of the shard's own that
+    /// <see cref="ShardMerge"/> later joins into the run's store.
+    /// </summary>
+    /// <param name="source">The run's store; only read.</param>
+    /// <param name="run">The run, as <paramref name="source"/> holds it.</param>
+    /// <param name="model">A model of the run's architecture.</param>
+    /// <param name="request">The method, epochs and stored name: the whole job, of which the shard takes its slice.</param>
+    /// <param name="shard">Which slice.</param>
+    /// <param name="shardStore">The shard's own store, opened for writing: new, or one this same shard wrote before (it resumes).</param>
+    /// <param name="progress">Told after each epoch, or null.</param>
+    /// <returns>One entry per epoch of the shard (none when the shard's slice is empty).</returns>
+    /// <exception cref="DriftWatchException">A bad request, or a shard store holding another shard or job.</exception>
+    public static IReadOnlyList<ReattributedEpoch> RunShard(
+        RunStore source, RunDocument run, IWatchedModel model, ReattributionRequest request, Shard shard, RunStore shardStore, IProgress<ReattributedEpoch>? progress = null)
+    {
+        ArgumentNullException.ThrowIfNull(shardStore);
+        var all = Check(source, run, model, request);
+        var slice = shard.Slice(all);
+        var record = ShardRecords.For(run, request, shard, all, slice, source.Path);
+        CheckShardStore(shardStore, record);
+        var copy = ShardRecords.Prepare(shardStore, record, run, slice);
+        string name = request.Name;
+        string label = AttributionTarget.Parse(run.Target).Label;
+        var results = Execute(
+            source, run, model, request, slice, progress,
+            epoch => source.FindMap(run.Id, epoch, name, label) is not null || shardStore.FindMap(copy.Id, epoch, name, label) is not null,
+            (map, quality) => shardStore.InOneTransaction(() =>
+            {
+                shardStore.WriteMap(map with { RunId = copy.Id });
+                shardStore.WriteQuality(quality with { RunId = copy.Id });
+            }));
+        var inSource = results.Where(r => r.Outcome == ReattributionOutcome.AlreadyStored && shardStore.FindMap(copy.Id, r.Epoch, name, label) is null).Select(r => r.Epoch);
+        shardStore.WriteShard(record with
+        {
+            AlreadyInSource = [.. inSource],
+            NoSnapshot = [.. results.Where(r => r.Outcome == ReattributionOutcome.NoSnapshot).Select(r => r.Epoch)],
+            Finished = true,
+        });
+        return results;
+    }
+
+    /// <summary>Checks, without writing, that <paramref name="shardStore"/> is new or holds this same shard of this same job.</summary>
+    /// <exception cref="DriftWatchException">It holds another shard, another job, or runs that are not a shard's.</exception>
+    public static void CheckShardStore(RunStore shardStore, ShardDocument record)
+    {
+        ArgumentNullException.ThrowIfNull(shardStore);
+        ArgumentNullException.ThrowIfNull(record);
+        var existing = shardStore.FindShard();
+        if (existing is null)
+        {
+            if (shardStore.Runs().Count > 0)
+                throw new DriftWatchException($"'{shardStore.Path}' is a store with runs of its own, not a shard store; give the shard a file of its own");
+            return;
+        }
+        string? difference = ShardRecords.Difference(existing, record);
+        if (difference is null && (existing.Index != record.Index || existing.Count != record.Count))
+            difference = $"it is shard {existing.Index}/{existing.Count}, not {record.Index}/{record.Count}";
+        if (difference is not null)
+            throw new DriftWatchException($"shard store '{shardStore.Path}' already holds another shard: {difference}; give this shard another file or folder");
+    }
+
+    private static IReadOnlyList<ReattributedEpoch> Execute(
+        RunStore source, RunDocument run, IWatchedModel model, ReattributionRequest request, IReadOnlyList<EpochDocument> epochs,
+        IProgress<ReattributedEpoch>? progress, Func<int, bool> alreadyStored, Action<MapDocument, MapQualityDocument> write)
+    {
         string name = request.Name;
         var schema = RunContext.FromRun(run).Schema;
         var probe = ProbeOf(run);
@@ -120,7 +199,7 @@ public static class Reattribution
             var epoch = epochs[i];
             var clock = Stopwatch.StartNew();
             ReattributionOutcome outcome;
-            if (store.FindMap(run.Id, epoch.Epoch, name, target.Label) is not null)
+            if (alreadyStored(epoch.Epoch))
             {
                 outcome = ReattributionOutcome.AlreadyStored;
             }
@@ -130,11 +209,12 @@ public static class Reattribution
             }
             else
             {
-                using (var weights = store.ReadSnapshot(epoch.SnapshotId))
+                using (var weights = source.ReadSnapshot(epoch.SnapshotId))
                     Snapshots.LoadInto(module, weights, $"the snapshot of epoch {epoch.Epoch} of run '{run.Name}'");
                 foreach (var p in module.parameters())
                     p.requires_grad = false;
-                AttributeEpoch(store, run, model, schema, probe, baselineChoice, target, request, name, epoch.Epoch);
+                var (map, quality) = AttributeEpoch(source, run, model, schema, probe, baselineChoice, target, request, name, epoch.Epoch);
+                write(map, quality);
                 outcome = ReattributionOutcome.Stored;
             }
             var result = new ReattributedEpoch(epoch.Epoch, outcome, clock.Elapsed.TotalSeconds, i + 1, epochs.Count);
@@ -180,17 +260,30 @@ public static class Reattribution
         return epochs;
     }
 
-    private static void CheckName(RunStore store, RunDocument run, ReattributionRequest request, string name)
+    private static void CheckName(RunStore store, RunDocument run, ReattributionRequest request, string name) =>
+        CheckStoredName(store, run, name, request.Method.Name, request.Method.Settings);
+
+    /// <summary>
+    /// Checks that maps made by <paramref name="method"/> with <paramref name="settings"/> may be stored under
+    /// <paramref name="name"/> in <paramref name="store"/>: a valid name, not one of the run's own methods, and any maps
+    /// already under that name made by the same method and settings.
+    /// </summary>
+    /// <exception cref="DriftWatchException">The name is refused, with the reason.</exception>
+    public static void CheckStoredName(RunStore store, RunDocument run, string name, string method, IReadOnlyDictionary<string, string> settings)
     {
+        ArgumentNullException.ThrowIfNull(store);
+        ArgumentNullException.ThrowIfNull(run);
+        ArgumentNullException.ThrowIfNull(name);
+        ArgumentNullException.ThrowIfNull(method);
+        ArgumentNullException.ThrowIfNull(settings);
         if (string.IsNullOrWhiteSpace(name) || name.Contains('/', StringComparison.Ordinal) || name.Trim() != name)
             throw new DriftWatchException($"the stored name of re-attributed maps must be a non-empty name without '/' or surrounding spaces; got '{name}'");
         if (run.Methods.Any(m => m.Name == name))
-            throw new DriftWatchException($"'{name}' is one of run '{run.Name}''s own methods; re-attributed maps are stored beside the originals under another name (the default is '{DefaultStoredName(request.Method.Name)}')");
+            throw new DriftWatchException($"'{name}' is one of run '{run.Name}''s own methods; re-attributed maps are stored beside the originals under another name (the default is '{DefaultStoredName(method)}')");
         var earlier = store.Maps(run.Id, name).FirstOrDefault();
         if (earlier is null)
             return;
-        var settings = request.Method.Settings;
-        bool same = earlier.SourceMethod == request.Method.Name
+        bool same = earlier.SourceMethod == method
             && earlier.Settings.Count == settings.Count
             && settings.All(s => earlier.Settings.TryGetValue(s.Key, out var v) && v == s.Value);
         if (!same)
@@ -201,7 +294,7 @@ public static class Reattribution
         }
     }
 
-    private static void AttributeEpoch(
+    private static (MapDocument Map, MapQualityDocument Quality) AttributeEpoch(
         RunStore store, RunDocument run, IWatchedModel model, FeatureSchema schema, ProbeSet probe, Baseline baselineChoice,
         AttributionTarget target, ReattributionRequest request, string name, int epoch)
     {
@@ -230,7 +323,7 @@ public static class Reattribution
             .Where(m => m.Target == target.Label && m.Method != name && m.Rows == map.Rows && m.Features == map.Features)
             .Select(m => new AgreementDocument { Method = m.Method, Spearman = MethodAgreement.Spearman(map, RunReview.ToMap(m), probe.HeldOutCount) })
             .ToList();
-        store.WriteMap(new MapDocument
+        var document = new MapDocument
         {
             RunId = run.Id,
             Epoch = epoch,
@@ -247,8 +340,8 @@ public static class Reattribution
             Evaluations = columns.Evaluations,
             Settings = new Dictionary<string, string>(request.Method.Settings, StringComparer.Ordinal),
             SourceMethod = request.Method.Name,
-        });
-        store.WriteQuality(new MapQualityDocument
+        };
+        var qualityDocument = new MapQualityDocument
         {
             RunId = run.Id,
             Epoch = epoch,
@@ -263,7 +356,8 @@ public static class Reattribution
             QualityRows = quality?.Rows ?? 0,
             QualitySettings = quality is null ? [] : new Dictionary<string, string>(request.Quality!.ToSettings(), StringComparer.Ordinal),
             QualityEvaluations = quality?.Evaluations ?? 0,
-        });
+        };
+        return (document, qualityDocument);
     }
 
     private static string Range(ReattributionRequest request) =>

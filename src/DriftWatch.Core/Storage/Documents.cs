@@ -353,4 +353,80 @@ public sealed record MapQualityDocument : IKeyedDocument
     /// <summary>Model evaluations the figures cost.</summary>
     public long QualityEvaluations { get; set; }
 }
+/// <summary>
+/// What a shard store holds: one shard of a re-attribution split over several processes or machines, with everything
+/// <c>merge</c> needs to check that shards belong together (the run's identity, the method and its settings, the split).
+/// </summary>
+public sealed record ShardDocument : IKeyedDocument
+{
+    /// <summary>Store-assigned id.</summary>
+    [BsonId(autoId: true)]
+    public int Id { get; set; }
+
+    /// <summary>Always <c>shard</c>: a shard store holds one shard record.</summary>
+    public string Key { get; set; } = "shard";
+
+    /// <summary>What the shard computed: <c>reattribute</c>.</summary>
+    public string Job { get; set; } = "";
+
+    /// <summary>K, this shard's number from 0.</summary>
+    public int Index { get; set; }
+
+    /// <summary>N, how many shards the job was split into.</summary>
+    public int Count { get; set; }
+
+    /// <summary>The run's name.</summary>
+    public string RunName { get; set; } = "";
+
+    /// <summary>The run's probe hash.</summary>
+    public string ProbeHash { get; set; } = "";
+
+    /// <summary>The run's feature schema.</summary>
+    public List<FeatureDocument> Features { get; set; } = [];
+
+    /// <summary>The run's model factory.</summary>
+    public string ModelFactory { get; set; } = "";
+
+    /// <summary>The run's model settings.</summary>
+    public Dictionary<string, string> ModelSettings { get; set; } = [];
+
+    /// <summary>The run's model fingerprint (parameter names and shapes).</summary>
+    public string ModelShape { get; set; } = "";
+
+    /// <summary>The run's attribution target.</summary>
+    public string Target { get; set; } = "";
+
+    /// <summary>The run's baseline.</summary>
+    public string Baseline { get; set; } = "";
+
+    /// <summary>The method's own name.</summary>
+    public string Method { get; set; } = "";
+
+    /// <summary>The method's settings.</summary>
+    public Dictionary<string, string> Settings { get; set; } = [];
+
+    /// <summary>The name the maps are stored under.</summary>
+    public string StoredName { get; set; } = "";
+
+    /// <summary>The quality measurement's settings, empty when quality figures were not asked for.</summary>
+    public Dictionary<string, string> QualitySettings { get; set; } = [];
+
+    /// <summary>Every epoch of the whole job, in order (all shards together).</summary>
+    public int[] JobEpochs { get; set; } = [];
+
+    /// <summary>This shard's epochs.</summary>
+    public int[] Epochs { get; set; } = [];
+
+    /// <summary>Epochs of this shard whose map under <see cref="StoredName"/> was already in the source store, so the shard left them out.</summary>
+    public int[] AlreadyInSource { get; set; } = [];
+
+    /// <summary>Epochs of this shard without a weight snapshot, so nothing could be computed.</summary>
+    public int[] NoSnapshot { get; set; } = [];
+
+    /// <summary>Whether the shard's work ran to its end (a task that stopped early leaves this false).</summary>
+    public bool Finished { get; set; }
+
+    /// <summary>The store the shard read the run from, as the shard saw its path.</summary>
+    public string SourceStore { get; set; } = "";
+}
 #pragma warning restore CA2227

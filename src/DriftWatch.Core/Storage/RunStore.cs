@@ -50,6 +50,8 @@ public sealed class RunStore : IDisposable
 
     private ILiteCollection<MapQualityDocument> QualityCollection => _database.GetCollection<MapQualityDocument>("quality");
 
+    private ILiteCollection<ShardDocument> ShardsCollection => _database.GetCollection<ShardDocument>("shards");
+
     /// <summary>Opens a store for writing, creating the file (and its folder) when missing.</summary>
     /// <exception cref="StoreException">The path is a folder, or the file is not a DriftWatch store.</exception>
     public static RunStore OpenForWriting(string path)
@@ -219,6 +221,17 @@ public sealed class RunStore : IDisposable
         });
     }
 
+    /// <summary>Writes the shard record of a shard store, replacing the earlier one.</summary>
+    public void WriteShard(ShardDocument shard)
+    {
+        ArgumentNullException.ThrowIfNull(shard);
+        Guard(() => Upsert(ShardsCollection, shard with { Key = "shard" }));
+    }
+
+    /// <summary>The shard record when this store is a shard store, else null.</summary>
+    public ShardDocument? FindShard() =>
+        Guard(() => _database.CollectionExists("shards") ? ShardsCollection.FindOne(Query.EQ(nameof(ShardDocument.Key), "shard")) : null);
+
     /// <summary>The stored map for (run, epoch, method, target), or null.</summary>
     public MapDocument? FindMap(int runId, int epoch, string method, string target)
     {
@@ -352,7 +365,7 @@ public sealed class RunStore : IDisposable
     {
         var mapper = new BsonMapper { EmptyStringToNull = false, TrimWhitespace = false };
         var seen = new HashSet<Type>();
-        var pending = new Stack<Type>([typeof(RunDocument), typeof(EpochDocument), typeof(MapDocument), typeof(VerdictDocument), typeof(StatisticsDocument)]);
+        var pending = new Stack<Type>([typeof(RunDocument), typeof(EpochDocument), typeof(MapDocument), typeof(VerdictDocument), typeof(StatisticsDocument), typeof(ShardDocument)]);
         while (pending.TryPop(out var type))
         {
             if (!seen.Add(type))

@@ -150,6 +150,7 @@ public sealed class MorningCliTests : IClassFixture<DemoStoreFixture>
     [InlineData("export")]
     [InlineData("compare")]
     [InlineData("check")]
+    [InlineData("merge")]
     public void EveryCommandsHelpHasExamplesAndExitCodes(string command)
     {
         var (code, output, _) = Run(command, "--help");

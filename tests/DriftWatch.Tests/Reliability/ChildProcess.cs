@@ -141,7 +141,7 @@ internal sealed class ChildProcess : IDisposable
     }
 
     // `dotnet test` names its own host in DOTNET_HOST_PATH; the same host runs the children.
-    private static string DotnetHost()
+    internal static string DotnetHost()
     {
         string? host = Environment.GetEnvironmentVariable("DOTNET_HOST_PATH");
         if (!string.IsNullOrEmpty(host) && File.Exists(host))
