@@ -70,6 +70,7 @@ public static class CliApp
             ReportCommand.Create(store),
             ExportCommand.Create(store),
             CompareCommand.Create(store),
+            NeuronsCommand.Create(store),
         };
         return root;
     }
