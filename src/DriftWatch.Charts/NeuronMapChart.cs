@@ -81,8 +81,18 @@ public sealed class NeuronMapChart
                         : audit.ByEpoch[e][order[r]].MeanConductance;
             }
         }
+        // ScottPlot places the centres of the outer cells on the extent's edges, so the extent runs from the first epoch to
+        // the last and from row 0 to the last row; a single column or row is doubled so it still has two centres.
+        if (columns == 1)
+            cells = Widen(cells, alongColumns: true);
+        if (units == 1)
+            cells = Widen(cells, alongColumns: false);
         var map = plot.Add.Heatmap(cells);
-        map.Extent = new CoordinateRect(first - 0.5, last + 0.5, -0.5, units - 0.5);
+        map.Extent = new CoordinateRect(
+            columns == 1 ? first - 0.25 : first,
+            columns == 1 ? first + 0.25 : last,
+            units == 1 ? -0.25 : 0,
+            units == 1 ? 0.25 : units - 1);
         map.NaNCellColor = Colors.White;
         float right = 14;
         if (Value == NeuronMapValue.Class)
@@ -103,8 +113,8 @@ public sealed class NeuronMapChart
             bar.LabelStyle.FontSize = scale.AxisLabel;
             bar.Axis.TickLabelStyle.FontSize = scale.Tick;
             right = 130;
-            key.Legend.ManualItems.Add(ChartKit.FillItem("pushes for the predicted class", ChartPalette.Positive));
-            key.Legend.ManualItems.Add(ChartKit.FillItem("pushes against it", ChartPalette.Negative));
+            key.Legend.ManualItems.Add(ChartKit.FillItem(audit.Oriented ? "pushes for the predicted class" : "raises the output", ChartPalette.Positive));
+            key.Legend.ManualItems.Add(ChartKit.FillItem(audit.Oriented ? "pushes against it" : "lowers the output", ChartPalette.Negative));
             key.Legend.ManualItems.Add(ChartKit.FillItem("near zero", ChartPalette.Zero));
         }
         if (cells.Cast<double>().Any(double.IsNaN))
@@ -155,6 +165,18 @@ public sealed class NeuronMapChart
             "conductance" => NeuronMapValue.Conductance,
             _ => throw new DriftWatchException(string.Create(CultureInfo.InvariantCulture, $"neuron map colour must be class or conductance; got '{DisplayText.Clean(text, 40)}'")),
         };
+    }
+
+    private static double[,] Widen(double[,] cells, bool alongColumns)
+    {
+        int rows = cells.GetLength(0), columns = cells.GetLength(1);
+        var wide = alongColumns ? new double[rows, columns * 2] : new double[rows * 2, columns];
+        for (int r = 0; r < wide.GetLength(0); r++)
+        {
+            for (int c = 0; c < wide.GetLength(1); c++)
+                wide[r, c] = alongColumns ? cells[r, c / 2] : cells[r / 2, c];
+        }
+        return wide;
     }
 
     // Discrete colours over the range −0.5 to 3.5: one band per class.
