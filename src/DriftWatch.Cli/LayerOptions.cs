@@ -112,7 +112,7 @@ internal sealed class LayerOptions
         string range = $"{name} must be a number {(above ? "above" : "from")} {minimum.ToString(CultureInfo.InvariantCulture)} {(above ? "and at most" : "to")} {maximum.ToString(CultureInfo.InvariantCulture)}";
         return new Option<double>(name)
         {
-            Description = description + $" Default {defaultValue.ToString(CultureInfo.InvariantCulture)}.",
+            Description = description,
             HelpName = "X",
             DefaultValueFactory = _ => defaultValue,
             CustomParser = result =>

@@ -106,19 +106,21 @@ internal static class NeuronsCommand
             }
             string halfName = parse.GetValue(half)!;
             if (parse.GetValue(json))
-                WriteJson(writer, document, maps[0], all, scoped, halfName, chart);
+                WriteJson(writer, document, maps, all, scoped, halfName, chart);
             else
-                WriteText(writer, document, maps[0], all, scoped, halfName, chart);
+                WriteText(writer, document, maps, all, scoped, halfName, chart);
             return ExitCodes.Fine;
         });
         return command;
     }
 
-    private static void WriteText(TextWriter output, RunDocument run, LayerMapDocument sample, NeuronAudit all, NeuronAudit scoped, string half, string? chart)
+    private static void WriteText(TextWriter output, RunDocument run, IReadOnlyList<LayerMapDocument> maps, NeuronAudit all, NeuronAudit scoped, string half, string? chart)
     {
+        var sample = maps[0];
         string settings = sample.Settings.Count == 0 ? "" : " (" + string.Join(", ", sample.Settings.OrderBy(s => s.Key, StringComparer.Ordinal).Select(s => s.Key + "=" + s.Value)) + ")";
         output.WriteLine($"run {DisplayText.Clean(run.Name)}, layer {DisplayText.Clean(all.Layer)} ({Formats.Integer(all.Units)} units), {DisplayText.Clean(all.Method + settings)}, target {DisplayText.Clean(run.Target)}");
-        output.WriteLine($"{Formats.Integer(all.Epochs.Count)} epochs with layer maps ({Range(all.Epochs)}), {Formats.Integer(all.Rows)} probe rows each ({(half == "both" ? "both halves" : half + " half")})");
+        output.WriteLine($"{Formats.Integer(all.Epochs.Count)} epochs with layer maps ({Range(all.Epochs)}), {Formats.Integer(all.Rows)} probe rows each ({(half == "both" ? "both halves" : half + " half")}); "
+            + string.Create(CultureInfo.InvariantCulture, $"{maps.Average(m => m.Seconds):0.000} s and {maps.Average(m => (double)m.Evaluations):N0} model evaluations per epoch"));
         output.WriteLine(LayerOptions.Describe(all));
         output.WriteLine();
 
@@ -171,8 +173,9 @@ internal static class NeuronsCommand
         output.WriteLine("Conductance describes the model, not causes in the data: a consistently negative or inactive unit is a lead, not a fault proven.");
     }
 
-    private static void WriteJson(TextWriter output, RunDocument run, LayerMapDocument sample, NeuronAudit all, NeuronAudit scoped, string half, string? chart)
+    private static void WriteJson(TextWriter output, RunDocument run, IReadOnlyList<LayerMapDocument> maps, NeuronAudit all, NeuronAudit scoped, string half, string? chart)
     {
+        var sample = maps[0];
         static string Name(NeuronClass kind) => NeuronAudit.Label(kind);
         var document = new Dictionary<string, object?>
         {
@@ -193,6 +196,7 @@ internal static class NeuronsCommand
                 ["epoch"] = epoch,
                 ["counts"] = Enum.GetValues<NeuronClass>().ToDictionary(Name, k => all.Count(k, e)),
                 ["changed"] = e == 0 ? 0 : all.Changes.Count(c => c.Epoch == epoch),
+                ["seconds"] = maps.First(m => m.Epoch == epoch).Seconds,
             }).ToList(),
             ["unitFigures"] = scoped.Overall.Select(u => new Dictionary<string, object>
             {
