@@ -36,6 +36,9 @@ internal static class GreenhouseTraining
             Schema = model.Schema,
             Probe = probe,
             Methods = [new Attribution.IntegratedGradients(options.Steps)],
+            // The first hidden layer's units, by layer conductance at half the IG steps: 64 units, a few milliseconds an epoch.
+            WatchedLayers = [GreenhouseNet.FirstHiddenLayer],
+            LayerMethods = [new Attribution.LayerConductance(Math.Max(8, options.Steps / 2))],
             TrainingValueCounts = scenario.TrainingValueCounts,
             Model = GreenhouseNetFactory.RecipeFor(model, scenario),
             WatchedModel = model,
@@ -72,6 +75,7 @@ internal static class GreenhouseTraining
             : $"planted   {string.Join(", ", scenario.PlantedFaults)} (should be flagged)");
         output.WriteLine(Invariant($"rule      a model that knew the grading rule would score validation loss {scenario.Validation.RuleLoss():F4}"));
         output.WriteLine(Invariant($"probe     {probe.HeldOutCount} held-out + {probe.TrainingCount} training rows, Integrated Gradients {options.Steps} steps; run '{options.RunName}'"));
+        output.WriteLine(Invariant($"layer     {GreenhouseNet.FirstHiddenLayer} ({model.Hidden} units, first hidden ReLU): layer conductance {Math.Max(8, options.Steps / 2)} steps"));
         if (resumed is not null)
             output.WriteLine($"resumed   {resumed}");
         if (firstEpoch > options.Epochs)
@@ -104,14 +108,17 @@ internal static class GreenhouseTraining
                 $"lowest validation loss {best.Metrics[EpochMetrics.ValidationLossKey]:F4} at epoch {best.Epoch}; {records.Count} epochs trained in {total.Elapsed.TotalSeconds:F1} s, {stored.Count} in the store"));
         }
         string chart = RenderTrend(monitor, options.RunName, monitorOptions.StorePath);
+        string validation = WriteValidationRows(scenario, model.Schema, options.RunName, monitorOptions.StorePath);
         string store = Quote(monitorOptions.StorePath);
         string run = Quote(options.RunName);
         output.WriteLine($"store     {monitorOptions.StorePath}");
         output.WriteLine($"chart     {chart}");
+        output.WriteLine($"rows      {validation} (the {ValidationRows} validation rows, labelled, for a pruning what-if)");
         output.WriteLine("next      see what the monitor recorded:");
         output.WriteLine($"          dotnet run --project src/DriftWatch.Cli -- runs --store {store}");
         output.WriteLine($"          dotnet run --project src/DriftWatch.Cli -- show {run} --store {store}");
         output.WriteLine($"          dotnet run --project src/DriftWatch.Cli -- chart {run} --store {store}");
+        output.WriteLine($"          dotnet run --project src/DriftWatch.Cli -- neurons {run} --layer {GreenhouseNet.FirstHiddenLayer} --store {store}");
         return 0;
     }
 
@@ -125,6 +132,31 @@ internal static class GreenhouseTraining
         new Charts.TrendChart().Render(history, path, Charts.ChartSize.Default);
         return path;
     }
+
+    // The validation rows as CSV beside the store (dense features, categorical ids, label), so `driftwatch prune` can
+    // measure a pruned model on more rows than the probe set's held-out half.
+    private static string WriteValidationRows(Greenhouse.GreenhouseScenario scenario, Model.FeatureSchema schema, string runName, string storePath)
+    {
+        string path = Path.Combine(Path.GetDirectoryName(storePath)!, Charts.ChartFiles.SafePart(runName) + "-validation.csv");
+        var rows = scenario.Validation.Rows;
+        var names = schema.Features.Where(f => f.Kind == Model.FeatureKind.Dense).Select(f => f.Name)
+            .Concat(schema.Features.Where(f => f.Kind == Model.FeatureKind.Categorical).Select(f => f.Name))
+            .Append("label");
+        var text = new System.Text.StringBuilder();
+        text.AppendJoin(',', names.Select(CsvCell)).Append('\n');
+        for (int r = 0; r < rows.Count; r++)
+        {
+            var cells = Enumerable.Range(0, rows.DenseCount).Select(d => rows.Dense[r * rows.DenseCount + d].ToString("R", CultureInfo.InvariantCulture))
+                .Concat(Enumerable.Range(0, rows.CategoricalCount).Select(c => rows.Categorical[r * rows.CategoricalCount + c].ToString(CultureInfo.InvariantCulture)))
+                .Append(rows.Labels![r].ToString("R", CultureInfo.InvariantCulture));
+            text.AppendJoin(',', cells).Append('\n');
+        }
+        File.WriteAllText(path, text.ToString(), new System.Text.UTF8Encoding(false));
+        return path;
+    }
+
+    private static string CsvCell(string text) =>
+        text.IndexOfAny([',', '"', '\n', '\r']) < 0 ? text : "\"" + text.Replace("\"", "\"\"", StringComparison.Ordinal) + "\"";
 
     private static string Invariant(FormattableString text) => text.ToString(CultureInfo.InvariantCulture);
 

@@ -71,6 +71,15 @@ public sealed record MonitorOptions
     /// </summary>
     public IWatchedModel? WatchedModel { get; init; }
 
+    /// <summary>
+    /// Hidden layers whose units are attributed at every attributed epoch, by module path as <c>named_modules()</c> of the
+    /// model's module lists them (e.g. <c>_scorer.1</c>); each gets one layer map per layer method. Default: none.
+    /// </summary>
+    public ImmutableArray<string> WatchedLayers { get; init; } = [];
+
+    /// <summary>The methods applied to each watched layer; each must be an <see cref="ILayerMethod"/>. Default: layer conductance, 32 steps.</summary>
+    public ImmutableArray<IAttributionMethod> LayerMethods { get; init; } = [new LayerConductance(steps: 32)];
+
     /// <summary>Checks every setting, naming the first bad one.</summary>
     /// <exception cref="DriftWatchException">A setting is out of range or the probe set does not fit the schema.</exception>
     public void Validate()
@@ -116,6 +125,27 @@ public sealed record MonitorOptions
         }
         if (WatchedModel is not null && (!WatchedModel.Schema.Names.SequenceEqual(Schema.Names) || WatchedModel.Schema.ColumnCount != Schema.ColumnCount))
             throw new DriftWatchException("WatchedModel's schema differs from Schema; pass model.Schema as Schema");
+        if (!WatchedLayers.IsDefault && !WatchedLayers.IsEmpty)
+        {
+            if (WatchedLayers.Any(string.IsNullOrWhiteSpace))
+                throw new DriftWatchException("WatchedLayers has an empty name; name each layer by its module path, e.g. '_scorer.1'");
+            var twice = WatchedLayers.GroupBy(l => l, StringComparer.Ordinal).FirstOrDefault(g => g.Count() > 1);
+            if (twice is not null)
+                throw new DriftWatchException($"layer '{twice.Key}' is in WatchedLayers twice; name each layer once");
+            if (LayerMethods.IsDefaultOrEmpty)
+                throw new DriftWatchException("WatchedLayers is set but LayerMethods is empty; leave LayerMethods out for layer conductance");
+            var notLayer = LayerMethods.FirstOrDefault(m => m is not ILayerMethod);
+            if (notLayer is not null)
+                throw new DriftWatchException($"LayerMethods holds '{notLayer.Name}', which is not a layer method; use layer-conductance, layer-activation or layer-gradient-x-activation");
+            var sameName = LayerMethods.GroupBy(m => m.Name).FirstOrDefault(g => g.Count() > 1);
+            if (sameName is not null)
+                throw new DriftWatchException($"layer method '{sameName.Key}' is configured twice; each may appear once");
+            if (WatchedModel is not null)
+            {
+                foreach (string layer in WatchedLayers)
+                    WatchedLayer.Find(WatchedModel.Module, layer); // an unknown path is refused here, before training
+            }
+        }
         foreach (var name in TrainingValueCounts.Keys)
         {
             if (!Schema.Features.Any(f => f.Name == name && f.Kind == FeatureKind.Categorical))

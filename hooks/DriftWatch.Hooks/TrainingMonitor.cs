@@ -3,6 +3,7 @@ using System.Diagnostics;
 using System.Globalization;
 using DriftWatch.Attribution;
 using DriftWatch.Detection;
+using DriftWatch.Layers;
 using DriftWatch.Model;
 using DriftWatch.Storage;
 using TorchSharp;
@@ -81,7 +82,8 @@ public sealed class TrainingMonitor : IDisposable
                 _detector = CatchUp(before: epoch); // a repeated epoch: the detector's state must not include its earlier attempt
             CheckModel(model);
 
-            var maps = epoch % _options.AttributeEvery == 0 ? Attribute(model, epoch, failures) : [];
+            var layerMaps = new List<LayerMapDocument>();
+            var maps = epoch % _options.AttributeEvery == 0 ? Attribute(model, epoch, failures, layerMaps) : [];
             using var weights = _options.SaveSnapshots ? Serialise(model, epoch, failures) : null;
             var values = metrics.ToDictionary();
             var primary = maps.FirstOrDefault(m => m.Document.Method == _options.Methods[0].Name);
@@ -102,6 +104,8 @@ public sealed class TrainingMonitor : IDisposable
                         if (map.Quality is not null)
                             _store.WriteQuality(map.Quality);
                     }
+                    foreach (var layerMap in layerMaps)
+                        _store.WriteLayerMap(layerMap);
                     string? snapshot = weights is null ? null : _store.SaveSnapshot(_run.Id, epoch, weights);
                     _store.WriteStatistics(new StatisticsDocument { RunId = _run.Id, Epoch = epoch, Statistics = assessment.Statistics });
                     _store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, _run.Id));
@@ -171,7 +175,7 @@ public sealed class TrainingMonitor : IDisposable
         public MapQualityDocument? Quality { get; set; }
     }
 
-    private List<StoredMap> Attribute(IWatchedModel model, int epoch, List<Finding> failures)
+    private List<StoredMap> Attribute(IWatchedModel model, int epoch, List<Finding> failures, List<LayerMapDocument> layerMaps)
     {
         var stored = new List<StoredMap>();
         var module = model.Module;
@@ -236,6 +240,8 @@ public sealed class TrainingMonitor : IDisposable
                     failures.Add(Failure(epoch, method.Name, e));
                 }
             }
+            if (!_options.WatchedLayers.IsDefaultOrEmpty)
+                AttributeLayers(model, input, epoch, failures, layerMaps);
             try
             {
                 BuildQuality(epoch, stored, figures);
@@ -252,6 +258,36 @@ public sealed class TrainingMonitor : IDisposable
             module.train(wasTraining);
         }
         return stored;
+    }
+
+    // Each watched layer with each layer method; the hooks these register are gone when each call returns.
+    private void AttributeLayers(IWatchedModel model, AttributionInput input, int epoch, List<Finding> failures, List<LayerMapDocument> layerMaps)
+    {
+        float[] outputs;
+        try
+        {
+            outputs = LayerMaps.Outputs(input);
+        }
+        catch (Exception e) when (!_options.Strict)
+        {
+            failures.Add(Failure(epoch, "layer maps", e));
+            return;
+        }
+        foreach (string path in _options.WatchedLayers)
+        {
+            foreach (var method in _options.LayerMethods)
+            {
+                try
+                {
+                    var layer = WatchedLayer.Find(model.Module, path);
+                    layerMaps.Add(LayerMaps.Attribute(method, input with { Layer = layer }, outputs, _run.Id, epoch, _options.Target.Label));
+                }
+                catch (Exception e) when (!_options.Strict)
+                {
+                    failures.Add(Failure(epoch, $"{method.Name} of layer '{path}'", e));
+                }
+            }
+        }
     }
 
     private void MeasureQuality(IAttributionMethod method, AttributionInput input, ColumnAttribution columns, int epoch, Dictionary<string, QualityFigures> figures, List<Finding> failures)

@@ -199,8 +199,8 @@ public sealed class HeatmapChart : IChart
         public Color GetColor(double position) => Ramp(ChartPalette.Positive, DeepPositive, Math.Clamp(position, 0, 1));
     }
 
-    // Orange below zero, light grey at zero, blue above; the range is symmetric, so grey sits at position 0.5.
-    private sealed class DivergingColormap : IColormap
+    // Orange below zero, light grey at zero, blue above; the range is symmetric, so grey sits at position 0.5. The neuron map uses it too.
+    internal sealed class DivergingColormap : IColormap
     {
         public string Name => "DriftWatch orange to grey to blue";
 

@@ -71,6 +71,8 @@ public static class CliApp
             ExportCommand.Create(store),
             CompareCommand.Create(store),
             MergeCommand.Create(),
+            NeuronsCommand.Create(store),
+            PruneCommand.Create(store),
         };
         return root;
     }

@@ -248,7 +248,7 @@ internal sealed partial class RunFolder
             : throw new DriftWatchException($"probe file '{path}': '{text}' in column '{column}' is not a finite number");
 
     // Minimal CSV: commas, double-quoted cells with doubled quotes inside.
-    private static List<string> SplitCsv(string line)
+    internal static List<string> SplitCsv(string line)
     {
         var cells = new List<string>();
         var cell = new StringBuilder();

@@ -75,6 +75,9 @@ public sealed class GreenhouseNet : nn.Module<Tensor, Tensor, Tensor>, IWatchedM
             dropout);
     }
 
+    /// <summary>The module path of the first hidden layer's ReLU output, the layer the demo watches unit by unit.</summary>
+    public const string FirstHiddenLayer = "_scorer.1";
+
     /// <inheritdoc />
     public FeatureSchema Schema { get; }
 

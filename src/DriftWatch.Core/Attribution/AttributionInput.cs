@@ -22,6 +22,9 @@ public sealed record AttributionInput(Func<Tensor, Tensor> Score, Tensor Inputs,
     /// <remarks>Perturbation methods (ablation, Shapley sampling) switch whole groups at once; gradient methods ignore it.</remarks>
     public int[]? ColumnOwners { get; init; }
 
+    /// <summary>The hidden layer that layer methods (<see cref="ILayerMethod"/>) and neuron conductance attribute to; null for feature-space methods.</summary>
+    public Model.WatchedLayer? Layer { get; init; }
+
     /// <summary>The same input with the column ownership of <paramref name="schema"/>.</summary>
     public AttributionInput WithSchema(Model.FeatureSchema schema)
     {

@@ -430,3 +430,56 @@ public sealed record ShardDocument : IKeyedDocument
     public string SourceStore { get; set; } = "";
 }
 #pragma warning restore CA2227
+
+/// <summary>One layer map: probe rows × units of a hidden layer for (run, epoch, layer, method, target).</summary>
+public sealed record LayerMapDocument : IKeyedDocument
+{
+    /// <summary>Store-assigned id.</summary>
+    [BsonId(autoId: true)]
+    public int Id { get; set; }
+
+    /// <summary>Unique key <c>run/epoch/layer/method/target</c>; writing the same key again replaces the map.</summary>
+    public string Key { get; set; } = "";
+
+    /// <summary>The run's id.</summary>
+    public int RunId { get; set; }
+
+    /// <summary>The epoch.</summary>
+    public int Epoch { get; set; }
+
+    /// <summary>The layer's module path, e.g. <c>_scorer.1</c>.</summary>
+    public string Layer { get; set; } = "";
+
+    /// <summary>The layer method's name, e.g. <c>layer-conductance</c>.</summary>
+    public string Method { get; set; } = "";
+
+    /// <summary>The target label.</summary>
+    public string Target { get; set; } = "";
+
+    /// <summary>Probe rows (held-out first, as the run's probe set).</summary>
+    public int Rows { get; set; }
+
+    /// <summary>Units of the layer (its output flattened per row).</summary>
+    public int Units { get; set; }
+
+    /// <summary>Row-major scores, rows × units, float32 little-endian.</summary>
+    public byte[] Scores { get; set; } = [];
+
+    /// <summary>Per-row F(x) − F(x′), float32, for methods with completeness; null otherwise.</summary>
+    public byte[]? OutputGaps { get; set; }
+
+    /// <summary>Per-row convergence delta |Σ units − (F(x) − F(x′))|, float32, or null.</summary>
+    public byte[]? Deltas { get; set; }
+
+    /// <summary>The attributed output F(x) per row, float32, so a reader knows which class the model predicted.</summary>
+    public byte[] Outputs { get; set; } = [];
+
+    /// <summary>Wall-clock seconds the attribution took.</summary>
+    public double Seconds { get; set; }
+
+    /// <summary>Model evaluations spent.</summary>
+    public long Evaluations { get; set; }
+
+    /// <summary>The method's settings, invariant culture.</summary>
+    public Dictionary<string, string> Settings { get; set; } = [];
+}

@@ -51,6 +51,7 @@ public sealed class RunStore : IDisposable
     private ILiteCollection<MapQualityDocument> QualityCollection => _database.GetCollection<MapQualityDocument>("quality");
 
     private ILiteCollection<ShardDocument> ShardsCollection => _database.GetCollection<ShardDocument>("shards");
+    private ILiteCollection<LayerMapDocument> LayerMapsCollection => _database.GetCollection<LayerMapDocument>("layers");
 
     /// <summary>Opens a store for writing, creating the file (and its folder) when missing.</summary>
     /// <exception cref="StoreException">The path is a folder, or the file is not a DriftWatch store.</exception>
@@ -200,6 +201,34 @@ public sealed class RunStore : IDisposable
             return StatisticsCollection.Find(s => s.RunId == runId).Where(s => complete.Contains(s.Epoch)).OrderBy(s => s.Epoch).ToList();
         });
     }
+
+    /// <summary>Writes (or replaces) one layer map, keyed by run, epoch, layer, method and target.</summary>
+    public void WriteLayerMap(LayerMapDocument map)
+    {
+        ArgumentNullException.ThrowIfNull(map);
+        Guard(() => Upsert(LayerMapsCollection, map with { Key = $"{map.RunId}/{map.Epoch:D6}/{map.Layer}/{map.Method}/{map.Target}" }));
+    }
+
+    /// <summary>The layer maps of a run for one layer (and method, when given), of complete epochs only, in epoch order.</summary>
+    /// <exception cref="StoreException">A map's arrays do not match its shape (a damaged store).</exception>
+    public IReadOnlyList<LayerMapDocument> LayerMaps(int runId, string layer, string? method = null)
+    {
+        ArgumentNullException.ThrowIfNull(layer);
+        return Guard(() =>
+        {
+            var complete = EpochsCollection.Find(e => e.RunId == runId).Select(e => e.Epoch).ToHashSet();
+            var found = method is null
+                ? LayerMapsCollection.Find(m => m.RunId == runId && m.Layer == layer)
+                : LayerMapsCollection.Find(m => m.RunId == runId && m.Layer == layer && m.Method == method);
+            return found.Where(m => complete.Contains(m.Epoch)).Select(m => StoreChecks.LayerMap(Path, m))
+                .OrderBy(m => m.Epoch).ThenBy(m => m.Method, StringComparer.Ordinal).ToList();
+        });
+    }
+
+    /// <summary>The (layer, method) pairs a run has layer maps for, in ordinal order.</summary>
+    public IReadOnlyList<(string Layer, string Method)> LayerMapKinds(int runId) =>
+        Guard(() => LayerMapsCollection.Find(m => m.RunId == runId).Select(m => (m.Layer, m.Method)).Distinct()
+            .OrderBy(m => m.Layer, StringComparer.Ordinal).ThenBy(m => m.Method, StringComparer.Ordinal).ToList());
 
     /// <summary>Writes a map's agreement and quality figures, replacing an earlier document for the same map key.</summary>
     public void WriteQuality(MapQualityDocument quality)
@@ -365,7 +394,7 @@ public sealed class RunStore : IDisposable
     {
         var mapper = new BsonMapper { EmptyStringToNull = false, TrimWhitespace = false };
         var seen = new HashSet<Type>();
-        var pending = new Stack<Type>([typeof(RunDocument), typeof(EpochDocument), typeof(MapDocument), typeof(VerdictDocument), typeof(StatisticsDocument), typeof(ShardDocument)]);
+        var pending = new Stack<Type>([typeof(RunDocument), typeof(EpochDocument), typeof(MapDocument), typeof(VerdictDocument), typeof(StatisticsDocument), typeof(ShardDocument), typeof(LayerMapDocument)]);
         while (pending.TryPop(out var type))
         {
             if (!seen.Add(type))
@@ -459,6 +488,8 @@ public sealed class RunStore : IDisposable
             StatisticsCollection.EnsureIndex(s => s.RunId);
             QualityCollection.EnsureIndex(q => q.Key, unique: true);
             QualityCollection.EnsureIndex(q => q.RunId);
+            LayerMapsCollection.EnsureIndex(l => l.Key, unique: true);
+            LayerMapsCollection.EnsureIndex(l => l.RunId);
         });
     }
 

@@ -59,6 +59,18 @@ internal static class StoreChecks
         return map;
     }
 
+    public static LayerMapDocument LayerMap(string path, LayerMapDocument map)
+    {
+        string where = $"the {map.Method} map of layer '{map.Layer}' at epoch {map.Epoch}";
+        Require(path, Present(map.Scores, map.Outputs, map.Layer, map.Method, map.Target, map.Settings), $"{where} has missing fields");
+        Require(path, map.Rows >= 0 && map.Units >= 0 && map.Scores.LongLength == (long)map.Rows * map.Units * sizeof(float)
+            && map.Outputs.LongLength == (long)map.Rows * sizeof(float)
+            && (map.Deltas is null || map.Deltas.LongLength == (long)map.Rows * sizeof(float))
+            && (map.OutputGaps is null || map.OutputGaps.LongLength == (long)map.Rows * sizeof(float)),
+            $"{where}: its scores do not fill {map.Rows} rows × {map.Units} units");
+        return map;
+    }
+
     public static EpochDocument Epoch(string path, EpochDocument epoch)
     {
         Require(path, Present(epoch.Metrics, epoch.Problems) && epoch.Problems.All(p => Present(p)), $"epoch {epoch.Epoch} has missing fields");
