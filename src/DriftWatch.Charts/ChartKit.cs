@@ -440,4 +440,37 @@ internal static class ChartKit
         if (history.Epochs.IsEmpty)
             throw new DriftWatchException($"run '{DisplayText.Clean(history.RunName)}' has no complete epochs yet; nothing to chart");
     }
+
+    /// <summary>
+    /// Adds a heatmap whose column c is centred on x = <paramref name="first"/> + c and whose row r on y = r. ScottPlot places
+    /// the centres of the outer cells on the extent's edges, so the extent runs from the first column to the last and from
+    /// row 0 to the last row; a single column or row is doubled so it still has two centres.
+    /// </summary>
+    internal static ScottPlot.Plottables.Heatmap CellGrid(Plot plot, double[,] cells, int first, int last)
+    {
+        int rows = cells.GetLength(0), columns = cells.GetLength(1);
+        if (columns == 1)
+            cells = Widen(cells, alongColumns: true);
+        if (rows == 1)
+            cells = Widen(cells, alongColumns: false);
+        var map = plot.Add.Heatmap(cells);
+        map.Extent = new CoordinateRect(
+            columns == 1 ? first - 0.25 : first,
+            columns == 1 ? first + 0.25 : last,
+            rows == 1 ? -0.25 : 0,
+            rows == 1 ? 0.25 : rows - 1);
+        return map;
+    }
+
+    private static double[,] Widen(double[,] cells, bool alongColumns)
+    {
+        int rows = cells.GetLength(0), columns = cells.GetLength(1);
+        var wide = alongColumns ? new double[rows, columns * 2] : new double[rows * 2, columns];
+        for (int r = 0; r < wide.GetLength(0); r++)
+        {
+            for (int c = 0; c < wide.GetLength(1); c++)
+                wide[r, c] = alongColumns ? cells[r, c / 2] : cells[r / 2, c];
+        }
+        return wide;
+    }
 }

@@ -112,8 +112,7 @@ public sealed class HeatmapChart : IChart
             double top = finite.Count == 0 ? 1 : finite.Select(Math.Abs).Max();
             if (top <= 0)
                 top = 1;
-            var map = plot.Add.Heatmap(cells);
-            map.Extent = new CoordinateRect(first - 0.5, last + 0.5, -0.5, rows.Count - 0.5);
+            var map = ChartKit.CellGrid(plot, cells, first, last);
             map.NaNCellColor = Colors.White;
             map.Colormap = Value == HeatmapValue.Share ? new SequentialColormap() : new DivergingColormap();
             map.ManualRange = Value == HeatmapValue.Share ? new ScottPlot.Range(0, top) : new ScottPlot.Range(-top, top);

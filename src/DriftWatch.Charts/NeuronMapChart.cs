@@ -81,18 +81,7 @@ public sealed class NeuronMapChart
                         : audit.ByEpoch[e][order[r]].MeanConductance;
             }
         }
-        // ScottPlot places the centres of the outer cells on the extent's edges, so the extent runs from the first epoch to
-        // the last and from row 0 to the last row; a single column or row is doubled so it still has two centres.
-        if (columns == 1)
-            cells = Widen(cells, alongColumns: true);
-        if (units == 1)
-            cells = Widen(cells, alongColumns: false);
-        var map = plot.Add.Heatmap(cells);
-        map.Extent = new CoordinateRect(
-            columns == 1 ? first - 0.25 : first,
-            columns == 1 ? first + 0.25 : last,
-            units == 1 ? -0.25 : 0,
-            units == 1 ? 0.25 : units - 1);
+        var map = ChartKit.CellGrid(plot, cells, first, last);
         map.NaNCellColor = Colors.White;
         float right = 14;
         if (Value == NeuronMapValue.Class)
@@ -165,18 +154,6 @@ public sealed class NeuronMapChart
             "conductance" => NeuronMapValue.Conductance,
             _ => throw new DriftWatchException(string.Create(CultureInfo.InvariantCulture, $"neuron map colour must be class or conductance; got '{DisplayText.Clean(text, 40)}'")),
         };
-    }
-
-    private static double[,] Widen(double[,] cells, bool alongColumns)
-    {
-        int rows = cells.GetLength(0), columns = cells.GetLength(1);
-        var wide = alongColumns ? new double[rows, columns * 2] : new double[rows * 2, columns];
-        for (int r = 0; r < wide.GetLength(0); r++)
-        {
-            for (int c = 0; c < wide.GetLength(1); c++)
-                wide[r, c] = alongColumns ? cells[r, c / 2] : cells[r / 2, c];
-        }
-        return wide;
     }
 
     // Discrete colours over the range −0.5 to 3.5: one band per class.
