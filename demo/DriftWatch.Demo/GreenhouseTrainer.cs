@@ -50,7 +50,8 @@ public static class GreenhouseTrainer
         ArgumentNullException.ThrowIfNull(monitor);
         ArgumentOutOfRangeException.ThrowIfLessThan(firstEpoch, 1);
         using var data = new TrainingData(scenario);
-        using var optimizer = torch.optim.Adam(model.parameters(), lr: LearningRate);
+        // Adam with every scalar of its step held until the native call returns (see Optimizers.Adam for the crash).
+        using var optimizer = new Optimizers.Adam(model.parameters(), LearningRate);
         var shuffle = new Random(seed);
         // A resumed run replays the data order of the epochs it skips, so each later epoch sees the minibatches an
         // uninterrupted run would; with the weights and the optimizer's state restored, it continues the same run.
@@ -109,9 +110,11 @@ public static class GreenhouseTrainer
         model.eval();
         using var scope = torch.NewDisposeScope();
         using var noGrad = torch.no_grad();
+        // Scalars held until their calls return; an implicit one can be finalized while native code reads it.
+        using Scalar zero = 0f, half = 0.5f;
         var logits = model.call(data.ValidationDense, data.ValidationCategorical).squeeze(1);
         double loss = nn.functional.binary_cross_entropy_with_logits(logits, data.ValidationLabels).item<float>();
-        double accuracy = (logits > 0).eq(data.ValidationLabels > 0.5f).to(ScalarType.Float32).mean().item<float>();
+        double accuracy = logits.gt(zero).eq(data.ValidationLabels.gt(half)).to(ScalarType.Float32).mean().item<float>();
         return (loss, accuracy);
     }
 

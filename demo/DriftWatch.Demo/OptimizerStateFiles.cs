@@ -85,7 +85,7 @@ public sealed class OptimizerStateFiles
             optimizer.load_state_dict(reader);
             return true;
         }
-        catch (Exception e) when (e is IOException or UnauthorizedAccessException or ArgumentException or InvalidOperationException)
+        catch (Exception e) when (e is IOException or InvalidDataException or UnauthorizedAccessException or ArgumentException or InvalidOperationException)
         {
             _log.WriteLine($"warning   the optimizer state '{path}' could not be read ({e.Message}); Adam restarts its moment estimates");
             return false;

@@ -365,13 +365,9 @@ public sealed class RunStore : IDisposable
     {
         try
         {
-            var connection = new ConnectionString
-            {
-                Filename = full,
-                Connection = ConnectionType.Shared,
-                ReadOnly = readOnly,
-            };
-            return new RunStore(new LiteDatabase(connection, Mapper), full);
+            // LiteDB's shared mode (one engine per operation under a named mutex), run by our own engine so that a
+            // write the disk refuses leaves no LiteDB transaction for a finalizer to trip over (OrphanedTransactions).
+            return new RunStore(new LiteDatabase(new SharedStoreEngine(full, readOnly), Mapper), full);
         }
         catch (LiteException e)
         {

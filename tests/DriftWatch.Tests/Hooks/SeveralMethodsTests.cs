@@ -25,7 +25,7 @@ public sealed class SeveralMethodsTests
         using var temp = new TempFolder();
         using var model = new SmallNet(3, 5, 4);
         var data = new RowsBuilder().WithRows(80).WithSeed(3).Build();
-        var optimizer = optim.Adam(model.parameters(), 0.01);
+        var optimizer = new DriftWatch.Demo.Optimizers.Adam(model.parameters(), 0.01); // TorchSharp's Adam, its scalars held (the demo's)
         IAttributionMethod[] methods = [new IntegratedGradients(16), new FeatureAblation(), new ShapleySampling(8), new SmoothGrad(samples: 6)];
         var options = new MonitorOptions
         {

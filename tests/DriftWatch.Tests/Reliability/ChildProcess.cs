@@ -61,6 +61,9 @@ internal sealed class ChildProcess : IDisposable
             UseShellExecute = false,
             WorkingDirectory = Path.GetTempPath(),
         };
+        // No debugger or diagnostics endpoints: the runtime makes two pipes and a socket in /tmp per process and removes
+        // them at exit, so every SIGKILL of the kill suite left three files behind (hundreds per run).
+        start.Environment["DOTNET_EnableDiagnostics"] = "0";
         start.ArgumentList.Add(assembly);
         foreach (string arg in args)
             start.ArgumentList.Add(arg);
