@@ -52,8 +52,11 @@ public sealed class PruningWhatIfTests
         var other = PruningWhatIf.Probabilities(model, layer, rows, AttributionTarget.Logit, [0, 1, 2, 4, 5], 4096);
 
         Assert.Equal(0f, next.weight!.select(1, 3).abs().sum().item<float>());
-        Assert.True(before.Zip(masked).All(p => p.First == p.Second), $"largest difference {before.Zip(masked).Max(p => Math.Abs(p.First - p.Second))}");
-        Assert.NotEqual(before, other); // the same check can fail: masking units that do reach the output moves it
+        // Equal up to float rounding: libtorch may sum a matrix product in another order from one call to the next.
+        double unchanged = before.Zip(masked).Max(p => Math.Abs(p.First - p.Second));
+        double moved = before.Zip(other).Max(p => Math.Abs(p.First - p.Second));
+        Assert.True(unchanged < 1e-6, $"largest difference {unchanged}");
+        Assert.True(moved > 1e-3, $"largest difference {moved}"); // the same check can fail: masking units that do reach the output moves it
         Assert.Equal(0, HookCount.Of(layer.Module));
     }
 
