@@ -66,24 +66,25 @@ public sealed class IntegratedGradients : IAttributionMethod
 
         if (input.ChunkRows >= Steps)
         {
-            // Whole rows per chunk: the path points are one broadcast multiply-add into [rows, steps, columns]. The step
-            // weights are the backward pass's seed (the gradient of Σ w·F is w·∂F/∂x), so the weighted sum over steps is
-            // one reduction of the returned gradient: no separate weighting pass, no gather or scatter by index.
+            // Whole rows per chunk, laid out step-major: the path points are one broadcast multiply-add into
+            // [steps, rows, columns]. The step weights are the backward pass's seed (the gradient of Σ w·F is w·∂F/∂x), so
+            // the weighted sum over steps is one reduction over contiguous slabs of the returned gradient: no separate
+            // weighting pass, no gather or scatter by index.
             if (rows == 0)
                 return [];
             int rowsPerChunk = Math.Min(rows, input.ChunkRows / Steps);
-            var alphas = nodes.view(1, Steps, 1);
-            var seed = weights.repeat(rowsPerChunk);
+            var alphas = nodes.view(Steps, 1, 1);
             bool shared = input.Baseline.dim() == 1;
             var parts = new List<Tensor>();
             for (int start = 0; start < rows; start += rowsPerChunk)
             {
                 using var chunk = torch.NewDisposeScope();
-                int end = Math.Min(rows, start + rowsPerChunk);
-                var from = shared ? baseline.view(1, 1, columns) : baseline[start..end].unsqueeze(1);
-                var points = torch.addcmul(from, alphas, difference[start..end].unsqueeze(1), 1).view(-1, columns);
-                var gradient = Gradients.Weighted(input.Score, points, end - start == rowsPerChunk ? seed : seed[..((end - start) * Steps)]);
-                parts.Add(gradient.view(end - start, Steps, columns).sum(dim: 1).MoveToOuterDisposeScope());
+                int end = Math.Min(rows, start + rowsPerChunk), count = end - start;
+                var from = shared ? baseline.view(1, 1, columns) : baseline[start..end].unsqueeze(0);
+                var points = torch.addcmul(from, alphas, difference[start..end].unsqueeze(0), 1).view(-1, columns);
+                var seed = weights.view(Steps, 1).expand(Steps, count).reshape(-1);
+                var gradient = Gradients.Weighted(input.Score, points, seed);
+                parts.Add(gradient.view(Steps, count, columns).sum(dim: 0).MoveToOuterDisposeScope());
             }
             var summed = parts.Count == 1 ? parts[0] : torch.cat(parts, 0);
             return Gradients.ToArray(summed.mul_(difference));
