@@ -80,6 +80,19 @@ public sealed record MonitorOptions
     /// <summary>The methods applied to each watched layer; each must be an <see cref="ILayerMethod"/>. Default: layer conductance, 32 steps.</summary>
     public ImmutableArray<IAttributionMethod> LayerMethods { get; init; } = [new LayerConductance(steps: 32)];
 
+    /// <summary>
+    /// Attribute, judge and store each epoch on a worker thread while the next epoch trains. Default false. Needs
+    /// <see cref="Model"/>: the monitor builds its own copy of the model from the recipe and loads each epoch's weights into
+    /// it, so the weights attributed are the epoch's even as training changes the model.
+    /// </summary>
+    /// <remarks>
+    /// <see cref="TrainingMonitor.EndEpoch"/> then snapshots the weights, waits for the previous epoch's work, starts this
+    /// epoch's and returns the previous epoch's verdict (one epoch late); <see cref="TrainingMonitor.WaitForPendingEpoch"/>
+    /// gives the last one. A kill loses at most the epoch being worked on: the store holds every epoch before it, and a
+    /// resumed run redoes it. See the README's performance section for what it buys on two cores.
+    /// </remarks>
+    public bool BackgroundAttribution { get; init; }
+
     /// <summary>Checks every setting, naming the first bad one.</summary>
     /// <exception cref="DriftWatchException">A setting is out of range or the probe set does not fit the schema.</exception>
     public void Validate()
@@ -107,6 +120,8 @@ public sealed record MonitorOptions
         if (Baseline.Kind == BaselineKind.Given && Baseline.Values!.Length != Schema.ColumnCount)
             throw new DriftWatchException($"given baseline has {Baseline.Values.Length} values but the schema has {Schema.ColumnCount} feature-space columns");
         Quality?.Validate();
+        if (BackgroundAttribution && Model is null)
+            throw new DriftWatchException("BackgroundAttribution needs Model (a ModelRecipe): the monitor builds its own copy of the model from it to attribute each epoch's weights while the next epoch trains");
         if (Model is not null)
         {
             // Building draws fresh weights; the caller's random stream must not move because the monitor checked a recipe.

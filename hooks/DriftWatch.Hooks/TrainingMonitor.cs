@@ -18,7 +18,9 @@ namespace DriftWatch.Hooks;
 /// <remarks>
 /// Never throws into the training loop from <see cref="EndEpoch"/> unless <see cref="MonitorOptions.Strict"/> is on:
 /// a failure is recorded with the epoch and reported in the verdict. Configuration errors throw from the constructor.
-/// Not thread-safe: call it from the training loop's thread.
+/// Not thread-safe: call it from the training loop's thread. With <see cref="MonitorOptions.BackgroundAttribution"/> on,
+/// the monitor itself attributes, judges and stores each epoch on a worker thread while the next epoch trains (one epoch
+/// at a time, in order); <see cref="Dispose"/> waits for that work.
 /// </remarks>
 public sealed class TrainingMonitor : IDisposable
 {
@@ -26,8 +28,16 @@ public sealed class TrainingMonitor : IDisposable
     private readonly RunStore _store;
     private readonly RunDocument _run;
     private CrossMethodDetector _detector;
-    private int _lastEpoch;
+    private volatile int _lastEpoch;
     private IWatchedModel? _checkedModel;
+
+    // Background attribution: the monitor's own copy of the model, the epoch being worked on, the latest verdict.
+    private readonly IWatchedModel? _copy;
+    private Task<Verdict>? _pending;
+    private Verdict _latest = NothingJudged;
+    private bool _disposed;
+
+    private static readonly Verdict NothingJudged = new(-1, VerdictKind.Continue, ["no epoch has been judged yet"], []);
 
     /// <summary>Validates the options, opens the store and registers the run (or resumes it).</summary>
     /// <exception cref="DriftWatchException">Bad options, an unusable store, or a resumed run whose schema, probe set or methods differ.</exception>
@@ -46,6 +56,8 @@ public sealed class TrainingMonitor : IDisposable
                 CheckModel(options.WatchedModel); // a run name reused by a different model fails here, before any epoch
             _lastEpoch = _store.Epochs(_run.Id).Select(e => e.Epoch).DefaultIfEmpty(-1).Max();
             _detector = CatchUp(before: int.MaxValue);
+            if (options.BackgroundAttribution)
+                _copy = BuildCopy(options.Model!);
         }
         catch
         {
@@ -58,85 +70,224 @@ public sealed class TrainingMonitor : IDisposable
     public RunDocument Run => _run;
 
     /// <summary>The last complete epoch in the store (−1 before the first), so a resumed loop knows where to start.</summary>
+    /// <remarks>With background attribution, an epoch is complete once its background work is stored.</remarks>
     public int LastEpoch => _lastEpoch;
 
     /// <summary>The store this monitor writes; share it only for reading.</summary>
+    /// <remarks>With background attribution, call <see cref="WaitForPendingEpoch"/> first to read what the latest epoch wrote.</remarks>
     public RunStore Store => _store;
 
     /// <summary>Records the epoch: snapshot, attribution maps, metrics, verdict. Call once per epoch, after validation.</summary>
     /// <param name="model">The model being trained, in whatever mode the loop left it (restored afterwards).</param>
     /// <param name="epoch">The epoch number, increasing; repeating the last epoch replaces it (a resumed run).</param>
     /// <param name="metrics">The epoch's losses and other metrics.</param>
-    /// <returns>The gate's verdict; stop training on <see cref="VerdictKind.Halt"/> if you wish.</returns>
+    /// <returns>
+    /// The gate's verdict; stop training on <see cref="VerdictKind.Halt"/> if you wish. With
+    /// <see cref="MonitorOptions.BackgroundAttribution"/> on, this is the verdict of the previous epoch (its
+    /// <see cref="Verdict.Epoch"/> says which; −1 before any epoch was judged), and this epoch's verdict comes with the next
+    /// call or from <see cref="WaitForPendingEpoch"/>.
+    /// </returns>
     public Verdict EndEpoch(IWatchedModel model, int epoch, EpochMetrics metrics)
     {
+        if (_copy is not null)
+            return EndEpochInBackground(model, epoch, metrics);
         var clock = Stopwatch.StartNew();
         var failures = new List<Finding>();
         try
         {
-            ArgumentNullException.ThrowIfNull(model);
-            ArgumentNullException.ThrowIfNull(metrics);
-            if (epoch < _lastEpoch)
-                throw new DriftWatchException($"epoch {epoch} comes after epoch {_lastEpoch}; epochs must increase (repeat the last one to replace it)");
-            if (epoch == _lastEpoch)
-                _detector = CatchUp(before: epoch); // a repeated epoch: the detector's state must not include its earlier attempt
-            CheckModel(model);
-
+            Admit(model, epoch, metrics);
             var layerMaps = new List<LayerMapDocument>();
             var maps = epoch % _options.AttributeEvery == 0 ? Attribute(model, epoch, failures, layerMaps) : [];
             using var weights = _options.SaveSnapshots ? Serialise(model, epoch, failures) : null;
-            var values = metrics.ToDictionary();
-            var primary = maps.FirstOrDefault(m => m.Document.Method == _options.Methods[0].Name);
-            var assessment = _detector.Observe(
-                new EpochEvidence(epoch, values, primary?.Map, [.. failures]),
-                maps.ToDictionary(m => m.Document.Method, m => m.Map, StringComparer.Ordinal));
-
-            // One transaction per epoch: maps, snapshot, statistics, verdict and the epoch's document (the marker
-            // readers and a resumed run look for) land together or not at all, and the file is opened once.
-            try
-            {
-                var storeClock = Stopwatch.StartNew();
-                _store.InOneTransaction(() =>
-                {
-                    foreach (var map in maps)
-                    {
-                        _store.WriteMap(map.Document);
-                        if (map.Quality is not null)
-                            _store.WriteQuality(map.Quality);
-                    }
-                    foreach (var layerMap in layerMaps)
-                        _store.WriteLayerMap(layerMap);
-                    string? snapshot = weights is null ? null : _store.SaveSnapshot(_run.Id, epoch, weights);
-                    _store.WriteStatistics(new StatisticsDocument { RunId = _run.Id, Epoch = epoch, Statistics = assessment.Statistics });
-                    _store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, _run.Id));
-                    _store.WriteEpoch(new EpochDocument
-                    {
-                        RunId = _run.Id,
-                        Epoch = epoch,
-                        Metrics = values,
-                        SnapshotId = snapshot,
-                        RecordedUtc = _options.Time.GetUtcNow().UtcDateTime,
-                        Problems = failures.Select(f => f.Evidence).ToList(),
-                        MonitorSeconds = clock.Elapsed.TotalSeconds,
-                        StoreSeconds = storeClock.Elapsed.TotalSeconds,
-                    });
-                });
-            }
-            catch
-            {
-                // Nothing of this epoch was stored: the detector must not remember it either.
-                _detector = CatchUp(before: epoch);
-                throw;
-            }
-            _lastEpoch = epoch;
-            return assessment.Verdict;
+            return _latest = Judge(epoch, metrics, maps, layerMaps, weights, failures, () => clock.Elapsed.TotalSeconds);
         }
         catch (Exception e) when (!_options.Strict)
         {
-            failures.Add(Failure(epoch, "monitoring", e));
-            var kind = failures.Max(f => f.Severity);
-            return new Verdict(epoch, kind, failures.Select(f => f.Evidence).ToImmutableArray(), [.. failures]);
+            return _latest = FailureVerdict(epoch, failures, e);
         }
+    }
+
+    /// <summary>
+    /// Waits until the epoch being attributed in the background (if any) is judged and stored, and returns the latest
+    /// verdict. Call it after the last epoch to get that epoch's verdict. Without background attribution it returns the
+    /// verdict of the last <see cref="EndEpoch"/> at once.
+    /// </summary>
+    /// <returns>The latest verdict; its <see cref="Verdict.Epoch"/> is −1 when no epoch has been judged yet.</returns>
+    /// <remarks>With <see cref="MonitorOptions.Strict"/> on, a failure of the background work is rethrown here (once).</remarks>
+    public Verdict WaitForPendingEpoch()
+    {
+        var pending = _pending;
+        if (pending is null)
+            return _latest;
+        _pending = null;
+        _latest = pending.GetAwaiter().GetResult();
+        return _latest;
+    }
+
+    // Background mode: the previous epoch's work ends before this epoch's begins, so store writes, detector state and
+    // verdicts stay in epoch order and at most one epoch is ever pending. The weights are snapshotted before EndEpoch
+    // returns, so the loop may change the model at once; the worker loads them into its own copy of the model.
+    private Verdict EndEpochInBackground(IWatchedModel model, int epoch, EpochMetrics metrics)
+    {
+        var clock = Stopwatch.StartNew();
+        var judged = WaitForPendingEpoch();
+        var failures = new List<Finding>();
+        MemoryStream? weights = null;
+        try
+        {
+            Admit(model, epoch, metrics);
+            weights = Serialise(model, epoch, failures);
+        }
+        catch (Exception e) when (!_options.Strict)
+        {
+            weights?.Dispose();
+            return _latest = FailureVerdict(epoch, failures, e);
+        }
+        double admitted = clock.Elapsed.TotalSeconds;
+        _pending = Task.Run(() => AttributeAndJudge(epoch, metrics, weights, failures, admitted));
+        return judged;
+    }
+
+    // The background half of an epoch: load the snapshot into the monitor's copy of the model, attribute, judge, store.
+    private Verdict AttributeAndJudge(int epoch, EpochMetrics metrics, MemoryStream? weights, List<Finding> failures, double admitted)
+    {
+        var clock = Stopwatch.StartNew();
+        try
+        {
+            using (weights)
+            {
+                var maps = new List<StoredMap>();
+                var layerMaps = new List<LayerMapDocument>();
+                if (epoch % _options.AttributeEvery == 0)
+                {
+                    if (weights is null)
+                        failures.Add(Failure(epoch, "attribution", new DriftWatchException("the epoch's weights could not be snapshotted, so its copy of the model could not be loaded")));
+                    else if (LoadCopy(weights, epoch, failures))
+                        maps = Attribute(_copy!, epoch, failures, layerMaps);
+                }
+                if (weights is not null)
+                    weights.Position = 0;
+                return Judge(epoch, metrics, maps, layerMaps, _options.SaveSnapshots ? weights : null, failures, () => admitted + clock.Elapsed.TotalSeconds);
+            }
+        }
+        catch (Exception e) when (!_options.Strict)
+        {
+            return FailureVerdict(epoch, failures, e);
+        }
+    }
+
+    // Each watched layer with each layer method; the hooks these register are gone when each call returns.
+    private void AttributeLayers(IWatchedModel model, AttributionInput input, int epoch, List<Finding> failures, List<LayerMapDocument> layerMaps)
+    {
+        float[] outputs;
+        try
+        {
+            outputs = LayerMaps.Outputs(input);
+        }
+        catch (Exception e) when (!_options.Strict)
+        {
+            failures.Add(Failure(epoch, "layer maps", e));
+            return;
+        }
+        foreach (string path in _options.WatchedLayers)
+        {
+            foreach (var method in _options.LayerMethods)
+            {
+                try
+                {
+                    var layer = WatchedLayer.Find(model.Module, path);
+                    layerMaps.Add(LayerMaps.Attribute(method, input with { Layer = layer }, outputs, _run.Id, epoch, _options.Target.Label));
+                }
+                catch (Exception e) when (!_options.Strict)
+                {
+                    failures.Add(Failure(epoch, $"{method.Name} of layer '{path}'", e));
+                }
+            }
+        }
+    }
+
+    private bool LoadCopy(MemoryStream weights, int epoch, List<Finding> failures)
+    {
+        try
+        {
+            using (var reader = new BinaryReader(weights, System.Text.Encoding.UTF8, leaveOpen: true))
+                _copy!.Module.load(reader, strict: true);
+            return true;
+        }
+        catch (Exception e) when (!_options.Strict)
+        {
+            failures.Add(Failure(epoch, "loading the epoch's weights into the background copy of the model", e));
+            return false;
+        }
+    }
+
+    // Checks the call before any work: arguments, epoch order, the model's schema and shape.
+    private void Admit(IWatchedModel model, int epoch, EpochMetrics metrics)
+    {
+        ArgumentNullException.ThrowIfNull(model);
+        ArgumentNullException.ThrowIfNull(metrics);
+        if (epoch < _lastEpoch)
+            throw new DriftWatchException($"epoch {epoch} comes after epoch {_lastEpoch}; epochs must increase (repeat the last one to replace it)");
+        if (epoch == _lastEpoch)
+            _detector = CatchUp(before: epoch); // a repeated epoch: the detector's state must not include its earlier attempt
+        CheckModel(model);
+    }
+
+    // The detector's judgement and the epoch's one transaction.
+    private Verdict Judge(int epoch, EpochMetrics metrics, List<StoredMap> maps, List<LayerMapDocument> layerMaps, MemoryStream? weights, List<Finding> failures, Func<double> monitorSeconds)
+    {
+        var values = metrics.ToDictionary();
+        var primary = maps.FirstOrDefault(m => m.Document.Method == _options.Methods[0].Name);
+        var assessment = _detector.Observe(
+            new EpochEvidence(epoch, values, primary?.Map, [.. failures]),
+            maps.ToDictionary(m => m.Document.Method, m => m.Map, StringComparer.Ordinal));
+
+        // One transaction per epoch: maps, snapshot, statistics, verdict and the epoch's document (the marker
+        // readers and a resumed run look for) land together or not at all, and the file is opened once.
+        try
+        {
+            var storeClock = Stopwatch.StartNew();
+            _store.InOneTransaction(() =>
+            {
+                foreach (var map in maps)
+                {
+                    _store.WriteMap(map.Document);
+                    if (map.Quality is not null)
+                        _store.WriteQuality(map.Quality);
+                }
+                foreach (var layerMap in layerMaps)
+                    _store.WriteLayerMap(layerMap);
+                string? snapshot = weights is null ? null : _store.SaveSnapshot(_run.Id, epoch, weights);
+                _store.WriteStatistics(new StatisticsDocument { RunId = _run.Id, Epoch = epoch, Statistics = assessment.Statistics });
+                _store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, _run.Id));
+                _store.WriteEpoch(new EpochDocument
+                {
+                    RunId = _run.Id,
+                    Epoch = epoch,
+                    Metrics = values,
+                    SnapshotId = snapshot,
+                    RecordedUtc = _options.Time.GetUtcNow().UtcDateTime,
+                    Problems = failures.Select(f => f.Evidence).ToList(),
+                    MonitorSeconds = monitorSeconds(),
+                    StoreSeconds = storeClock.Elapsed.TotalSeconds,
+                });
+            });
+        }
+        catch
+        {
+            // Nothing of this epoch was stored: the detector must not remember it either.
+            _detector = CatchUp(before: epoch);
+            throw;
+        }
+        _lastEpoch = epoch;
+        return assessment.Verdict;
+    }
+
+    private static Verdict FailureVerdict(int epoch, List<Finding> failures, Exception e)
+    {
+        failures.Add(Failure(epoch, "monitoring", e));
+        var kind = failures.Max(f => f.Severity);
+        return new Verdict(epoch, kind, failures.Select(f => f.Evidence).ToImmutableArray(), [.. failures]);
     }
 
     /// <summary>
@@ -148,6 +299,7 @@ public sealed class TrainingMonitor : IDisposable
     public int RestoreLastSnapshot(nn.Module module)
     {
         ArgumentNullException.ThrowIfNull(module);
+        WaitForPendingEpoch();
         var last = _store.Epochs(_run.Id).LastOrDefault()
             ?? throw new DriftWatchException($"run '{_run.Name}' has no complete epoch in '{_store.Path}' to restore; start it from its first epoch");
         if (last.SnapshotId is null)
@@ -166,8 +318,30 @@ public sealed class TrainingMonitor : IDisposable
         return last.Epoch;
     }
 
-    /// <inheritdoc />
-    public void Dispose() => _store.Dispose();
+    /// <summary>Waits for the epoch being attributed in the background, if any, then closes the store.</summary>
+    /// <remarks>With <see cref="MonitorOptions.Strict"/> on, a failure of that epoch's background work is rethrown after the store is closed.</remarks>
+    public void Dispose()
+    {
+        if (_disposed)
+            return;
+        _disposed = true;
+        Exception? failure = null;
+        try
+        {
+            WaitForPendingEpoch();
+        }
+        catch (Exception e)
+        {
+            failure = e;
+        }
+        finally
+        {
+            _copy?.Module.Dispose();
+            _store.Dispose();
+        }
+        if (failure is not null)
+            System.Runtime.ExceptionServices.ExceptionDispatchInfo.Throw(failure);
+    }
 
     private sealed record StoredMap(MapDocument Document, AttributionMap Map)
     {
@@ -260,36 +434,6 @@ public sealed class TrainingMonitor : IDisposable
         return stored;
     }
 
-    // Each watched layer with each layer method; the hooks these register are gone when each call returns.
-    private void AttributeLayers(IWatchedModel model, AttributionInput input, int epoch, List<Finding> failures, List<LayerMapDocument> layerMaps)
-    {
-        float[] outputs;
-        try
-        {
-            outputs = LayerMaps.Outputs(input);
-        }
-        catch (Exception e) when (!_options.Strict)
-        {
-            failures.Add(Failure(epoch, "layer maps", e));
-            return;
-        }
-        foreach (string path in _options.WatchedLayers)
-        {
-            foreach (var method in _options.LayerMethods)
-            {
-                try
-                {
-                    var layer = WatchedLayer.Find(model.Module, path);
-                    layerMaps.Add(LayerMaps.Attribute(method, input with { Layer = layer }, outputs, _run.Id, epoch, _options.Target.Label));
-                }
-                catch (Exception e) when (!_options.Strict)
-                {
-                    failures.Add(Failure(epoch, $"{method.Name} of layer '{path}'", e));
-                }
-            }
-        }
-    }
-
     private void MeasureQuality(IAttributionMethod method, AttributionInput input, ColumnAttribution columns, int epoch, Dictionary<string, QualityFigures> figures, List<Finding> failures)
     {
         try
@@ -357,6 +501,8 @@ public sealed class TrainingMonitor : IDisposable
         if (!model.Schema.Names.SequenceEqual(_options.Schema.Names) || model.Schema.ColumnCount != _options.Schema.ColumnCount)
             throw new DriftWatchException("the model's schema differs from the schema the monitor was configured with; pass model.Schema in MonitorOptions");
         string shape = ModelShape(model.Module);
+        if (_copy is not null && ModelShape(_copy.Module) != shape)
+            throw new DriftWatchException($"the model that Model's factory '{_options.Model!.FactoryName}' builds has another shape than the model being trained; background attribution loads each epoch's weights into it, so give the factory the trained model's settings");
         if (_run.ModelShape.Length > 0 && _run.ModelShape != shape)
             throw new DriftWatchException($"run '{_run.Name}' was recorded with a model of another shape; use a new run name for a different model");
         bool learnsRecipe = _run.ModelFactory.Length == 0 && model is IRebuildableModel;
@@ -373,6 +519,21 @@ public sealed class TrainingMonitor : IDisposable
             _store.UpdateRun(_run);
         }
         _checkedModel = model;
+    }
+
+    // The copy background attribution loads each epoch's weights into; built here, on the caller's thread, without moving
+    // the caller's random stream (building draws fresh weights).
+    private static IWatchedModel BuildCopy(ModelRecipe recipe)
+    {
+        using var state = torch.random.get_rng_state();
+        try
+        {
+            return recipe.Build();
+        }
+        finally
+        {
+            torch.random.set_rng_state(state);
+        }
     }
 
     // A fresh detector fed the stored epochs before the given one, so a resumed run judges as if never interrupted.

@@ -13,15 +13,32 @@ using TorchSharp;
 using static TorchSharp.torch;
 
 // DriftWatch's benchmark suite. Every figure is a ratio or a count measured side by side in this one process run.
-//   dotnet run --project tests/DriftWatch.Benchmarks -c Release -- [--quick] [--out FOLDER]
+//   dotnet run --project tests/DriftWatch.Benchmarks -c Release -- [--quick] [--out FOLDER] [--only 1,2,2b,3,4,5,6] [--threads N]
 bool quick = args.Contains("--quick");
+int onlyIndex = Array.IndexOf(args, "--only");
+var only = onlyIndex >= 0 && onlyIndex + 1 < args.Length ? args[onlyIndex + 1].Split(',', StringSplitOptions.TrimEntries) : null;
+bool Runs(string group) => only is null || only.Contains(group);
+int threadsIndex = Array.IndexOf(args, "--threads");
+if (threadsIndex >= 0 && threadsIndex + 1 < args.Length)
+    torch.set_num_threads(int.Parse(args[threadsIndex + 1], CultureInfo.InvariantCulture));
 int outIndex = Array.IndexOf(args, "--out");
 string outFolder = outIndex >= 0 && outIndex + 1 < args.Length ? args[outIndex + 1] : "driftwatch-benchmarks";
 if (args.Any(a => a is "-h" or "--help"))
 {
-    Console.WriteLine("Usage: dotnet run --project tests/DriftWatch.Benchmarks -c Release -- [--quick] [--out FOLDER]");
-    Console.WriteLine("Measures IG against a bare forward+backward pass, monitor overhead, evaluations to 1% completeness,");
-    Console.WriteLine("store write/read costs and detector cost as history grows; prints a table and writes figures.csv and figures.json.");
+    Console.WriteLine("Usage: dotnet run --project tests/DriftWatch.Benchmarks -c Release -- [--quick] [--out FOLDER] [--only 1,2,2b,3,4,5,6] [--threads N]");
+    Console.WriteLine("Measures IG against a bare forward+backward pass, monitor overhead (in line and in the background), evaluations to 1% completeness,");
+    Console.WriteLine("store write/read costs, report time and peak memory, and detector cost as history grows; prints a table and writes figures.csv, figures.json and figures.md.");
+    return 0;
+}
+if (args.Length >= 2 && args[0] == "--child-cli")
+{
+    // Figure 5's child: one CLI command in a fresh process, then its time, peak working set and managed allocation.
+    var clock = System.Diagnostics.Stopwatch.StartNew();
+    int code = DriftWatch.Cli.CliApp.Run(args[1..], TextWriter.Null, Console.Error);
+    double seconds = clock.Elapsed.TotalSeconds;
+    using var self = System.Diagnostics.Process.GetCurrentProcess();
+    self.Refresh();
+    Console.WriteLine(Invariant($"{code} {seconds:R} {self.PeakWorkingSet64} {GC.GetTotalAllocatedBytes(precise: true)}"));
     return 0;
 }
 Directory.CreateDirectory(outFolder);
@@ -42,184 +59,297 @@ double rowsPerSecond = Train(demo, scenario, epochs: quick ? 3 : 6);
 demo.eval();
 
 // 1. IG throughput against the floor: a bare forward+backward pass over the same expanded rows.
-Console.WriteLine("1. Integrated Gradients against a bare forward+backward pass (256 rows × 32 steps)");
-using var wide = new WideNet();
-foreach (var (name, model, rows) in new (string, IWatchedModel, ProbeRows)[]
+if (Runs("1"))
 {
-    ("demo model", demo, scenario.Validation.Rows),
-    (Invariant($"wide model ({wide.ParameterCount / 1e6:F2} M parameters)"), wide, RandomRows(WideNet.Inputs, 512)),
-})
-{
-    using var scope = torch.NewDisposeScope();
-    var features = EncodeRows(model, rows, 256);
-    var input = new AttributionInput(f => model.Score(f).squeeze(1), features, torch.zeros(features.shape[1]), 8192);
-    var ig = new IntegratedGradients(32);
-    var expanded = features.repeat_interleave(32, 0).detach();
-    var frozen = model.Module.parameters().ToList();
-    frozen.ForEach(p => p.requires_grad = false);
-    var times = Measure.Interleaved(repeats,
-        () => ig.Attribute(input),
-        () =>
+    Console.WriteLine("1. Integrated Gradients against a bare forward+backward pass (256 rows × 32 steps)");
+    using var wide = new WideNet();
+    foreach (var (name, model, rows) in new (string, IWatchedModel, ProbeRows)[]
+    {
+        ("demo model", demo, scenario.Validation.Rows),
+        (Invariant($"wide model ({wide.ParameterCount / 1e6:F2} M parameters)"), wide, RandomRows(WideNet.Inputs, 512)),
+    })
+    {
+        using var scope = torch.NewDisposeScope();
+        var features = EncodeRows(model, rows, 256);
+        var input = new AttributionInput(f => model.Score(f).squeeze(1), features, torch.zeros(features.shape[1]), 8192);
+        var ig = new IntegratedGradients(32);
+        var expanded = features.repeat_interleave(32, 0).detach();
+        var frozen = model.Module.parameters().ToList();
+        frozen.ForEach(p => p.requires_grad = false);
+        int igRepeats = quick ? 20 : 60; // a few milliseconds each: many repeats settle the median
+        var times = Measure.Interleaved(igRepeats,
+            () => ig.Attribute(input),
+            () =>
+            {
+                using var inner = torch.NewDisposeScope();
+                var leaf = expanded.detach().requires_grad_(true);
+                var output = model.Score(leaf).squeeze(1);
+                torch.autograd.grad([output.sum()], [leaf]);
+            });
+        Add(new Figure("1", $"IG throughput / floor, {name}", times[1] / times[0], "ratio", "≥ 0.9", Invariant($"median of {igRepeats}: IG {times[0] * 1000:F1} ms, floor {times[1] * 1000:F1} ms")));
+
+        // libtorch's intra-op threads: one per core (libtorch's default) against one, switched between interleaved calls.
+        int threads = torch.get_num_threads(), perCore = Environment.ProcessorCount;
+        void AttributeWith(int n)
         {
-            using var inner = torch.NewDisposeScope();
-            var leaf = expanded.detach().requires_grad_(true);
-            var output = model.Score(leaf).squeeze(1);
-            torch.autograd.grad([output.sum()], [leaf]);
-        });
-    frozen.ForEach(p => p.requires_grad = true);
-    Add(new Figure("1", $"IG throughput / floor, {name}", times[1] / times[0], "ratio", "≥ 0.9", Invariant($"median of {repeats}: IG {times[0] * 1000:F1} ms, floor {times[1] * 1000:F1} ms")));
+            torch.set_num_threads(n);
+            try
+            {
+                ig.Attribute(input);
+            }
+            finally
+            {
+                torch.set_num_threads(threads);
+            }
+        }
+        var byThreads = Measure.Interleaved(igRepeats, () => AttributeWith(perCore), () => AttributeWith(1));
+        frozen.ForEach(p => p.requires_grad = true);
+        Add(new Figure("1", $"IG time, 1 intra-op thread / {perCore}, {name}", byThreads[1] / byThreads[0], "ratio", "", Invariant($"median of {igRepeats}: {byThreads[1] * 1000:F1} ms against {byThreads[0] * 1000:F1} ms")));
+    }
 }
 
 // 2. Monitor overhead at default settings, as training rows and as a share of a 500,000-row epoch.
-Console.WriteLine("2. Monitor overhead at default settings (IG 64 steps, 128 + 128 probe rows, snapshots on)");
-using (var temp = new TempStore())
+if (Runs("2"))
 {
-    // Every setting gets its own monitor; rounds go through all of them in turn so load on a shared machine hits each alike.
-    var settings = new (int PerHalf, int Steps)[] { (128, 64), (64, 64), (256, 64), (128, 16), (128, 32) };
-    var monitors = settings.Select(s => new TrainingMonitor(new MonitorOptions
+    Console.WriteLine("2. Monitor overhead at default settings (IG 64 steps, 128 + 128 probe rows, snapshots on)");
+    using (var temp = new TempStore())
     {
-        StorePath = temp.Path,
-        RunName = Invariant($"overhead-{s.PerHalf}-{s.Steps}"),
-        Schema = demo.Schema,
-        Probe = ProbeSet.Select(scenario.Validation.Rows, scenario.Training.Rows, s.PerHalf, 1),
-        Methods = [new IntegratedGradients(s.Steps)],
-        TrainingValueCounts = scenario.TrainingValueCounts,
-    })).ToList();
-    int epoch = 0;
-    var medians = Measure.Interleaved(repeats, [.. monitors.Select<TrainingMonitor, Action>(m => () => m.EndEpoch(demo, epoch++, new EpochMetrics(0.5, 0.5)))]);
-    monitors.ForEach(m => m.Dispose());
-    double atDefault = medians[0];
-    double epochSeconds = 500_000 / rowsPerSecond;
-    Add(new Figure("2", "monitor per epoch, equivalent training rows", atDefault * rowsPerSecond, "rows", "", Invariant($"monitor {atDefault * 1000:F0} ms; training {rowsPerSecond:F0} rows/s (Adam, batch 32)")));
-    Add(new Figure("2", "monitor / 500,000-row epoch", atDefault / epochSeconds, "ratio", "≤ 0.05", Invariant($"epoch of 500,000 rows ≈ {epochSeconds:F1} s")));
-    for (int i = 1; i < settings.Length; i++)
-        Add(new Figure("2", Invariant($"monitor, {settings[i].PerHalf} + {settings[i].PerHalf} probe rows, IG {settings[i].Steps} steps / default"), medians[i] / atDefault, "ratio", "", Invariant($"{medians[i] * 1000:F0} ms")));
+        // Every setting gets its own monitor; rounds go through all of them in turn so load on a shared machine hits each alike.
+        var settings = new (int PerHalf, int Steps)[] { (128, 64), (64, 64), (256, 64), (128, 16), (128, 32) };
+        var monitors = settings.Select(s => new TrainingMonitor(new MonitorOptions
+        {
+            StorePath = temp.Path,
+            RunName = Invariant($"overhead-{s.PerHalf}-{s.Steps}"),
+            Schema = demo.Schema,
+            Probe = ProbeSet.Select(scenario.Validation.Rows, scenario.Training.Rows, s.PerHalf, 1),
+            Methods = [new IntegratedGradients(s.Steps)],
+            TrainingValueCounts = scenario.TrainingValueCounts,
+        })).ToList();
+        int epoch = 0;
+        var medians = Measure.Interleaved(repeats, [.. monitors.Select<TrainingMonitor, Action>(m => () => m.EndEpoch(demo, epoch++, new EpochMetrics(0.5, 0.5)))]);
+        monitors.ForEach(m => m.Dispose());
+        double atDefault = medians[0];
+        double epochSeconds = 500_000 / rowsPerSecond;
+        Add(new Figure("2", "monitor per epoch, equivalent training rows", atDefault * rowsPerSecond, "rows", "", Invariant($"monitor {atDefault * 1000:F0} ms; training {rowsPerSecond:F0} rows/s (Adam, batch 32)")));
+        Add(new Figure("2", "monitor / 500,000-row epoch", atDefault / epochSeconds, "ratio", "≤ 0.05", Invariant($"epoch of 500,000 rows ≈ {epochSeconds:F1} s")));
+        for (int i = 1; i < settings.Length; i++)
+            Add(new Figure("2", Invariant($"monitor, {settings[i].PerHalf} + {settings[i].PerHalf} probe rows, IG {settings[i].Steps} steps / default"), medians[i] / atDefault, "ratio", "", Invariant($"{medians[i] * 1000:F0} ms")));
+    }
+}
+
+// 2b. Background attribution: wall time per training epoch (train + EndEpoch) with the monitor attributing on a worker
+// thread, against attributing in line, against training alone. Steady state: the time between successive EndEpoch returns.
+if (Runs("2b"))
+{
+    Console.WriteLine("2b. Background attribution: wall time per epoch, train + EndEpoch (default settings)");
+    foreach (int epochRows in new[] { scenario.Training.Rows.Count, 8_000 })
+    {
+        using var temp = new TempStore();
+        var recipe = GreenhouseNetFactory.RecipeFor(demo, scenario);
+        MonitorOptions Options(string name, bool background) => new()
+        {
+            StorePath = temp.Path,
+            RunName = name,
+            Schema = demo.Schema,
+            Probe = ProbeSet.Select(scenario.Validation.Rows, scenario.Training.Rows, 128, 1),
+            TrainingValueCounts = scenario.TrainingValueCounts,
+            Model = recipe,
+            BackgroundAttribution = background,
+        };
+        using var inline = new TrainingMonitor(Options(Invariant($"inline-{epochRows}"), false));
+        using var background = new TrainingMonitor(Options(Invariant($"background-{epochRows}"), true));
+        // A copy of the trained demo model, so the later groups see the same weights as without this one.
+        using var copy = GreenhouseNet.For(scenario);
+        using (var weights = new MemoryStream())
+        {
+            demo.save(new BinaryWriter(weights));
+            weights.Position = 0;
+            copy.load(new BinaryReader(weights));
+        }
+        using var trainer = new EpochTrainer(copy, scenario.Training.Rows);
+        var perEpoch = new[] { new List<double>(), new List<double>(), new List<double>() };
+        int blocks = quick ? 3 : 5, blockEpochs = 4, epoch = 0;
+        for (int b = 0; b <= blocks; b++)
+        {
+            for (int mode = 0; mode < 3; mode++)
+            {
+                var monitor = mode switch { 1 => inline, 2 => background, _ => null };
+                var clock = System.Diagnostics.Stopwatch.StartNew();
+                double last = 0;
+                for (int k = 0; k < blockEpochs; k++)
+                {
+                    trainer.Train(epochRows);
+                    monitor?.EndEpoch(copy, epoch++, new EpochMetrics(0.5, 0.5));
+                    double now = clock.Elapsed.TotalSeconds;
+                    if (b > 0 && k > 0)
+                        perEpoch[mode].Add(now - last); // the first block warms up; the first epoch of a block has nothing to overlap
+                    last = now;
+                }
+                monitor?.WaitForPendingEpoch();
+            }
+        }
+        double trainOnly = Measure.Median(perEpoch[0]), inlineEpoch = Measure.Median(perEpoch[1]), backgroundEpoch = Measure.Median(perEpoch[2]);
+        string how = Invariant($"median per epoch: training alone {trainOnly * 1000:F0} ms, attributing in line {inlineEpoch * 1000:F0} ms, in the background {backgroundEpoch * 1000:F0} ms");
+        Add(new Figure("2", Invariant($"epoch wall time, background / in line, {epochRows:N0}-row epochs"), backgroundEpoch / inlineEpoch, "ratio", "< 1 pays", how));
+        // (The monitor's added time alone, epoch − training, is too small against the training's own spread to divide by.)
+    }
 }
 
 // 3. Model evaluations to reach IG completeness within 1% on the trained demo model.
-Console.WriteLine("3. Evaluations to 1% completeness (mean |Σ IG − (F(x) − F(x′))| / mean |F(x) − F(x′)|), 256 probe rows");
-using (var scope = torch.NewDisposeScope())
+if (Runs("3"))
 {
-    var features = EncodeRows(demo, scenario.Validation.Rows, 256);
-    var input = new AttributionInput(f => demo.Score(f).squeeze(1), features, torch.zeros(features.shape[1]), 8192);
-    double RelativeDelta(ColumnAttribution c) => AttributionMap.FromColumns(c, demo.Schema).RelativeMeanDelta() ?? double.NaN;
-    long fixed64 = new IntegratedGradients(64).Attribute(input).Evaluations;
-    foreach (var rule in Enum.GetValues<QuadratureRule>())
+    Console.WriteLine("3. Evaluations to 1% completeness (mean |Σ IG − (F(x) − F(x′))| / mean |F(x) − F(x′)|), 256 probe rows");
+    using (var scope = torch.NewDisposeScope())
     {
-        long? needed = null;
-        foreach (int n in new[] { 4, 8, 16, 32, 64, 128, 256, 512 })
+        var features = EncodeRows(demo, scenario.Validation.Rows, 256);
+        var input = new AttributionInput(f => demo.Score(f).squeeze(1), features, torch.zeros(features.shape[1]), 8192);
+        double RelativeDelta(ColumnAttribution c) => AttributionMap.FromColumns(c, demo.Schema).RelativeMeanDelta() ?? double.NaN;
+        long fixed64 = new IntegratedGradients(64).Attribute(input).Evaluations;
+        foreach (var rule in Enum.GetValues<QuadratureRule>())
         {
-            var result = new IntegratedGradients(n, rule).Attribute(input);
-            if (RelativeDelta(result) <= 0.01)
+            long? needed = null;
+            foreach (int n in new[] { 4, 8, 16, 32, 64, 128, 256, 512 })
             {
-                needed = result.Evaluations;
-                break;
+                var result = new IntegratedGradients(n, rule).Attribute(input);
+                if (RelativeDelta(result) <= 0.01)
+                {
+                    needed = result.Evaluations;
+                    break;
+                }
             }
+            Add(new Figure("3", $"evaluations to 1%, fixed {rule}", needed ?? double.NaN, "evaluations", "", "smallest power-of-two step count reaching 1%"));
         }
-        Add(new Figure("3", $"evaluations to 1%, fixed {rule}", needed ?? double.NaN, "evaluations", "", "smallest power-of-two step count reaching 1%"));
+        var adaptive = new AdaptiveIntegratedGradients().Attribute(input);
+        Add(new Figure("3", "evaluations to 1%, adaptive", adaptive.Evaluations, "evaluations", "", Invariant($"reached {RelativeDelta(adaptive):P2}")));
+        Add(new Figure("3", "adaptive / fixed 64-step Riemann midpoint", (double)adaptive.Evaluations / fixed64, "ratio", "≤ 0.5", "model evaluations, counted"));
     }
-    var adaptive = new AdaptiveIntegratedGradients().Attribute(input);
-    Add(new Figure("3", "evaluations to 1%, adaptive", adaptive.Evaluations, "evaluations", "", Invariant($"reached {RelativeDelta(adaptive):P2}")));
-    Add(new Figure("3", "adaptive / fixed 64-step Riemann midpoint", (double)adaptive.Evaluations / fixed64, "ratio", "≤ 0.5", "model evaluations, counted"));
 }
 
 // 4. Store: one epoch's writes against its attribution; read-back and `show` over a long, wide run.
-Console.WriteLine("4. Store");
-using (var temp = new TempStore())
+if (Runs("4") || Runs("5"))
 {
-    int epochs = quick ? 100 : 500, features = 200, rows = 256;
-    var schema = FeatureSchema.FromDefinitions(Enumerable.Range(0, features).Select(f => new FeatureDefinition($"feature {f}", FeatureKind.Dense, f, 1)));
-    var labels = Enumerable.Range(0, rows).Select(r => (float)(r % 2)).ToArray();
-    var context = new RunContext(schema, rows / 2, rows / 2, labels, [], new Dictionary<string, IReadOnlyDictionary<long, int>>());
-    var detector = new DivergenceDetector(context, GatePolicy.Default);
-    var random = new Random(3);
-    double writeSeconds = 0;
-    using (var store = RunStore.OpenForWriting(temp.Path))
+    Console.WriteLine("4. Store");
+    using (var temp = new TempStore())
     {
-        var run = store.AddRun(new RunDocument
+        int epochs = 500, features = 200, rows = 256;
+        var schema = FeatureSchema.FromDefinitions(Enumerable.Range(0, features).Select(f => new FeatureDefinition($"feature {f}", FeatureKind.Dense, f, 1)));
+        var labels = Enumerable.Range(0, rows).Select(r => (float)(r % 2)).ToArray();
+        var context = new RunContext(schema, rows / 2, rows / 2, labels, [], new Dictionary<string, IReadOnlyDictionary<long, int>>());
+        var detector = new DivergenceDetector(context, GatePolicy.Default);
+        var random = new Random(3);
+        double writeSeconds = 0;
+        using (var store = RunStore.OpenForWriting(temp.Path))
         {
-            Name = "wide",
-            Features = schema.Features.Select(f => new FeatureDocument { Name = f.Name, Kind = f.Kind.ToString(), FirstColumn = f.FirstColumn, ColumnCount = 1 }).ToList(),
-            HeldOutRows = rows / 2,
-            TrainingRows = rows / 2,
-            ProbeLabels = FloatBytes.FromFloats(labels),
-            Methods = [new MethodDocument { Name = "integrated-gradients" }],
-        });
-        for (int e = 0; e < epochs; e++)
-        {
-            var scores = new float[rows * features];
-            for (int i = 0; i < scores.Length; i++)
-                scores[i] = (float)(random.NextDouble() * 2 - 1) * (1 + i % features / 50f);
-            var map = new AttributionMap(rows, features, scores, new float[rows], new float[rows]);
-            var assessment = detector.Observe(new EpochEvidence(e, new Dictionary<string, double> { ["train_loss"] = 1.0 / (e + 1), ["validation_loss"] = 0.5 }, map, []));
-            var heldOut = HalfImportance.Compute(map, Enumerable.Range(0, rows / 2).ToArray(), labels);
-            var training = HalfImportance.Compute(map, Enumerable.Range(rows / 2, rows / 2).ToArray(), labels);
-            writeSeconds += Measure.Once(() => store.InOneTransaction(() =>
+            var run = store.AddRun(new RunDocument
             {
-                store.WriteMap(new MapDocument
+                Name = "wide",
+                Features = schema.Features.Select(f => new FeatureDocument { Name = f.Name, Kind = f.Kind.ToString(), FirstColumn = f.FirstColumn, ColumnCount = 1 }).ToList(),
+                HeldOutRows = rows / 2,
+                TrainingRows = rows / 2,
+                ProbeHash = "synthetic benchmark run",
+                DenseCount = features,
+                ProbeDense = FloatBytes.FromFloats(new float[rows * features]),
+                ProbeLabels = FloatBytes.FromFloats(labels),
+                Methods = [new MethodDocument { Name = "integrated-gradients", Settings = new() { ["steps"] = "64" } }],
+                Target = "logit",
+                Baseline = "zero",
+                Policy = GatePolicy.Default.ToJson(),
+            });
+            for (int e = 0; e < epochs; e++)
+            {
+                var scores = new float[rows * features];
+                for (int i = 0; i < scores.Length; i++)
+                    scores[i] = (float)(random.NextDouble() * 2 - 1) * (1 + i % features / 50f);
+                var map = new AttributionMap(rows, features, scores, new float[rows], new float[rows]);
+                var assessment = detector.Observe(new EpochEvidence(e, new Dictionary<string, double> { ["train_loss"] = 1.0 / (e + 1), ["validation_loss"] = 0.5 }, map, []));
+                var heldOut = HalfImportance.Compute(map, Enumerable.Range(0, rows / 2).ToArray(), labels);
+                var training = HalfImportance.Compute(map, Enumerable.Range(rows / 2, rows / 2).ToArray(), labels);
+                writeSeconds += Measure.Once(() => store.InOneTransaction(() =>
                 {
-                    RunId = run.Id,
-                    Epoch = e,
-                    Method = "integrated-gradients",
-                    Target = "logit",
-                    Rows = rows,
-                    Features = features,
-                    Scores = FloatBytes.FromFloats(scores),
-                    Deltas = FloatBytes.FromFloats(map.Deltas),
-                    OutputGaps = FloatBytes.FromFloats(map.OutputGaps),
-                    HeldOut = new ImportanceDocument { MeanAbsolute = heldOut.MeanAbsolute, MeanSigned = heldOut.MeanSigned, Share = heldOut.Share, Alignment = heldOut.Alignment },
-                    Training = new ImportanceDocument { MeanAbsolute = training.MeanAbsolute, MeanSigned = training.MeanSigned, Share = training.Share, Alignment = training.Alignment },
-                });
-                store.WriteStatistics(new StatisticsDocument { RunId = run.Id, Epoch = e, Statistics = assessment.Statistics });
-                store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, run.Id));
-                store.WriteEpoch(new EpochDocument { RunId = run.Id, Epoch = e, Metrics = new() { ["train_loss"] = 1.0 / (e + 1), ["validation_loss"] = 0.5 } });
-            }));
+                    store.WriteMap(new MapDocument
+                    {
+                        RunId = run.Id,
+                        Epoch = e,
+                        Method = "integrated-gradients",
+                        Target = "logit",
+                        Rows = rows,
+                        Features = features,
+                        Scores = FloatBytes.FromFloats(scores),
+                        Deltas = FloatBytes.FromFloats(map.Deltas),
+                        OutputGaps = FloatBytes.FromFloats(map.OutputGaps),
+                        HeldOut = new ImportanceDocument { MeanAbsolute = heldOut.MeanAbsolute, MeanSigned = heldOut.MeanSigned, Share = heldOut.Share, Alignment = heldOut.Alignment },
+                        Training = new ImportanceDocument { MeanAbsolute = training.MeanAbsolute, MeanSigned = training.MeanSigned, Share = training.Share, Alignment = training.Alignment },
+                    });
+                    store.WriteStatistics(new StatisticsDocument { RunId = run.Id, Epoch = e, Statistics = assessment.Statistics });
+                    store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, run.Id));
+                    store.WriteEpoch(new EpochDocument { RunId = run.Id, Epoch = e, Metrics = new() { ["train_loss"] = 1.0 / (e + 1), ["validation_loss"] = 0.5 } });
+                }));
+            }
         }
+        double perEpochWrite = writeSeconds / epochs;
+        double attribution;
+        using (var scope = torch.NewDisposeScope())
+        {
+            var features256 = EncodeRows(demo, scenario.Validation.Rows, 256);
+            var input = new AttributionInput(f => demo.Score(f).squeeze(1), features256, torch.zeros(features256.shape[1]), 8192);
+            attribution = Measure.Interleaved(repeats, () => new IntegratedGradients(64).Attribute(input))[0];
+        }
+        Add(new Figure("4", Invariant($"store write per epoch, 256 × {features} map with statistics, verdict, epoch"), perEpochWrite, "s", "", "one transaction each"));
+        Add(new Figure("4", "store write / IG attribution, demo-model epoch", DemoEpochWrite(demo, scenario, repeats) / attribution, "ratio", "well under 1", Invariant($"IG 64 steps over 256 rows on the demo model: {attribution * 1000:F1} ms")));
+        var readAndShow = Measure.Interleaved(
+            quick ? 1 : 3,
+            () =>
+            {
+                using var store = RunStore.OpenForReading(temp.Path);
+                var run = store.GetRun("wide");
+                _ = store.Maps(run.Id).Count;
+            },
+            () => DriftWatch.Cli.CliApp.Run(["show", "wide", "--store", temp.Path], TextWriter.Null, TextWriter.Null));
+        Add(new Figure("4", Invariant($"read back {epochs} epochs × {features} features"), readAndShow[0], "s", "seconds", "every map document, median"));
+        Add(new Figure("4", Invariant($"driftwatch show over {epochs} epochs × {features} features"), readAndShow[1], "s", "seconds", "in process, median"));
+
+        if (Runs("5"))
+        {
+            // 5. The report over the same run, in a child process so its peak working set is its own.
+            Console.WriteLine("5. Report");
+            string reportFolder = System.IO.Path.Combine(System.IO.Path.GetDirectoryName(temp.Path)!, "report");
+            var reports = Enumerable.Range(0, quick ? 1 : 3).Select(_ => RunChild("report", "wide", "--store", temp.Path, "--out", reportFolder)).ToList();
+            var listing = RunChild("runs", "--store", temp.Path);
+            var report = reports.OrderBy(r => r.Seconds).ElementAt(reports.Count / 2);
+            long peak = reports.Max(r => r.PeakBytes);
+            Add(new Figure("5", Invariant($"driftwatch report over {epochs} epochs × {features} features"), report.Seconds, "s", "seconds", Invariant($"median of {reports.Count} child processes, command time in process (startup excluded); HTML + Markdown + charts")));
+            Add(new Figure("5", "report, peak working set of its process", peak / 1e6, "MB", "", Invariant($"Process.PeakWorkingSet64 (VmHWM) of the child; 'driftwatch runs' in the same kind of child peaks at {listing.PeakBytes / 1e6:F0} MB")));
+            Add(new Figure("5", "report, managed bytes allocated", report.AllocatedBytes / 1e6, "MB", "", "GC.GetTotalAllocatedBytes in the child (all allocations, not live memory)"));
+        }
+        Add(new Figure("4", "store size per epoch", new FileInfo(temp.Path).Length / (double)epochs, "bytes", "", Invariant($"{rows} rows × {features} features, float32 scores")));
     }
-    double perEpochWrite = writeSeconds / epochs;
-    double attribution;
-    using (var scope = torch.NewDisposeScope())
-    {
-        var features256 = EncodeRows(demo, scenario.Validation.Rows, 256);
-        var input = new AttributionInput(f => demo.Score(f).squeeze(1), features256, torch.zeros(features256.shape[1]), 8192);
-        attribution = Measure.Interleaved(repeats, () => new IntegratedGradients(64).Attribute(input))[0];
-    }
-    Add(new Figure("4", Invariant($"store write per epoch, 256 × {features} map with statistics, verdict, epoch"), perEpochWrite, "s", "", "one transaction each"));
-    Add(new Figure("4", "store write / IG attribution, demo-model epoch", DemoEpochWrite(demo, scenario, repeats) / attribution, "ratio", "well under 1", Invariant($"IG 64 steps over 256 rows on the demo model: {attribution * 1000:F1} ms")));
-    double readBack = Measure.Once(() =>
-    {
-        using var store = RunStore.OpenForReading(temp.Path);
-        var run = store.GetRun("wide");
-        _ = store.Maps(run.Id).Count;
-    });
-    double show = Measure.Once(() => DriftWatch.Cli.CliApp.Run(["show", "wide", "--store", temp.Path], TextWriter.Null, TextWriter.Null));
-    Add(new Figure("4", Invariant($"read back {epochs} epochs × {features} features"), readBack, "s", "seconds", "every map document"));
-    Add(new Figure("4", Invariant($"driftwatch show over {epochs} epochs × {features} features"), show, "s", "seconds", "in process"));
-    Add(new Figure("4", "store size per epoch", new FileInfo(temp.Path).Length / (double)epochs, "bytes", "", Invariant($"{rows} rows × {features} features, float32 scores")));
 }
 
 // 6. Detector cost per epoch as the history grows (must stay flat: incremental, not quadratic).
-Console.WriteLine("6. Detector per epoch as history grows");
+if (Runs("6"))
 {
-    int epochs = quick ? 100 : 1000, features = quick ? 200 : 1000, rows = 256;
-    var schema = FeatureSchema.FromDefinitions(Enumerable.Range(0, features).Select(f => new FeatureDefinition($"f{f}", FeatureKind.Dense, f, 1)));
-    var labels = Enumerable.Range(0, rows).Select(r => (float)(r % 2)).ToArray();
-    var detector = new DivergenceDetector(new RunContext(schema, rows / 2, rows / 2, labels, [], new Dictionary<string, IReadOnlyDictionary<long, int>>()), GatePolicy.Default);
-    var random = new Random(5);
-    var scores = new float[rows * features];
-    var times = new double[epochs];
-    for (int e = 0; e < epochs; e++)
+    Console.WriteLine("6. Detector per epoch as history grows");
     {
-        for (int i = 0; i < scores.Length; i++)
-            scores[i] = (float)(random.NextDouble() * 2 - 1);
-        var map = new AttributionMap(rows, features, (float[])scores.Clone(), null, null);
-        times[e] = Measure.Once(() => detector.Observe(new EpochEvidence(e, new Dictionary<string, double> { ["validation_loss"] = 0.5 }, map, [])));
+        int epochs = quick ? 100 : 1000, features = quick ? 200 : 1000, rows = 256;
+        var schema = FeatureSchema.FromDefinitions(Enumerable.Range(0, features).Select(f => new FeatureDefinition($"f{f}", FeatureKind.Dense, f, 1)));
+        var labels = Enumerable.Range(0, rows).Select(r => (float)(r % 2)).ToArray();
+        var detector = new DivergenceDetector(new RunContext(schema, rows / 2, rows / 2, labels, [], new Dictionary<string, IReadOnlyDictionary<long, int>>()), GatePolicy.Default);
+        var random = new Random(5);
+        var scores = new float[rows * features];
+        var times = new double[epochs];
+        for (int e = 0; e < epochs; e++)
+        {
+            for (int i = 0; i < scores.Length; i++)
+                scores[i] = (float)(random.NextDouble() * 2 - 1);
+            var map = new AttributionMap(rows, features, (float[])scores.Clone(), null, null);
+            times[e] = Measure.Once(() => detector.Observe(new EpochEvidence(e, new Dictionary<string, double> { ["validation_loss"] = 0.5 }, map, [])));
+        }
+        int window = Math.Max(5, epochs / 10);
+        double early = Measure.Median(times.Skip(1).Take(window).ToArray());
+        double late = Measure.Median(times.Skip(epochs - window).ToArray());
+        Add(new Figure("6", Invariant($"detector per epoch, {features} features, epoch {epochs}"), late, "s", "", "median of the last tenth"));
+        Add(new Figure("6", Invariant($"detector late / early epochs ({epochs} epochs)"), late / early, "ratio", "≈ 1 (flat)", "median of last tenth over median of first tenth"));
     }
-    int window = Math.Max(5, epochs / 10);
-    double early = Measure.Median(times.Skip(1).Take(window).ToArray());
-    double late = Measure.Median(times.Skip(epochs - window).ToArray());
-    Add(new Figure("6", Invariant($"detector per epoch, {features} features, epoch {epochs}"), late, "s", "", "median of the last tenth"));
-    Add(new Figure("6", Invariant($"detector late / early epochs ({epochs} epochs)"), late / early, "ratio", "≈ 1 (flat)", "median of last tenth over median of first tenth"));
 }
 
 // Table and files.
@@ -274,6 +404,26 @@ static double DemoEpochWrite(GreenhouseNet model, GreenhouseScenario scenario, i
     })[0];
 }
 
+// Runs one CLI command in a child copy of this program (--child-cli) and reads its time, peak working set and allocation.
+static (double Seconds, long PeakBytes, long AllocatedBytes) RunChild(params string[] command)
+{
+    string host = Environment.ProcessPath ?? "dotnet";
+    var start = new System.Diagnostics.ProcessStartInfo(host) { RedirectStandardOutput = true, RedirectStandardError = true, UseShellExecute = false };
+    if (Path.GetFileNameWithoutExtension(host) == "dotnet")
+        start.ArgumentList.Add(typeof(Figure).Assembly.Location);
+    start.ArgumentList.Add("--child-cli");
+    foreach (string a in command)
+        start.ArgumentList.Add(a);
+    using var child = System.Diagnostics.Process.Start(start) ?? throw new InvalidOperationException("could not start the child process");
+    var error = child.StandardError.ReadToEndAsync();
+    string output = child.StandardOutput.ReadToEnd();
+    child.WaitForExit();
+    var fields = output.Trim().Split('\n')[^1].Split(' ');
+    if (child.ExitCode != 0 || fields.Length != 4 || fields[0] != "0")
+        throw new InvalidOperationException($"child '{string.Join(' ', command)}' failed: {output} {error.Result}");
+    return (double.Parse(fields[1], CultureInfo.InvariantCulture), long.Parse(fields[2], CultureInfo.InvariantCulture), long.Parse(fields[3], CultureInfo.InvariantCulture));
+}
+
 static string Quote(string value) => value.IndexOfAny([',', '"', '\n']) >= 0 ? "\"" + value.Replace("\"", "\"\"", StringComparison.Ordinal) + "\"" : value;
 
 static ProbeRows RandomRows(int dense, int rows)
@@ -316,6 +466,50 @@ static double Train(GreenhouseNet model, GreenhouseScenario scenario, int epochs
         }));
     }
     return rows.Count / Measure.Median(seconds.Skip(1).ToArray());
+}
+
+/// <summary>Trains the demo model with Adam, batch 32, over a given number of rows per epoch (cycling through the training set).</summary>
+internal sealed class EpochTrainer : IDisposable
+{
+    private readonly GreenhouseNet _model;
+    private readonly Tensor _dense, _categorical, _labels;
+    private readonly optim.Optimizer _optimizer;
+    private int _next;
+
+    public EpochTrainer(GreenhouseNet model, ProbeRows rows)
+    {
+        _model = model;
+        _dense = torch.tensor(rows.Dense, [rows.Count, rows.DenseCount]);
+        _categorical = torch.tensor(rows.Categorical, [rows.Count, rows.CategoricalCount]);
+        _labels = torch.tensor(rows.Labels!);
+        _optimizer = torch.optim.Adam(model.parameters(), 1e-4);
+    }
+
+    public void Train(int rows)
+    {
+        _model.train();
+        long count = _dense.shape[0];
+        for (int done = 0; done < rows; done += 32)
+        {
+            using var scope = torch.NewDisposeScope();
+            long start = _next, end = Math.Min(count, start + 32);
+            _next = end == count ? 0 : (int)end;
+            var batch = TensorIndex.Slice(start, end);
+            var loss = nn.functional.binary_cross_entropy_with_logits(_model.call(_dense[batch], _categorical[batch]).squeeze(1), _labels[batch]);
+            _optimizer.zero_grad();
+            loss.backward();
+            _optimizer.step();
+        }
+        _model.eval();
+    }
+
+    public void Dispose()
+    {
+        _optimizer.Dispose();
+        _dense.Dispose();
+        _categorical.Dispose();
+        _labels.Dispose();
+    }
 }
 
 /// <summary>A store file in a temporary folder, deleted at dispose.</summary>

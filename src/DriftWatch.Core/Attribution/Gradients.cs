@@ -15,6 +15,21 @@ internal static class Gradients
         return torch.autograd.grad([output.sum()], [leaf])[0];
     }
 
+    /// <summary>
+    /// Every row's gradient scaled by its seed, in one backward pass: the gradient of Σ seed·F with respect to
+    /// <paramref name="points"/> (one chunk). <paramref name="seed"/> has one value per row.
+    /// </summary>
+    /// <exception cref="DriftWatchException">The score step did not return one value per row.</exception>
+    public static Tensor Weighted(Func<Tensor, Tensor> score, Tensor points, Tensor seed)
+    {
+        using var enabled = torch.enable_grad();
+        var leaf = points.detach().requires_grad_(true);
+        var output = score(leaf);
+        if (output.numel() != points.shape[0])
+            throw new DriftWatchException($"the score step returned {output.numel()} values for {points.shape[0]} rows; it must return one value per row (choose the output with the attribution target)");
+        return torch.autograd.grad([output], [leaf], [seed.view(output.shape)])[0];
+    }
+
     /// <summary>The score of every row, evaluated in chunks without building a graph.</summary>
     public static float[] Scores(Func<Tensor, Tensor> score, Tensor rows, int chunkRows)
     {
@@ -52,15 +67,15 @@ internal static class Gradients
     public static (float[] Gaps, long Evaluations) OutputGaps(AttributionInput input)
     {
         using var scope = torch.NewDisposeScope();
-        var atInput = Scores(input.Score, input.Inputs.detach(), input.ChunkRows);
+        // The rows and the baseline go through the model together, one call instead of two.
         bool shared = input.Baseline.dim() == 1;
-        var atBaseline = shared
-            ? Scores(input.Score, input.Baseline.detach().unsqueeze(0), 1)
-            : Scores(input.Score, input.BaselineRows().detach(), input.ChunkRows);
-        var gaps = new float[input.Rows];
+        int rows = input.Rows;
+        var both = torch.cat([input.Inputs.detach(), shared ? input.Baseline.detach().unsqueeze(0) : input.BaselineRows().detach()], 0);
+        var scores = Scores(input.Score, both, input.ChunkRows);
+        var gaps = new float[rows];
         for (int r = 0; r < gaps.Length; r++)
-            gaps[r] = atInput[r] - atBaseline[shared ? 0 : r];
-        return (gaps, input.Rows + (shared ? 1L : input.Rows));
+            gaps[r] = scores[r] - scores[rows + (shared ? 0 : r)];
+        return (gaps, rows + (shared ? 1L : rows));
     }
 
     /// <summary>Copies a 2-D float tensor out as a row-major array.</summary>

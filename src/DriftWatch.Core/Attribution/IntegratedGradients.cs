@@ -59,35 +59,42 @@ public sealed class IntegratedGradients : IAttributionMethod
         using var scope = torch.NewDisposeScope();
         int rows = input.Rows, columns = input.Columns;
         var x = input.Inputs.detach();
-        var baseline = input.BaselineRows().detach();
-        var difference = x - baseline;
+        var baseline = input.Baseline.detach();
+        var difference = x - baseline; // a shared baseline [columns] broadcasts
         var nodes = torch.tensor(_quadrature.Nodes, dtype: x.dtype);
         var weights = torch.tensor(_quadrature.Weights, dtype: x.dtype);
-        var integral = torch.zeros(rows, columns, dtype: x.dtype);
 
         if (input.ChunkRows >= Steps)
         {
-            // Whole rows per chunk: the path points are a broadcast [rows, steps, columns] and the weighted sum over
-            // steps is a reduction, with no gather or scatter by index.
-            int rowsPerChunk = input.ChunkRows / Steps;
-            var alphas = nodes.view(1, Steps, 1);
-            var stepWeights = weights.view(1, Steps, 1);
+            // Whole rows per chunk, laid out step-major: the path points are one broadcast multiply-add into
+            // [steps, rows, columns]. The step weights are the backward pass's seed (the gradient of Σ w·F is w·∂F/∂x), so
+            // the weighted sum over steps is one reduction over contiguous slabs of the returned gradient: no separate
+            // weighting pass, no gather or scatter by index.
+            if (rows == 0)
+                return [];
+            int rowsPerChunk = Math.Min(rows, input.ChunkRows / Steps);
+            var alphas = nodes.view(Steps, 1, 1);
+            bool shared = input.Baseline.dim() == 1;
+            var parts = new List<Tensor>();
             for (int start = 0; start < rows; start += rowsPerChunk)
             {
                 using var chunk = torch.NewDisposeScope();
-                int end = Math.Min(rows, start + rowsPerChunk);
-                var from = baseline[start..end].unsqueeze(1);
-                var along = difference[start..end].unsqueeze(1);
-                var points = (from + alphas * along).reshape(-1, columns);
-                var gradient = Gradients.Of(input.Score, points).view(end - start, Steps, columns);
-                integral[start..end] = (gradient * stepWeights).sum(dim: 1);
+                int end = Math.Min(rows, start + rowsPerChunk), count = end - start;
+                var from = shared ? baseline.view(1, 1, columns) : baseline[start..end].unsqueeze(0);
+                var points = torch.addcmul(from, alphas, difference[start..end].unsqueeze(0), 1).view(-1, columns);
+                var seed = weights.view(Steps, 1).expand(Steps, count).reshape(-1);
+                var gradient = Gradients.Weighted(input.Score, points, seed);
+                parts.Add(gradient.view(Steps, count, columns).sum(dim: 0).MoveToOuterDisposeScope());
             }
-            return Gradients.ToArray(integral * difference);
+            var summed = parts.Count == 1 ? parts[0] : torch.cat(parts, 0);
+            return Gradients.ToArray(summed.mul_(difference));
         }
 
         // Fewer expanded rows per chunk than steps: index i = row * steps + step, so a chunk boundary falls inside a
         // row's path and index_add_ accumulates each gradient into its own row.
         long total = (long)rows * Steps;
+        var integral = torch.zeros(rows, columns, dtype: x.dtype);
+        var baselineRows = input.BaselineRows().detach();
         for (long start = 0; start < total; start += input.ChunkRows)
         {
             using var chunk = torch.NewDisposeScope();
@@ -96,7 +103,7 @@ public sealed class IntegratedGradients : IAttributionMethod
             var row = index.div(Steps, rounding_mode: RoundingMode.floor);
             var step = index.remainder(Steps);
             var alpha = nodes.index_select(0, step).unsqueeze(1);
-            var points = baseline.index_select(0, row) + alpha * difference.index_select(0, row);
+            var points = baselineRows.index_select(0, row) + alpha * difference.index_select(0, row);
             var gradient = Gradients.Of(input.Score, points);
             integral.index_add_(0, row, gradient * weights.index_select(0, step).unsqueeze(1), 1);
         }
