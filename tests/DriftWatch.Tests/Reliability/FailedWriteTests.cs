@@ -36,38 +36,21 @@ public sealed class FailedWriteTests
     }
 
     [MountFact]
-    public void ATransactionRefusedByAFullDiskLeavesNothingForAFinalizer()
-    {
-        using var disk = ScratchFileSystem.MountForTest(4 << 20, _output);
-        if (disk is null)
-            return;
-        string path = disk.File("s.litedb");
-        int runId = Prepare(path);
-        string filler = disk.Fill(leave: 128 << 10);
-        int before = OrphanedTransactions.Cleared;
-
-        var refused = Assert.Throws<StoreException>(() => Finalizers.OnAThreadThatEnds(() =>
+    public void ATransactionRefusedByAFullDiskLeavesNothingForAFinalizer() =>
+        RefuseOnAFullDisk("commit", (store, runId) => store.InOneTransaction(() =>
         {
-            using var store = RunStore.OpenForWriting(path);
-            store.InOneTransaction(() =>
-            {
-                store.SaveSnapshot(runId, 1, new MemoryStream(Noise(1 << 20)));
-                store.WriteEpoch(new EpochDocument { RunId = runId, Epoch = 1 });
-            });
-            return 0;
+            store.SaveSnapshot(runId, 1, new MemoryStream(Noise(1 << 20)));
+            store.WriteEpoch(new EpochDocument { RunId = runId, Epoch = 1 });
         }));
-        Finalizers.RunNow(); // before the fix, LiteDB's "discarded page must be writable" ended the test process here
 
-        Assert.Contains("No space left on device", refused.Message);
-        int cleared = OrphanedTransactions.Cleared - before;
-        Assert.True(cleared >= 1, "the refused commit left no transaction to clear; the test no longer reaches the failure");
-        _output.WriteLine($"refused transaction: {refused.Message}; LiteDB transactions cleared: {cleared}");
-        File.Delete(filler);
-        AssertWholeAndWritable(path, runId);
-    }
-
+    // Outside a transaction each chunk of the snapshot is its own LiteDB write (its own engine, opened and closed).
     [MountFact]
-    public void ASingleWriteRefusedByAFullDiskLeavesNothingForAFinalizer()
+    public void ASingleWriteRefusedByAFullDiskLeavesNothingForAFinalizer() =>
+        RefuseOnAFullDisk("write", (store, runId) => store.SaveSnapshot(runId, 1, new MemoryStream(Noise(1 << 20))));
+
+    // Fills a small disk, lets the write fail on a thread that then ends, runs the finalizers (before the fix, LiteDB's
+    // "discarded page must be writable" ended the test process there), and checks the store is whole and writable again.
+    private void RefuseOnAFullDisk(string what, Action<RunStore, int> write)
     {
         using var disk = ScratchFileSystem.MountForTest(4 << 20, _output);
         if (disk is null)
@@ -77,16 +60,18 @@ public sealed class FailedWriteTests
         string filler = disk.Fill(leave: 128 << 10);
         int before = OrphanedTransactions.Cleared;
 
-        // Outside a transaction each chunk of the snapshot is its own LiteDB write (its own engine, opened and closed).
         var refused = Assert.Throws<StoreException>(() => Finalizers.OnAThreadThatEnds(() =>
         {
             using var store = RunStore.OpenForWriting(path);
-            return store.SaveSnapshot(runId, 1, new MemoryStream(Noise(1 << 20)));
+            write(store, runId);
+            return 0;
         }));
         Finalizers.RunNow();
 
         Assert.Contains("No space left on device", refused.Message);
-        Assert.True(OrphanedTransactions.Cleared > before, "the refused write left no transaction to clear; the test no longer reaches the failure");
+        int cleared = OrphanedTransactions.Cleared - before;
+        Assert.True(cleared >= 1, $"the refused {what} left no transaction to clear; the test no longer reaches the failure");
+        _output.WriteLine($"refused {what}: {refused.Message}; LiteDB transactions cleared: {cleared}");
         File.Delete(filler);
         AssertWholeAndWritable(path, runId);
     }
