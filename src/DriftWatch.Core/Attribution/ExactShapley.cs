@@ -48,9 +48,9 @@ public sealed class ExactShapley : IAttributionMethod
             using var chunk = torch.NewDisposeScope();
             long end = Math.Min(total, start + input.ChunkRows);
             var index = torch.arange(start, end, dtype: ScalarType.Int64);
-            var row = index.remainder(rows);
-            var coalition = index.div(rows, rounding_mode: RoundingMode.floor);
-            var on = coalition.unsqueeze(1).div(bitValue.unsqueeze(0), rounding_mode: RoundingMode.floor).remainder(2).eq(1);
+            var row = HeldScalars.Remainder(index, rows);
+            var coalition = HeldScalars.FloorDivide(index, rows);
+            var on = HeldScalars.EqualTo(HeldScalars.Remainder(coalition.unsqueeze(1).div(bitValue.unsqueeze(0), rounding_mode: RoundingMode.floor), 2), 1);
             var points = torch.where(on, x.index_select(0, row), baseline.index_select(0, row));
             input.Score(points).to(ScalarType.Float32).contiguous().data<float>().CopyTo(values, (int)start);
         }

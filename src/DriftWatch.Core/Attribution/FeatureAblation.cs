@@ -72,8 +72,8 @@ public sealed class FeatureAblation : IAttributionMethod
                 using var chunk = torch.NewDisposeScope();
                 long end = Math.Min(total, start + input.ChunkRows);
                 var index = torch.arange(start, end, dtype: ScalarType.Int64);
-                var row = index.remainder(rows);
-                var feature = index.div(rows, rounding_mode: RoundingMode.floor) + first;
+                var row = HeldScalars.Remainder(index, rows);
+                var feature = HeldScalars.Add(HeldScalars.FloorDivide(index, rows), first);
                 var off = owners.unsqueeze(0).eq(feature.unsqueeze(1));
                 var points = torch.where(off, baseline.index_select(0, row), x.index_select(0, row));
                 var values = input.Score(points).to(ScalarType.Float32).contiguous();

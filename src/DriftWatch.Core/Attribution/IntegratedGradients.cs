@@ -81,7 +81,7 @@ public sealed class IntegratedGradients : IAttributionMethod
                 using var chunk = torch.NewDisposeScope();
                 int end = Math.Min(rows, start + rowsPerChunk), count = end - start;
                 var from = shared ? baseline.view(1, 1, columns) : baseline[start..end].unsqueeze(0);
-                var points = torch.addcmul(from, alphas, difference[start..end].unsqueeze(0), 1).view(-1, columns);
+                var points = HeldScalars.AddProduct(from, alphas, difference[start..end].unsqueeze(0)).view(-1, columns);
                 var seed = weights.view(Steps, 1).expand(Steps, count).reshape(-1);
                 var gradient = Gradients.Weighted(input.Score, points, seed);
                 parts.Add(gradient.view(Steps, count, columns).sum(dim: 0).MoveToOuterDisposeScope());
@@ -100,12 +100,12 @@ public sealed class IntegratedGradients : IAttributionMethod
             using var chunk = torch.NewDisposeScope();
             long end = Math.Min(total, start + input.ChunkRows);
             var index = torch.arange(start, end, dtype: ScalarType.Int64);
-            var row = index.div(Steps, rounding_mode: RoundingMode.floor);
-            var step = index.remainder(Steps);
+            var row = HeldScalars.FloorDivide(index, Steps);
+            var step = HeldScalars.Remainder(index, Steps);
             var alpha = nodes.index_select(0, step).unsqueeze(1);
             var points = baselineRows.index_select(0, row) + alpha * difference.index_select(0, row);
             var gradient = Gradients.Of(input.Score, points);
-            integral.index_add_(0, row, gradient * weights.index_select(0, step).unsqueeze(1), 1);
+            HeldScalars.IndexAdd(integral, row, gradient * weights.index_select(0, step).unsqueeze(1));
         }
 
         return Gradients.ToArray(integral * difference);

@@ -60,8 +60,8 @@ public sealed class LayerConductance : ILayerMethod
             using var chunk = torch.NewDisposeScope();
             long end = Math.Min(total, start + input.ChunkRows);
             var index = torch.arange(start, end, dtype: ScalarType.Int64);
-            var row = index.div(points, rounding_mode: RoundingMode.floor);
-            var alpha = (index.remainder(points).to(x.dtype) / Steps).unsqueeze(1);
+            var row = HeldScalars.FloorDivide(index, points);
+            var alpha = HeldScalars.Divide(HeldScalars.Remainder(index, points).to(x.dtype), Steps).unsqueeze(1);
             var path = baseline.index_select(0, row) + alpha * difference.index_select(0, row);
             using var enabled = torch.enable_grad();
             var (score, leaf) = layer.ScoreThroughLeaf(input.Score, path);
@@ -90,7 +90,7 @@ public sealed class LayerConductance : ILayerMethod
         var y = outputs.view(rows, points, units);
         var g = gradients!.view(rows, points, units);
         var change = y.narrow(1, 1, Steps) - y.narrow(1, 0, Steps);
-        var meanGradient = (g.narrow(1, 1, Steps) + g.narrow(1, 0, Steps)) / 2;
+        var meanGradient = HeldScalars.Divide(g.narrow(1, 1, Steps) + g.narrow(1, 0, Steps), 2);
         var conductance = (meanGradient * change).sum(dim: 1);
         var along = scores.view(rows, points);
         var gaps = (along.select(1, Steps) - along.select(1, 0)).contiguous().data<float>().ToArray();

@@ -86,7 +86,7 @@ public static class MapQuality
             {
                 using var chunk = torch.NewDisposeScope();
                 long end = Math.Min((long)rows * k, start + input.ChunkRows);
-                var row = torch.arange(start, end, dtype: ScalarType.Int64).div(k, rounding_mode: RoundingMode.floor);
+                var row = HeldScalars.FloorDivide(torch.arange(start, end, dtype: ScalarType.Int64), k);
                 var points = torch.where(mask[TensorIndex.Slice(start, end)], baseline.index_select(0, row), x.index_select(0, row));
                 input.Score(points).to(ScalarType.Float32).contiguous().data<float>().CopyTo(perturbed, (int)start);
             }

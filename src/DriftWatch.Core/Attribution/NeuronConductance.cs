@@ -68,8 +68,8 @@ public sealed class NeuronConductance : IAttributionMethod
             using var chunk = torch.NewDisposeScope();
             long end = Math.Min(total, start + input.ChunkRows);
             var index = torch.arange(start, end, dtype: ScalarType.Int64);
-            var row = index.div(Steps, rounding_mode: RoundingMode.floor);
-            var step = index.remainder(Steps);
+            var row = HeldScalars.FloorDivide(index, Steps);
+            var step = HeldScalars.Remainder(index, Steps);
             var alpha = nodes.index_select(0, step).unsqueeze(1);
             using var enabled = torch.enable_grad();
             var points = (baseline.index_select(0, row) + alpha * difference.index_select(0, row)).detach().requires_grad_(true);
@@ -80,7 +80,7 @@ public sealed class NeuronConductance : IAttributionMethod
             // ∂F/∂y_j at each point, then the gradient of y_j weighted by it: the chain through this one unit only.
             var outward = torch.autograd.grad([score.sum()], [output], retain_graph: true)[0].reshape(end - start, -1).select(1, Unit).detach();
             var through = torch.autograd.grad([(flat.select(1, Unit) * outward).sum()], [points])[0];
-            integral.index_add_(0, row, through * weights.index_select(0, step).unsqueeze(1), 1);
+            HeldScalars.IndexAdd(integral, row, through * weights.index_select(0, step).unsqueeze(1));
         }
         var scores = Gradients.ToArray(integral * difference);
         return new ColumnAttribution(rows, columns, scores, null, total);

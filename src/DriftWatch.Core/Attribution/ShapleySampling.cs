@@ -119,10 +119,10 @@ public sealed class ShapleySampling : IAttributionMethod
                 using var chunk = torch.NewDisposeScope();
                 long end = Math.Min(total, start + input.ChunkRows);
                 var index = torch.arange(start, end, dtype: ScalarType.Int64);
-                var row = index.remainder(rows);
-                var point = index.div(rows, rounding_mode: RoundingMode.floor);
-                var ordering = point.div(inner, rounding_mode: RoundingMode.floor);
-                var switchedOn = point.remainder(inner) + 1;
+                var row = HeldScalars.Remainder(index, rows);
+                var point = HeldScalars.FloorDivide(index, rows);
+                var ordering = HeldScalars.FloorDivide(point, inner);
+                var switchedOn = HeldScalars.Add(HeldScalars.Remainder(point, inner), 1);
                 var columnPosition = positions.index_select(0, ordering).index_select(1, owners);
                 var on = columnPosition.lt(switchedOn.unsqueeze(1));
                 var points = torch.where(on, x.index_select(0, row), baseline.index_select(0, row));

@@ -93,7 +93,7 @@ public sealed class SmoothGrad : IAttributionMethod
         var x = input.Inputs.detach();
         var sigma = rows == 0
             ? torch.zeros(columns, dtype: x.dtype)
-            : (x.amax([0L]) - x.amin([0L])) * NoiseFraction;
+            : HeldScalars.Multiply(x.amax([0L]) - x.amin([0L]), NoiseFraction);
         var sum = torch.zeros(rows, columns, dtype: x.dtype);
         var normal = new GaussianStream(Seed);
 
@@ -104,12 +104,12 @@ public sealed class SmoothGrad : IAttributionMethod
             using var chunk = torch.NewDisposeScope();
             long end = Math.Min(total, start + input.ChunkRows);
             var index = torch.arange(start, end, dtype: ScalarType.Int64);
-            var row = index.div(Samples, rounding_mode: RoundingMode.floor);
+            var row = HeldScalars.FloorDivide(index, Samples);
             var noise = torch.tensor(normal.Next((int)(end - start) * columns), [end - start, columns]).to(x.dtype);
             var points = x.index_select(0, row) + noise * sigma.unsqueeze(0);
-            sum.index_add_(0, row, Gradients.Of(input.Score, points), 1);
+            HeldScalars.IndexAdd(sum, row, Gradients.Of(input.Score, points));
         }
-        var mean = sum / Samples;
+        var mean = HeldScalars.Divide(sum, Samples);
         var scores = Variant == SmoothGradVariant.Gradient ? mean : mean * (x - input.BaselineRows());
         return new ColumnAttribution(rows, columns, Gradients.ToArray(scores), null, total);
     }
