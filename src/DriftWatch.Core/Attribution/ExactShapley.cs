@@ -52,7 +52,7 @@ public sealed class ExactShapley : IAttributionMethod
             var coalition = HeldScalars.FloorDivide(index, rows);
             var on = HeldScalars.EqualTo(HeldScalars.Remainder(coalition.unsqueeze(1).div(bitValue.unsqueeze(0), rounding_mode: RoundingMode.floor), 2), 1);
             var points = torch.where(on, x.index_select(0, row), baseline.index_select(0, row));
-            input.Score(points).to(ScalarType.Float32).contiguous().data<float>().CopyTo(values, (int)start);
+            Gradients.CopyTo(input.Score(points), values, (int)start);
         }
 
         var weight = new double[players];

@@ -76,8 +76,7 @@ public sealed class FeatureAblation : IAttributionMethod
                 var feature = HeldScalars.Add(HeldScalars.FloorDivide(index, rows), first);
                 var off = owners.unsqueeze(0).eq(feature.unsqueeze(1));
                 var points = torch.where(off, baseline.index_select(0, row), x.index_select(0, row));
-                var values = input.Score(points).to(ScalarType.Float32).contiguous();
-                values.data<float>().CopyTo(ablated, (int)((long)first * rows + start));
+                Gradients.CopyTo(input.Score(points), ablated, (int)((long)first * rows + start));
             }
         }
 

@@ -66,28 +66,24 @@ public sealed class IntegratedGradients : IAttributionMethod
 
         if (input.ChunkRows >= Steps)
         {
-            // Whole rows per chunk, laid out step-major: the path points are one broadcast multiply-add into
-            // [steps, rows, columns]. The step weights are the backward pass's seed (the gradient of Σ w·F is w·∂F/∂x), so
-            // the weighted sum over steps is one reduction over contiguous slabs of the returned gradient: no separate
-            // weighting pass, no gather or scatter by index.
+            // Whole rows per chunk, each row's path inside one chunk; all rows in one when they fit.
             if (rows == 0)
                 return [];
             int rowsPerChunk = Math.Min(rows, input.ChunkRows / Steps);
             var alphas = nodes.view(Steps, 1, 1);
+            var stepWeights = weights.view(1, Steps);
             bool shared = input.Baseline.dim() == 1;
+            if (rowsPerChunk == rows)
+                return Gradients.ToArray(IntegrateRows(input.Score, shared ? baseline : baseline.unsqueeze(0), alphas, stepWeights, difference).mul_(difference));
             var parts = new List<Tensor>();
             for (int start = 0; start < rows; start += rowsPerChunk)
             {
                 using var chunk = torch.NewDisposeScope();
-                int end = Math.Min(rows, start + rowsPerChunk), count = end - start;
-                var from = shared ? baseline.view(1, 1, columns) : baseline[start..end].unsqueeze(0);
-                var points = HeldScalars.AddProduct(from, alphas, difference[start..end].unsqueeze(0)).view(-1, columns);
-                var seed = weights.view(Steps, 1).expand(Steps, count).reshape(-1);
-                var gradient = Gradients.Weighted(input.Score, points, seed);
-                parts.Add(gradient.view(Steps, count, columns).sum(dim: 0).MoveToOuterDisposeScope());
+                int end = Math.Min(rows, start + rowsPerChunk);
+                var from = shared ? baseline : baseline[start..end].unsqueeze(0);
+                parts.Add(IntegrateRows(input.Score, from, alphas, stepWeights, difference[start..end]).MoveToOuterDisposeScope());
             }
-            var summed = parts.Count == 1 ? parts[0] : torch.cat(parts, 0);
-            return Gradients.ToArray(summed.mul_(difference));
+            return Gradients.ToArray(torch.cat(parts, 0).mul_(difference));
         }
 
         // Fewer expanded rows per chunk than steps: index i = row * steps + step, so a chunk boundary falls inside a
@@ -109,5 +105,18 @@ public sealed class IntegratedGradients : IAttributionMethod
         }
 
         return Gradients.ToArray(integral * difference);
+    }
+
+    // Σ_k w_k ∂F/∂x at x′ + α_k (x − x′) for a block of rows, [rows, columns]. The path points are one broadcast
+    // multiply-add laid out step-major ([steps, rows, columns]); the backward pass is the plain one a training step
+    // makes, and the weighted sum over steps is one matrix product of the step weights with the gradient seen as
+    // [steps, rows × columns]: contiguous reads, no gather or scatter by index.
+    private static Tensor IntegrateRows(Func<Tensor, Tensor> score, Tensor from, Tensor alphas, Tensor stepWeights, Tensor difference)
+    {
+        int steps = (int)alphas.shape[0];
+        long rows = difference.shape[0], columns = difference.shape[1];
+        var points = HeldScalars.AddProduct(from, alphas, difference.unsqueeze(0)).view(-1, columns);
+        var gradient = Gradients.OfRows(score, points);
+        return torch.mm(stepWeights, gradient.view(steps, -1)).view(rows, columns);
     }
 }

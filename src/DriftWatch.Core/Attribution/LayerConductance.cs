@@ -93,7 +93,7 @@ public sealed class LayerConductance : ILayerMethod
         var meanGradient = HeldScalars.Divide(g.narrow(1, 1, Steps) + g.narrow(1, 0, Steps), 2);
         var conductance = (meanGradient * change).sum(dim: 1);
         var along = scores.view(rows, points);
-        var gaps = (along.select(1, Steps) - along.select(1, 0)).contiguous().data<float>().ToArray();
+        var gaps = Gradients.ToArray(along.select(1, Steps) - along.select(1, 0));
         return new ColumnAttribution(rows, (int)units, Gradients.ToArray(conductance), gaps, total);
     }
 }

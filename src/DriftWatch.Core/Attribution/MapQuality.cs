@@ -88,7 +88,7 @@ public static class MapQuality
                 long end = Math.Min((long)rows * k, start + input.ChunkRows);
                 var row = HeldScalars.FloorDivide(torch.arange(start, end, dtype: ScalarType.Int64), k);
                 var points = torch.where(mask[TensorIndex.Slice(start, end)], baseline.index_select(0, row), x.index_select(0, row));
-                input.Score(points).to(ScalarType.Float32).contiguous().data<float>().CopyTo(perturbed, (int)start);
+                Gradients.CopyTo(input.Score(points), perturbed, (int)start);
             }
         }
 

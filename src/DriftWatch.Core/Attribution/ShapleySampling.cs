@@ -126,7 +126,7 @@ public sealed class ShapleySampling : IAttributionMethod
                 var columnPosition = positions.index_select(0, ordering).index_select(1, owners);
                 var on = columnPosition.lt(switchedOn.unsqueeze(1));
                 var points = torch.where(on, x.index_select(0, row), baseline.index_select(0, row));
-                input.Score(points).to(ScalarType.Float32).contiguous().data<float>().CopyTo(values, (int)start);
+                Gradients.CopyTo(input.Score(points), values, (int)start);
             }
         }
 

@@ -1,4 +1,5 @@
 using System.Globalization;
+using DriftWatch.Attribution;
 using DriftWatch.Model;
 using DriftWatch.Probing;
 using TorchSharp;
@@ -267,7 +268,7 @@ public static class PruningWhatIf
                     var features = model.Encode(dense[start..end], categorical[start..end]);
                     var score = target.Select(model.Score(features));
                     var probability = target.Kind == TargetKind.Logit ? score.sigmoid() : score;
-                    probability.to(ScalarType.Float32).contiguous().data<float>().CopyTo(result, start);
+                    Gradients.CopyTo(probability, result, start);
                 }
                 return 0;
             });

@@ -86,9 +86,18 @@ public sealed class IntegratedGradientsTests
 
         var whole = method.Attribute(new AttributionInput(Score, features, torch.zeros(7), 1 << 20));
         var chunked = method.Attribute(new AttributionInput(Score, features, torch.zeros(7), 5)); // 5 does not divide 16 steps: chunks cut rows' paths
+        var blocks = method.Attribute(new AttributionInput(Score, features, torch.zeros(7), 80)); // whole rows, 5 a chunk, the last chunk short
+        var rowBaselines = torch.zeros(37, 7);
+        var wholeOwnBaselines = method.Attribute(new AttributionInput(Score, features, rowBaselines, 1 << 20));
+        var blocksOwnBaselines = method.Attribute(new AttributionInput(Score, features, rowBaselines, 80));
 
         for (int i = 0; i < whole.Scores.Length; i++)
+        {
             Assert.Equal(whole.Scores[i], chunked.Scores[i], 1e-5);
+            Assert.Equal(whole.Scores[i], blocks.Scores[i], 1e-5);
+            Assert.Equal(whole.Scores[i], wholeOwnBaselines.Scores[i], 1e-5);
+            Assert.Equal(whole.Scores[i], blocksOwnBaselines.Scores[i], 1e-5);
+        }
         Assert.Equal(37L * 16 + 37 + 1, whole.Evaluations); // steps × rows, F(x) per row, F(x′) once for the shared baseline
     }
 
