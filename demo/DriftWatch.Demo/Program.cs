@@ -2,6 +2,8 @@ using DriftWatch;
 using DriftWatch.Demo;
 
 // The greenhouse demo: see DemoOptions.Usage (--help) for the options and exit codes.
+// Keep freed native memory for reuse between attribution batches, as a training script embedding the monitor may (see NativeHeap).
+DriftWatch.Attribution.NativeHeap.HoldFreedMemory();
 try
 {
     if (args.Length > 0 && args[0] == "evaluate")

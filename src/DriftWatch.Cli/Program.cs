@@ -4,5 +4,10 @@ namespace DriftWatch.Cli;
 public static class Program
 {
     /// <summary>Runs the command line and returns one of <see cref="ExitCodes"/>.</summary>
-    public static int Main(string[] args) => CliApp.Run(args, Console.Out, Console.Error);
+    public static int Main(string[] args)
+    {
+        // Our own process: keep freed native memory for reuse between attribution batches (see NativeHeap).
+        DriftWatch.Attribution.NativeHeap.HoldFreedMemory();
+        return CliApp.Run(args, Console.Out, Console.Error);
+    }
 }

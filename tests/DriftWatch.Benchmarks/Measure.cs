@@ -23,6 +23,33 @@ internal static class Measure
         return samples.Select(Median).ToArray();
     }
 
+    /// <summary>
+    /// Two actions run alternately, <paramref name="repeats"/> rounds after one warm-up each: the median seconds of each
+    /// and the median over rounds of the ratio <paramref name="second"/> / <paramref name="first"/>. A ratio taken within
+    /// one round is less disturbed by slow drift on a shared machine than a ratio of two medians.
+    /// </summary>
+    public static PairedTimes Paired(int repeats, Action first, Action second)
+    {
+        first();
+        second();
+        var a = new List<double>();
+        var b = new List<double>();
+        var ratios = new List<double>();
+        for (int r = 0; r < repeats; r++)
+        {
+            var clock = Stopwatch.StartNew();
+            first();
+            double ta = clock.Elapsed.TotalSeconds;
+            clock.Restart();
+            second();
+            double tb = clock.Elapsed.TotalSeconds;
+            a.Add(ta);
+            b.Add(tb);
+            ratios.Add(tb / ta);
+        }
+        return new PairedTimes(Median(a), Median(b), Median(ratios));
+    }
+
     /// <summary>Seconds one action takes, once.</summary>
     public static double Once(Action action)
     {
@@ -40,6 +67,12 @@ internal static class Measure
             : (sorted[sorted.Length / 2 - 1] + sorted[sorted.Length / 2]) / 2;
     }
 }
+
+/// <summary>Medians of two alternating actions and of their per-round ratio.</summary>
+/// <param name="First">Median seconds of the first action.</param>
+/// <param name="Second">Median seconds of the second action.</param>
+/// <param name="Ratio">Median over rounds of second / first.</param>
+internal sealed record PairedTimes(double First, double Second, double Ratio);
 
 /// <summary>One figure of the suite.</summary>
 /// <param name="Group">Which benchmark (1–6).</param>
