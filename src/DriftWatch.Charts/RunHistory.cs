@@ -158,8 +158,8 @@ public sealed class RunHistory
         ArgumentNullException.ThrowIfNull(store);
         ArgumentNullException.ThrowIfNull(features);
         var indexes = FeatureIndexes(_run, FeatureNames, features);
-        var maps = FirstMapPerEpoch(store, _run, Method, FeatureNames.Length);
-        return new RunHistory(_run, Method, FeatureNames, Epochs, [.. indexes.Select(f => RowsOf(_run, maps, f, FeatureNames[f]))]);
+        var (_, columns) = FirstMapPerEpoch(store, _run, Method, FeatureNames.Length, indexes);
+        return new RunHistory(_run, Method, FeatureNames, Epochs, [.. indexes.Select((f, i) => RowsOf(columns, i, f, FeatureNames[f]))]);
     }
 
     /// <summary>The index of the feature called <paramref name="name"/>, or −1.</summary>
@@ -198,13 +198,13 @@ public sealed class RunHistory
         }
 
         var features = run.Features.Select(f => f.Name).ToImmutableArray();
-        var maps = FirstMapPerEpoch(store, run, method, features.Length);
+        var rowFeatures = FeatureIndexes(run, features, rowsOf ?? []);
+        var (maps, columns) = FirstMapPerEpoch(store, run, method, features.Length, rowFeatures);
         var verdicts = store.Verdicts(run.Id).ToDictionary(v => v.Epoch);
         // Statistics come from the detector, which reads the primary method's maps only.
         var statistics = method == RunReview.PrimaryMethod(run)
             ? store.StatisticsOf(run.Id).Where(s => s.Statistics is not null && s.Statistics.ShareHeldOut.Length == features.Length).ToDictionary(s => s.Epoch, s => s.Statistics!)
             : [];
-        var rowFeatures = FeatureIndexes(run, features, rowsOf ?? []);
 
         var epochs = store.Epochs(run.Id).Select(e =>
         {
@@ -230,25 +230,52 @@ public sealed class RunHistory
                 Findings = verdict is null ? [] : FindingsOf(store, run, verdict),
             };
         }).ToImmutableArray();
-        var rows = rowFeatures.Select(f => RowsOf(run, maps, f, features[f])).ToImmutableArray();
+        var rows = rowFeatures.Select((f, i) => RowsOf(columns, i, f, features[f])).ToImmutableArray();
         return new RunHistory(run, method, features, epochs, rows);
     }
 
-    private static Dictionary<int, MapDocument> FirstMapPerEpoch(RunStore store, RunDocument run, string method, int features)
+    // The first stored map of each epoch, read one at a time and kept without its per-row scores; only the columns of
+    // the features in rowFeatures are copied out, split into the halves (held-out rows are stored first).
+    private static (Dictionary<int, MapDocument> Maps, SortedDictionary<int, (float[] HeldOut, float[] Training)[]> Columns) FirstMapPerEpoch(
+        RunStore store, RunDocument run, string method, int features, int[] rowFeatures)
     {
         var maps = new Dictionary<int, MapDocument>();
-        foreach (var map in store.Maps(run.Id, method))
+        var columns = new SortedDictionary<int, (float[] HeldOut, float[] Training)[]>();
+        store.VisitMaps(run.Id, method, map =>
         {
             // One target per run today; should a run hold several, the first stored one is read.
             if (maps.ContainsKey(map.Epoch))
-                continue;
+                return;
             CheckWidth(store, run, map.Epoch, "held-out", map.HeldOut.Share, features);
             CheckWidth(store, run, map.Epoch, "training", map.Training.Share, features);
             if (map.Features != features || map.Scores.Length < (long)map.Rows * map.Features * sizeof(float))
                 throw new StoreException($"store '{store.Path}': map of run '{DisplayText.Clean(run.Name)}' at epoch {map.Epoch} has {map.Features} features and {map.Scores.Length} bytes of scores for {map.Rows} rows; the run has {features} features; the store is damaged");
-            maps[map.Epoch] = map;
-        }
-        return maps;
+            if (rowFeatures.Length > 0)
+                columns[map.Epoch] = Columns(run, map, rowFeatures);
+            maps[map.Epoch] = map with { Scores = [], Deltas = null, OutputGaps = null };
+        });
+        return (maps, columns);
+    }
+
+    private static (float[] HeldOut, float[] Training)[] Columns(RunDocument run, MapDocument map, int[] rowFeatures)
+    {
+        var scores = FloatBytes.ToFloats(map.Scores);
+        int rows = map.Rows;
+        int heldOut = Math.Min(run.HeldOutRows, rows);
+        return rowFeatures.Select(feature =>
+        {
+            var heldOutScores = new float[heldOut];
+            var trainingScores = new float[rows - heldOut];
+            for (int r = 0; r < rows; r++)
+            {
+                float value = scores[r * map.Features + feature];
+                if (r < heldOut)
+                    heldOutScores[r] = value;
+                else
+                    trainingScores[r - heldOut] = value;
+            }
+            return (heldOutScores, trainingScores);
+        }).ToArray();
     }
 
     private static int[] FeatureIndexes(RunDocument run, ImmutableArray<string> features, IEnumerable<string> names) =>
@@ -260,28 +287,9 @@ public sealed class RunHistory
                 : throw new DriftWatchException($"run '{DisplayText.Clean(run.Name)}' has no feature '{DisplayText.Clean(name)}'; its features: {DisplayText.Clean(string.Join(", ", features), 400)}");
         }).ToArray();
 
-    // One feature's column of every attributed epoch's map, split into the halves (held-out rows are stored first).
-    private static FeatureRows RowsOf(RunDocument run, Dictionary<int, MapDocument> maps, int feature, string name)
-    {
-        var epochs = maps.Values.OrderBy(m => m.Epoch).Select(map =>
-        {
-            var scores = FloatBytes.ToFloats(map.Scores);
-            int rows = map.Rows;
-            int heldOut = Math.Min(run.HeldOutRows, rows);
-            var heldOutScores = new float[heldOut];
-            var trainingScores = new float[rows - heldOut];
-            for (int r = 0; r < rows; r++)
-            {
-                float value = scores[r * map.Features + feature];
-                if (r < heldOut)
-                    heldOutScores[r] = value;
-                else
-                    trainingScores[r - heldOut] = value;
-            }
-            return new EpochRows(map.Epoch, [.. heldOutScores], [.. trainingScores]);
-        }).ToImmutableArray();
-        return new FeatureRows(name, feature, epochs);
-    }
+    // One feature's column of every attributed epoch's map, in epoch order.
+    private static FeatureRows RowsOf(SortedDictionary<int, (float[] HeldOut, float[] Training)[]> columns, int position, int feature, string name) =>
+        new(name, feature, [.. columns.Select(c => new EpochRows(c.Key, [.. c.Value[position].HeldOut], [.. c.Value[position].Training]))]);
 
     // Each finding carries its own severity: a Caution beside a Halt must not read as a Halt.
     private static ImmutableArray<string> Reasons(VerdictDocument verdict) =>

@@ -48,7 +48,7 @@ internal static class ShowCommand
                 path = runStore.Path;
                 var document = runStore.GetRun(history.RunName);
                 quality = runStore.Quality(document.Id, history.Method);
-                maps = runStore.Maps(document.Id);
+                maps = runStore.MapAggregates(document.Id);
                 reattributed = runStore.MapMethods(document.Id).Where(m => !history.Methods.Contains(m)).ToList();
                 trust = RunTrust.Load(runStore, document);
             }

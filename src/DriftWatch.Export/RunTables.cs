@@ -88,7 +88,7 @@ public sealed class RunTables
             .ToDictionary(s => s.Epoch, s => s.Statistics!);
 
         var importance = new List<ImportanceRow>();
-        foreach (var map in store.Maps(run.Id).OrderBy(m => m.Epoch).ThenBy(m => m.Method, StringComparer.Ordinal).ThenBy(m => m.Target, StringComparer.Ordinal))
+        foreach (var map in store.MapAggregates(run.Id).OrderBy(m => m.Epoch).ThenBy(m => m.Method, StringComparer.Ordinal).ThenBy(m => m.Target, StringComparer.Ordinal))
         {
             var stats = map.Method == primary ? statistics.GetValueOrDefault(map.Epoch) : null;
             AddHalf(importance, run, store, map, "held-out", map.HeldOut, features, stats?.ShareHeldOutWidth);

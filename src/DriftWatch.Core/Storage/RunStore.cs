@@ -319,14 +319,45 @@ public sealed class RunStore : IDisposable
     /// <summary>The maps of a run's complete epochs, in epoch order; optionally one method only.</summary>
     public IReadOnlyList<MapDocument> Maps(int runId, string? method = null)
     {
-        return Guard(() =>
+        var maps = new List<MapDocument>();
+        VisitMaps(runId, method, maps.Add);
+        return maps.OrderBy(m => m.Epoch).ThenBy(m => m.Method).ToList();
+    }
+
+    /// <summary>
+    /// The maps of a run's complete epochs without their per-row arrays, in epoch order; optionally one method only.
+    /// </summary>
+    /// <remarks>
+    /// <see cref="MapDocument.Scores"/> is empty and <see cref="MapDocument.Deltas"/> and <see cref="MapDocument.OutputGaps"/>
+    /// are null; the per-half aggregates, settings and costs are kept. Each map is checked whole and then let go, so a
+    /// run of 500 epochs × 200 features is read in a small fraction of the memory <see cref="Maps"/> needs.
+    /// </remarks>
+    public IReadOnlyList<MapDocument> MapAggregates(int runId, string? method = null)
+    {
+        var maps = new List<MapDocument>();
+        VisitMaps(runId, method, m => maps.Add(m with { Scores = [], Deltas = null, OutputGaps = null }));
+        return maps.OrderBy(m => m.Epoch).ThenBy(m => m.Method).ToList();
+    }
+
+    /// <summary>
+    /// Hands each checked map of a run's complete epochs to <paramref name="visit"/>, one at a time and in stored order,
+    /// without holding them all; optionally one method only.
+    /// </summary>
+    public void VisitMaps(int runId, string? method, Action<MapDocument> visit)
+    {
+        ArgumentNullException.ThrowIfNull(visit);
+        Guard(() =>
         {
             var complete = EpochsCollection.Find(e => e.RunId == runId).Select(e => e.Epoch).ToHashSet();
             var maps = method is null
                 ? MapsCollection.Find(m => m.RunId == runId)
                 : MapsCollection.Find(m => m.RunId == runId && m.Method == method);
             var run = RunsCollection.FindById(runId);
-            return maps.Where(m => complete.Contains(m.Epoch)).Select(m => StoreChecks.Map(Path, m, run)).OrderBy(m => m.Epoch).ThenBy(m => m.Method).ToList();
+            foreach (var map in maps)
+            {
+                if (complete.Contains(map.Epoch))
+                    visit(StoreChecks.Map(Path, map, run));
+            }
         });
     }
 

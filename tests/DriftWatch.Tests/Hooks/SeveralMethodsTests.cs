@@ -53,6 +53,21 @@ public sealed class SeveralMethodsTests
         var maps = store.Maps(run.Id);
         Assert.Equal(2 * methods.Length, maps.Count);
         Assert.All(maps, m => Assert.Equal(methods.Single(x => x.Name == m.Method).Settings, m.Settings));
+        // The aggregates-only read gives the same maps in the same order, without their per-row arrays.
+        var aggregates = store.MapAggregates(run.Id);
+        Assert.Equal(maps.Select(m => (m.Epoch, m.Method)), aggregates.Select(m => (m.Epoch, m.Method)));
+        for (int i = 0; i < maps.Count; i++)
+        {
+            Assert.NotEmpty(maps[i].Scores);
+            Assert.Empty(aggregates[i].Scores);
+            Assert.Null(aggregates[i].Deltas);
+            Assert.Null(aggregates[i].OutputGaps);
+            Assert.Equal(maps[i].HeldOut.Share, aggregates[i].HeldOut.Share);
+            Assert.Equal(maps[i].Training.MeanAbsolute, aggregates[i].Training.MeanAbsolute);
+            Assert.Equal(maps[i].Settings, aggregates[i].Settings);
+        }
+        Assert.All(store.MapAggregates(run.Id, methods[0].Name), m => Assert.Equal(methods[0].Name, m.Method));
+        Assert.Equal(2, store.MapAggregates(run.Id, methods[0].Name).Count);
         var quality = store.Quality(run.Id);
         Assert.Equal(2 * methods.Length, quality.Count);
         foreach (var q in quality)
