@@ -30,8 +30,8 @@ public sealed record MonitorOptions
     /// <summary>The baseline of path and difference methods. Default: zero.</summary>
     public Baseline Baseline { get; init; } = Baseline.Zero;
 
-    /// <summary>At most this many expanded rows go through the model at once. Default 8192.</summary>
-    public int ChunkRows { get; init; } = 8192;
+    /// <summary>At most this many expanded rows go through the model at once. Default <see cref="AttributionInput.DefaultChunkRows"/> (2048).</summary>
+    public int ChunkRows { get; init; } = AttributionInput.DefaultChunkRows;
 
     /// <summary>Attribute every k-th epoch (metrics and snapshots are still kept every epoch). Default 1.</summary>
     public int AttributeEvery { get; init; } = 1;

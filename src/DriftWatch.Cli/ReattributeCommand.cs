@@ -44,7 +44,7 @@ internal static class ReattributeCommand
             Description = "The .dll holding the run's model factory, when it is not part of DriftWatch; the only outside code this command runs.",
             HelpName = "PATH",
         };
-        var chunk = CommonOptions.Bounded("--chunk-rows", "At most this many expanded rows go through the model at once (1 to 1000000).", 8192, 1, 1_000_000);
+        var chunk = CommonOptions.Bounded("--chunk-rows", "At most this many expanded rows go through the model at once (1 to 1000000).", AttributionInput.DefaultChunkRows, 1, 1_000_000);
         var quality = new Option<bool>("--quality")
         {
             Description = "Also measure the new maps' infidelity and max-sensitivity (Yeh et al. 2019) on 32 probe rows; costs about as much again.",

@@ -24,14 +24,19 @@ internal static class Measure
     }
 
     /// <summary>
-    /// Two actions run alternately, <paramref name="repeats"/> rounds after one warm-up each: the median seconds of each
+    /// Two actions run alternately, <paramref name="repeats"/> rounds after warm-up rounds: the median seconds of each
     /// and the median over rounds of the ratio <paramref name="second"/> / <paramref name="first"/>. A ratio taken within
     /// one round is less disturbed by slow drift on a shared machine than a ratio of two medians.
     /// </summary>
     public static PairedTimes Paired(int repeats, Action first, Action second)
     {
-        first();
-        second();
+        // Warm-up rounds, a tenth of the measured ones: the runtime recompiles hot methods after their first few dozen
+        // calls, and the allocator settles on the sizes it is asked for.
+        for (int w = 0; w < Math.Max(1, repeats / 10); w++)
+        {
+            first();
+            second();
+        }
         var a = new List<double>();
         var b = new List<double>();
         var ratios = new List<double>();

@@ -78,12 +78,13 @@ if (Runs("1"))
         {
             using var scope = torch.NewDisposeScope();
             var features = EncodeRows(model, rows, 256);
-            var input = new AttributionInput(f => model.Score(f).squeeze(1), features, torch.zeros(features.shape[1]), 8192);
+            var input = new AttributionInput(f => model.Score(f).squeeze(1), features, torch.zeros(features.shape[1]), AttributionInput.DefaultChunkRows);
             var ig = new IntegratedGradients(32);
             var expanded = features.repeat_interleave(32, 0).detach();
             var frozen = model.Module.parameters().ToList();
             frozen.ForEach(p => p.requires_grad = false);
-            int igRepeats = quick ? 30 : 100; // a few milliseconds each: many repeats settle the median
+            // The demo model's IG takes a few milliseconds, where a shared machine's noise is largest: many rounds.
+            int igRepeats = model == (IWatchedModel)demo ? (quick ? 100 : 400) : (quick ? 10 : 40);
             var times = Measure.Paired(igRepeats,
                 () => ig.Attribute(input),
                 () =>
@@ -96,6 +97,23 @@ if (Runs("1"))
             Add(new Figure("1", $"IG throughput / floor, {name}, {heap}", times.Ratio, "ratio", "≥ 0.9", Invariant($"median over {igRepeats} rounds of floor / IG; medians IG {times.First * 1000:F2} ms, floor {times.Second * 1000:F2} ms")));
             if (held)
             {
+                // IG works in blocks of DefaultChunkRows expanded rows; a floor cut into the same blocks shows what is
+                // IG's own overhead and what the blocks themselves save.
+                int block = input.ChunkRows / 32 * 32;
+                var blocked = Measure.Paired(igRepeats,
+                    () => ig.Attribute(input),
+                    () =>
+                    {
+                        for (long start = 0; start < expanded.shape[0]; start += block)
+                        {
+                            using var inner = torch.NewDisposeScope();
+                            var leaf = expanded[TensorIndex.Slice(start, Math.Min(expanded.shape[0], start + block))].detach().requires_grad_(true);
+                            var output = model.Score(leaf).squeeze(1);
+                            torch.autograd.grad([output.sum()], [leaf]);
+                        }
+                    });
+                Add(new Figure("1", Invariant($"IG throughput / floor cut into IG's {block}-row blocks, {name}"), blocked.Ratio, "ratio", "", Invariant($"median over {igRepeats} rounds; medians IG {blocked.First * 1000:F2} ms, blocked floor {blocked.Second * 1000:F2} ms")));
+
                 // libtorch's intra-op threads: one per core (libtorch's default) against one, switched between alternating calls.
                 int threads = torch.get_num_threads(), perCore = Environment.ProcessorCount;
                 void AttributeWith(int n)

@@ -9,6 +9,14 @@ namespace DriftWatch.Attribution;
 /// <param name="ChunkRows">At most this many (expanded) rows go through the model at once, so memory stays bounded.</param>
 public sealed record AttributionInput(Func<Tensor, Tensor> Score, Tensor Inputs, Tensor Baseline, int ChunkRows)
 {
+    /// <summary>The chunk size the monitor and <c>reattribute</c> use unless told otherwise: 2048 expanded rows.</summary>
+    /// <remarks>
+    /// Blocks of about two thousand rows keep a small model's activations in the processor's caches between the
+    /// forward and the backward pass: on the demo model IG ran 6–9% faster than in blocks of 8192, and on a model of a
+    /// million parameters no slower. Smaller blocks also bound the memory an attribution takes.
+    /// </remarks>
+    public const int DefaultChunkRows = 2048;
+
     /// <summary>Number of probe rows.</summary>
     public int Rows => (int)Inputs.shape[0];
 

@@ -45,8 +45,8 @@ public sealed record ReattributionRequest
     /// <summary>The last epoch to re-attribute. Default: the run's last.</summary>
     public int LastEpoch { get; init; } = int.MaxValue;
 
-    /// <summary>At most this many expanded rows go through the model at once. Default 8192.</summary>
-    public int ChunkRows { get; init; } = 8192;
+    /// <summary>At most this many expanded rows go through the model at once. Default <see cref="AttributionInput.DefaultChunkRows"/> (2048).</summary>
+    public int ChunkRows { get; init; } = AttributionInput.DefaultChunkRows;
 
     /// <summary>Measure the new maps' quality figures too. Default: null, off.</summary>
     public QualityOptions? Quality { get; init; }
