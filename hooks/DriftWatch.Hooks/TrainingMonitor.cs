@@ -592,6 +592,10 @@ public sealed class TrainingMonitor : IDisposable
             ModelFactory = RecipeOf(options)?.FactoryName ?? "",
             ModelSettings = RecipeOf(options) is { } recipe ? new Dictionary<string, string>(recipe.Settings, StringComparer.Ordinal) : [],
             BaselineValues = options.Baseline.Values is null ? null : FloatBytes.FromFloats(options.Baseline.Values),
+            WatchedLayers = options.WatchedLayers.IsDefault ? [] : [.. options.WatchedLayers],
+            LayerMethods = options.WatchedLayers.IsDefaultOrEmpty
+                ? []
+                : options.LayerMethods.Select(m => new MethodDocument { Name = m.Name, Settings = new Dictionary<string, string>(m.Settings) }).ToList(),
             TrainingValueCounts = options.TrainingValueCounts.ToDictionary(
                 kv => kv.Key,
                 kv => kv.Value.ToDictionary(v => v.Key.ToString(CultureInfo.InvariantCulture), v => v.Value)),
@@ -611,16 +615,36 @@ public sealed class TrainingMonitor : IDisposable
             throw new DriftWatchException(Mismatch("probe set (hash " + existing.ProbeHash[..12] + " stored, " + wanted.ProbeHash[..12] + " given)"));
         if (existing.Target != wanted.Target || existing.Baseline != wanted.Baseline)
             throw new DriftWatchException(Mismatch("target or baseline"));
-        static string Methods(RunDocument r) => string.Join("; ", r.Methods.Select(m => m.Name + "(" + string.Join(",", m.Settings.OrderBy(s => s.Key, StringComparer.Ordinal).Select(s => s.Key + "=" + s.Value)) + ")"));
-        if (Methods(existing) != Methods(wanted))
+        static string Methods(IEnumerable<MethodDocument> methods) => string.Join("; ", methods.Select(m => m.Name + "(" + string.Join(",", m.Settings.OrderBy(s => s.Key, StringComparer.Ordinal).Select(s => s.Key + "=" + s.Value)) + ")"));
+        if (Methods(existing.Methods) != Methods(wanted.Methods))
             throw new DriftWatchException(Mismatch("set of attribution method settings"));
+        bool learn = false;
+        if (existing.WatchedLayers is null || existing.LayerMethods is null)
+        {
+            // Registered before watched layers were recorded: the run learns them now.
+            existing.WatchedLayers = wanted.WatchedLayers;
+            existing.LayerMethods = wanted.LayerMethods;
+            learn = true;
+        }
+        else if (!existing.WatchedLayers.Order(StringComparer.Ordinal).SequenceEqual((wanted.WatchedLayers ?? []).Order(StringComparer.Ordinal), StringComparer.Ordinal))
+        {
+            // Layer maps of one run are compared epoch by epoch (neuron audit, pruning what-if): the layers must not change.
+            string Layers(List<string>? layers) => layers is null || layers.Count == 0 ? "none" : string.Join(", ", layers);
+            throw new DriftWatchException(Mismatch($"set of watched layers ({Layers(existing.WatchedLayers)} stored, {Layers(wanted.WatchedLayers)} given)"));
+        }
+        else if (Methods(existing.LayerMethods) != Methods(wanted.LayerMethods ?? []))
+        {
+            throw new DriftWatchException(Mismatch("set of layer method settings"));
+        }
         if (existing.ModelFactory.Length == 0 && wanted.ModelFactory.Length > 0)
         {
             // A run begun without a model recipe learns it on resume, so its snapshots can be re-attributed.
             existing.ModelFactory = wanted.ModelFactory;
             existing.ModelSettings = wanted.ModelSettings;
-            _store.UpdateRun(existing);
+            learn = true;
         }
+        if (learn)
+            _store.UpdateRun(existing);
         return existing;
     }
 }

@@ -109,6 +109,12 @@ public sealed record RunDocument
 
     /// <summary>A caller-given baseline's values, float32 little-endian, or null for the zero and training-mean baselines.</summary>
     public byte[]? BaselineValues { get; set; }
+
+    /// <summary>The module paths of the watched layers, in the order given; null in runs registered before they were recorded.</summary>
+    public List<string>? WatchedLayers { get; set; }
+
+    /// <summary>The layer methods and their settings (empty when no layer is watched); null in runs registered before they were recorded.</summary>
+    public List<MethodDocument>? LayerMethods { get; set; }
 }
 
 /// <summary>Per-feature aggregates over one half of the probe set.</summary>

@@ -84,4 +84,54 @@ public sealed class LayerMonitorTests
         Assert.Contains("not a layer method", notLayer.Message, StringComparison.Ordinal);
         Assert.False(File.Exists(temp.File("a.litedb")));
     }
+
+    [Fact]
+    public void AResumedRunKeepsItsWatchedLayersAndLayerMethods()
+    {
+        using var temp = new TempFolder();
+        using var model = new SmallNet(3, 5, 4);
+        string path = temp.File("s.litedb");
+        using (var monitor = new TrainingMonitor(Options(path, model)))
+            monitor.EndEpoch(model, 1, new EpochMetrics(0.5, 0.6));
+
+        // The same layers in another order resume; another set of layers or other layer settings is refused, unchanged.
+        using (var monitor = new TrainingMonitor(Options(path, model) with { WatchedLayers = ["_body.3", "_body.1"] }))
+            monitor.EndEpoch(model, 2, new EpochMetrics(0.5, 0.6));
+        var fewer = Assert.Throws<DriftWatchException>(() => new TrainingMonitor(Options(path, model) with { WatchedLayers = ["_body.1"] }));
+        Assert.Contains("different set of watched layers (_body.1, _body.3 stored, _body.1 given)", fewer.Message, StringComparison.Ordinal);
+        var none = Assert.Throws<DriftWatchException>(() => new TrainingMonitor(Options(path, model) with { WatchedLayers = [] }));
+        Assert.Contains("(_body.1, _body.3 stored, none given)", none.Message, StringComparison.Ordinal);
+        var settings = Assert.Throws<DriftWatchException>(() => new TrainingMonitor(Options(path, model) with { LayerMethods = [new LayerConductance(32), new LayerActivation()] }));
+        Assert.Contains("different set of layer method settings", settings.Message, StringComparison.Ordinal);
+
+        using var store = RunStore.OpenForReading(path);
+        var run = store.GetRun("layers");
+        Assert.Equal(["_body.1", "_body.3"], run.WatchedLayers!);
+        Assert.Equal(["layer-conductance", "layer-activation"], run.LayerMethods!.Select(m => m.Name));
+        Assert.Equal([1, 2], store.LayerMaps(run.Id, "_body.1", "layer-conductance").Select(m => m.Epoch));
+    }
+
+    [Fact]
+    public void ARunRegisteredBeforeLayersWereRecordedLearnsThemOnResume()
+    {
+        using var temp = new TempFolder();
+        using var model = new SmallNet(3, 5, 4);
+        string path = temp.File("s.litedb");
+        using (var monitor = new TrainingMonitor(Options(path, model) with { WatchedLayers = [] }))
+            monitor.EndEpoch(model, 1, new EpochMetrics(0.5, 0.6));
+        using (var store = RunStore.OpenForWriting(path))
+        {
+            // As an older DriftWatch left it: no record of watched layers at all.
+            var run = store.GetRun("layers");
+            run.WatchedLayers = null;
+            run.LayerMethods = null;
+            store.UpdateRun(run);
+        }
+
+        using (var monitor = new TrainingMonitor(Options(path, model)))
+            monitor.EndEpoch(model, 2, new EpochMetrics(0.5, 0.6));
+
+        using var reader = RunStore.OpenForReading(path);
+        Assert.Equal(["_body.1", "_body.3"], reader.GetRun("layers").WatchedLayers!);
+    }
 }
