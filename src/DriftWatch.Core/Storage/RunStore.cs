@@ -259,7 +259,7 @@ public sealed class RunStore : IDisposable
 
     /// <summary>The shard record when this store is a shard store, else null.</summary>
     public ShardDocument? FindShard() =>
-        Guard(() => _database.CollectionExists("shards") ? ShardsCollection.FindOne(Query.EQ(nameof(ShardDocument.Key), "shard")) : null);
+        Guard(() => _database.CollectionExists("shards") ? ShardsCollection.FindOne(KeyIs("shard")) : null);
 
     /// <summary>The stored map for (run, epoch, method, target), or null.</summary>
     public MapDocument? FindMap(int runId, int epoch, string method, string target)
@@ -267,7 +267,7 @@ public sealed class RunStore : IDisposable
         ArgumentNullException.ThrowIfNull(method);
         ArgumentNullException.ThrowIfNull(target);
         string key = MapKey(runId, epoch, method, target);
-        return Guard(() => MapsCollection.FindOne(Query.EQ(nameof(MapDocument.Key), key)));
+        return Guard(() => MapsCollection.FindOne(KeyIs(key)));
     }
 
     /// <summary>Every map stored for one epoch of a run (all methods and targets), complete or not.</summary>
@@ -288,8 +288,8 @@ public sealed class RunStore : IDisposable
             // A process killed while uploading this snapshot before leaves LiteDB's file record (length still 0, so
             // LiteDB keeps its chunks) and some chunks; a new upload would collide with them. Both go first.
             _database.FileStorage.Delete(id);
-            _database.GetCollection("_chunks").DeleteMany(Query.Between(
-                "_id",
+            _database.GetCollection("_chunks").DeleteMany(BsonExpression.Create(
+                "_id BETWEEN @0 AND @1",
                 new BsonDocument { ["f"] = id, ["n"] = 0 },
                 new BsonDocument { ["f"] = id, ["n"] = int.MaxValue })); // a range of the _id index, not a scan
             _database.FileStorage.Upload(id, $"run{runId}-epoch{epoch}.weights", weights);
@@ -379,10 +379,15 @@ public sealed class RunStore : IDisposable
     private static string MapKey(int runId, int epoch, string method, string target) => $"{runId}/{epoch:D6}/{method}/{target}";
 
     // Key is unique: a resumed epoch replaces what an interrupted one wrote instead of duplicating it.
+    // The value goes in as a parameter, not into the expression's text: LiteDB compiles every new expression text to a
+    // delegate (System.Linq.Expressions, then the JIT) and caches it by that text, so a key written into the text cost a
+    // fresh compilation on every write — a third of an epoch's store transaction. The unique Key index is still used.
+    private static BsonExpression KeyIs(string key) => BsonExpression.Create("$.Key = @0", new BsonValue(key));
+
     private static void Upsert<T>(ILiteCollection<T> collection, T document)
         where T : class, IKeyedDocument
     {
-        var existing = collection.FindOne(Query.EQ(nameof(IKeyedDocument.Key), document.Key));
+        var existing = collection.FindOne(KeyIs(document.Key));
         if (existing is null)
         {
             collection.Insert(document);
