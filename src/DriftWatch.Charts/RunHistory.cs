@@ -57,13 +57,14 @@ public sealed record EpochRecord(
         ArgumentOutOfRangeException.ThrowIfNegative(count);
         if (!IsAttributed)
             return [];
-        var share = HeldOutShare;
-        return Enumerable.Range(0, share.Length)
-            .OrderByDescending(f => double.IsFinite(share[f]) ? share[f] : double.NegativeInfinity)
-            .ThenBy(f => f)
-            .Take(count)
-            .ToImmutableArray();
+        return ByShare(HeldOutShare).Take(count).ToImmutableArray();
     }
+
+    // Feature indexes by share, largest first; non-finite shares last, ties in schema order.
+    internal static IEnumerable<int> ByShare(IReadOnlyList<double> share) =>
+        Enumerable.Range(0, share.Count)
+            .OrderByDescending(f => double.IsFinite(share[f]) ? share[f] : double.NegativeInfinity)
+            .ThenBy(f => f);
 }
 
 /// <summary>
@@ -177,9 +178,13 @@ public sealed class RunHistory
     /// <param name="runName">The run's name.</param>
     /// <param name="method">The attribution method whose maps to read. Default: <see cref="DefaultMethod"/>.</param>
     /// <param name="rowsOf">Features whose per-row attributions to keep (for the feature detail chart); default none, which keeps memory small on long runs.</param>
+    /// <param name="rowsOfFlagged">
+    /// Also keep the per-row attributions of every feature a finding names, after those in <paramref name="rowsOf"/>:
+    /// the feature detail chart's default choice, read in the same pass over the maps instead of a second one. Default false.
+    /// </param>
     /// <exception cref="StoreException">No such run (the message lists the runs there are), or stored data that does not fit together.</exception>
     /// <exception cref="DriftWatchException">The run was not attributed with <paramref name="method"/>, or a feature in <paramref name="rowsOf"/> is not in the run.</exception>
-    public static RunHistory Load(RunStore store, string runName, string method = DefaultMethod, IReadOnlyCollection<string>? rowsOf = null)
+    public static RunHistory Load(RunStore store, string runName, string method = DefaultMethod, IReadOnlyCollection<string>? rowsOf = null, bool rowsOfFlagged = false)
     {
         ArgumentNullException.ThrowIfNull(store);
         ArgumentNullException.ThrowIfNull(runName);
@@ -198,9 +203,22 @@ public sealed class RunHistory
         }
 
         var features = run.Features.Select(f => f.Name).ToImmutableArray();
-        var rowFeatures = FeatureIndexes(run, features, rowsOf ?? []);
-        var (maps, columns) = FirstMapPerEpoch(store, run, method, features.Length, rowFeatures);
         var verdicts = store.Verdicts(run.Id).ToDictionary(v => v.Epoch);
+        var asked = (rowsOf ?? []).ToList();
+        if (rowsOfFlagged)
+        {
+            var flagged = verdicts.Values.OrderBy(v => v.Epoch)
+                .SelectMany(v => FindingsOf(store, run, v))
+                .Select(f => f.Feature)
+                .Where(name => name.Length > 0 && features.Contains(name, StringComparer.Ordinal))
+                .ToList();
+            // With nothing flagged the feature chart shows the top feature of the last attributed epoch: one map tells.
+            if (flagged.Count == 0 && LastMap(store, run, method) is { } last && last.HeldOut.Share.Length == features.Length)
+                flagged.AddRange(EpochRecord.ByShare(last.HeldOut.Share).Take(1).Select(f => features[f]));
+            asked.AddRange(flagged);
+        }
+        var rowFeatures = FeatureIndexes(run, features, asked);
+        var (maps, columns) = FirstMapPerEpoch(store, run, method, features.Length, rowFeatures);
         // Statistics come from the detector, which reads the primary method's maps only.
         var statistics = method == RunReview.PrimaryMethod(run)
             ? store.StatisticsOf(run.Id).Where(s => s.Statistics is not null && s.Statistics.ShareHeldOut.Length == features.Length).ToDictionary(s => s.Epoch, s => s.Statistics!)
@@ -256,6 +274,12 @@ public sealed class RunHistory
         });
         return (maps, columns);
     }
+
+    // The first stored map of the last complete epoch that has one for the method (as FirstMapPerEpoch would keep it).
+    private static MapDocument? LastMap(RunStore store, RunDocument run, string method) =>
+        store.Epochs(run.Id).Reverse()
+            .Select(e => store.MapsAt(run.Id, e.Epoch).Where(m => m.Method == method).MinBy(m => m.Id))
+            .FirstOrDefault(m => m is not null);
 
     private static (float[] HeldOut, float[] Training)[] Columns(RunDocument run, MapDocument map, int[] rowFeatures)
     {

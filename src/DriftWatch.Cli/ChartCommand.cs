@@ -83,7 +83,7 @@ internal static class ChartCommand
             IReadOnlyList<(ChartKind Kind, string Path)> written;
             using (var runStore = CommonOptions.OpenStore(parse, store))
             {
-                var history = RunHistory.Load(runStore, parse.GetValue(run)!, parse.GetValue(method)!);
+                var history = RunHistory.Load(runStore, parse.GetValue(run)!, parse.GetValue(method)!, rowsOfFlagged: kinds.Contains(ChartKind.Feature) && choices.Feature is null);
                 if (history.Epochs.IsEmpty)
                     throw new DriftWatchException($"run '{DisplayText.Clean(history.RunName)}' has no complete epochs yet; nothing to chart");
                 if (choices.Feature is { } named && history.FeatureIndex(named) < 0)

@@ -69,7 +69,8 @@ public static class RunReport
         ArgumentNullException.ThrowIfNull(folder);
         ArgumentNullException.ThrowIfNull(options);
         progress?.Invoke("reading the run");
-        var history = RunHistory.Load(store, runName, options.Method);
+        // The feature chart's default feature is a flagged one: its per-row attributions come with the one read of the maps.
+        var history = RunHistory.Load(store, runName, options.Method, rowsOfFlagged: true);
         ChartKit.RequireEpochs(history);
         string chartFolder = Path.Combine(folder, "charts");
         var charts = ChartCatalog.RenderAll(store, history, options.Charts, options.Choices, chartFolder, options.Size, k => progress?.Invoke($"{ChartCatalog.Spelling(k)} chart"));

@@ -57,6 +57,36 @@ public sealed class ChartSetTests : IClassFixture<DemoStoreFixture>
     }
 
     [Fact]
+    public void FlaggedFeaturesKeepTheirRowsInTheSameReadAsAskingForThemByName()
+    {
+        using var store = RunStore.OpenForReading(_fixture.StorePath);
+        var flagged = RunHistory.Load(store, DemoStoreFixture.LeakRun, rowsOf: ["crate id"], rowsOfFlagged: true);
+        var named = RunHistory.Load(store, DemoStoreFixture.LeakRun).WithRows(store, ["crate id", "inspection tray"]);
+
+        // Whatever a run flags, the feature chart's default feature comes with the one read.
+        foreach (string run in new[] { DemoStoreFixture.LeakRun, DemoStoreFixture.CleanRun })
+        {
+            var history = RunHistory.Load(store, run, rowsOfFlagged: true);
+            Assert.Contains(history.Rows, r => r.Feature == ChartCatalog.DefaultFeature(history));
+        }
+
+        // The asked-for feature first, then every feature a finding names (the planted leak among them), each once.
+        Assert.Equal("crate id", flagged.Rows[0].Feature);
+        Assert.Contains(flagged.Rows, r => r.Feature == "inspection tray");
+        Assert.Equal(flagged.Rows.Length, flagged.Rows.Select(r => r.Feature).Distinct().Count());
+        foreach (var expected in named.Rows)
+        {
+            var kept = flagged.Rows.Single(r => r.Feature == expected.Feature);
+            Assert.Equal(expected.Epochs.Select(e => e.Epoch), kept.Epochs.Select(e => e.Epoch));
+            for (int i = 0; i < expected.Epochs.Length; i++)
+            {
+                Assert.Equal(expected.Epochs[i].HeldOut.ToArray(), kept.Epochs[i].HeldOut.ToArray());
+                Assert.Equal(expected.Epochs[i].Training.ToArray(), kept.Epochs[i].Training.ToArray());
+            }
+        }
+    }
+
+    [Fact]
     public void PerRowScoresOfTheDetailChartAreTheStoredMapColumnSplitByHalf()
     {
         using var store = RunStore.OpenForReading(_fixture.StorePath);
