@@ -13,11 +13,7 @@ namespace DriftWatch.Tests.Hooks;
 
 public sealed class SeveralMethodsTests
 {
-    private static ProbeSet Probe() => ProbeSet.Select(
-        new RowsBuilder().WithRows(60).WithSeed(1).Build(),
-        new RowsBuilder().WithRows(60).WithSeed(2).Build(),
-        12,
-        seed: 4);
+    private static ProbeSet Probe() => TestProbes.Small();
 
     [Fact]
     public void EachEpochStoresEveryMethodsMapWithItsSettingsAgreementAndQuality()

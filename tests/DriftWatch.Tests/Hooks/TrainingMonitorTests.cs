@@ -13,11 +13,7 @@ namespace DriftWatch.Tests.Hooks;
 
 public sealed class TrainingMonitorTests
 {
-    private static ProbeSet Probe(int perHalf = 12) => ProbeSet.Select(
-        new RowsBuilder().WithRows(60).WithSeed(1).Build(),
-        new RowsBuilder().WithRows(60).WithSeed(2).Build(),
-        perHalf,
-        seed: 4);
+    private static ProbeSet Probe(int perHalf = 12) => TestProbes.Small(perHalf);
 
     private static MonitorOptions Options(string store, SmallNet model, string run = "test-run") => new()
     {

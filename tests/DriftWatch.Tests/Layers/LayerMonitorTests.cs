@@ -12,11 +12,7 @@ namespace DriftWatch.Tests.Layers;
 
 public sealed class LayerMonitorTests
 {
-    private static ProbeSet Probe() => ProbeSet.Select(
-        new RowsBuilder().WithRows(60).WithSeed(1).Build(),
-        new RowsBuilder().WithRows(60).WithSeed(2).Build(),
-        12,
-        seed: 4);
+    private static ProbeSet Probe() => TestProbes.Small();
 
     private static MonitorOptions Options(string store, SmallNet model) => new()
     {

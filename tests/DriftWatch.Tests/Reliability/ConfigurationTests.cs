@@ -20,11 +20,7 @@ public sealed class ConfigurationTests
 
     public ConfigurationTests(ITestOutputHelper output) => _output = output;
 
-    private static ProbeSet Probe() => ProbeSet.Select(
-        new RowsBuilder().WithRows(60).WithSeed(1).Build(),
-        new RowsBuilder().WithRows(60).WithSeed(2).Build(),
-        12,
-        seed: 4);
+    private static ProbeSet Probe() => TestProbes.Small();
 
     private static MonitorOptions Options(string store, IWatchedModel model) => new()
     {

@@ -58,7 +58,7 @@ public sealed class ResumeTests
         using var temp = new TempFolder();
         string store = temp.File("s.litedb");
         using var model = new SmallNet(3, 5, 4);
-        var probe = ProbeSet.Select(new RowsBuilder().WithRows(60).WithSeed(1).Build(), new RowsBuilder().WithRows(60).WithSeed(2).Build(), 12, seed: 4);
+        var probe = TestProbes.Small();
         var options = new MonitorOptions { StorePath = store, RunName = "r", Schema = model.Schema, Probe = probe, Methods = [new IntegratedGradients(8)] };
         int runId;
         using (var first = new TrainingMonitor(options))

@@ -45,6 +45,17 @@ internal sealed class RowsBuilder
     }
 }
 
+/// <summary>The small probe set most monitor tests share: 12 + 12 rows drawn from two seeded sets of 60.</summary>
+internal static class TestProbes
+{
+    /// <summary>Held-out rows from seed 1, training rows from seed 2, <paramref name="perHalf"/> of each, selection seed 4.</summary>
+    public static ProbeSet Small(int perHalf = 12) => ProbeSet.Select(
+        new RowsBuilder().WithRows(60).WithSeed(1).Build(),
+        new RowsBuilder().WithRows(60).WithSeed(2).Build(),
+        perHalf,
+        seed: 4);
+}
+
 /// <summary>A temporary folder deleted at dispose.</summary>
 internal sealed class TempFolder : IDisposable
 {
