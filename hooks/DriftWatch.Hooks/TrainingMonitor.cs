@@ -377,7 +377,17 @@ public sealed class TrainingMonitor : IDisposable
                 throw new DriftWatchException($"encode returned shape [{string.Join(", ", features.shape)}]; expected [{probe.Count}, {_options.Schema.ColumnCount}] as the schema says");
             var baseline = _options.Baseline.Resolve(features[TensorIndex.Slice(probe.HeldOutCount, probe.Count)], _options.Schema.ColumnCount);
             var target = _options.Target;
-            var input = new AttributionInput(f => target.Select(model.Score(f)), features, baseline, _options.ChunkRows).WithSchema(_options.Schema);
+            AttributionInput input;
+            try
+            {
+                input = AttributionInput.ForModel(model, target, features, baseline, _options.ChunkRows, _options.Schema);
+            }
+            catch (DriftWatchException e) when (!_options.Strict)
+            {
+                // A declared entry layer that does not reproduce the score step: say so, and attribute the whole model.
+                failures.Add(Failure(epoch, "the entry layer check", e));
+                input = AttributionInput.ForModel(model, target, features, baseline, _options.ChunkRows, _options.Schema, splitAtEntry: false);
+            }
             var figures = new Dictionary<string, QualityFigures>(StringComparer.Ordinal);
 
             foreach (var method in _options.Methods)

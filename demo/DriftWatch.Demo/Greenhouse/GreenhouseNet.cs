@@ -13,10 +13,14 @@ public sealed record CategoricalInput(string Name, int Levels);
 /// The demo's grading model: dense features and one embedding per categorical feature, concatenated (the encode
 /// step), then an MLP with ReLU to one logit (the score step).
 /// </summary>
-public sealed class GreenhouseNet : nn.Module<Tensor, Tensor, Tensor>, IWatchedModel
+public sealed class GreenhouseNet : nn.Module<Tensor, Tensor, Tensor>, IWatchedModel, ILinearEntry
 {
     private readonly TorchSharp.Modules.ModuleList<nn.Module<Tensor, Tensor>> _embeddings;
     private readonly nn.Module<Tensor, Tensor> _scorer;
+
+    // The score step's layers in order, for the entry split (ILinearEntry); an array field, which module registration
+    // does not read, so the weights keep their names under _scorer.
+    private readonly nn.Module<Tensor, Tensor>[] _layers;
 
     /// <summary>Creates the model with freshly initialised weights (seed torch first for reproducible weights).</summary>
     /// <param name="denseNames">The dense features, in column order.</param>
@@ -56,6 +60,7 @@ public sealed class GreenhouseNet : nn.Module<Tensor, Tensor, Tensor>, IWatchedM
             layers.Add(nn.Dropout(dropout));
         layers.Add(nn.Linear(hidden, 1));
         _scorer = nn.Sequential(layers);
+        _layers = [.. layers];
         RegisterComponents();
     }
 
@@ -106,6 +111,21 @@ public sealed class GreenhouseNet : nn.Module<Tensor, Tensor, Tensor>, IWatchedM
 
     /// <summary>Feature space <c>[rows, columns]</c> to the pass logit <c>[rows, 1]</c>.</summary>
     public Tensor Score(Tensor features) => _scorer.call(features);
+
+    /// <inheritdoc />
+    public Tensor EntryWeight => ((TorchSharp.Modules.Linear)_layers[0]).weight!;
+
+    /// <inheritdoc />
+    public Tensor? EntryBias => ((TorchSharp.Modules.Linear)_layers[0]).bias;
+
+    /// <inheritdoc />
+    public Tensor ScoreAfterEntry(Tensor entry)
+    {
+        var output = entry;
+        for (int i = 1; i < _layers.Length; i++)
+            output = _layers[i].call(output);
+        return output;
+    }
 
     /// <summary>The pass logit <c>[rows, 1]</c> of raw inputs.</summary>
     public override Tensor forward(Tensor dense, Tensor categorical) => Score(Encode(dense, categorical));

@@ -13,10 +13,14 @@ namespace DriftWatch.Hooks.Models;
 /// Parameters are <c>_embeddings.i.weight</c> and <c>_scorer.k.weight</c>/<c>.bias</c>; the embeddings are created first, in
 /// input order, then the head's layers, so one torch seed gives the same initial weights every time.
 /// </remarks>
-public sealed class TabularNet : nn.Module<Tensor, Tensor, Tensor>, IRebuildableModel
+public sealed class TabularNet : nn.Module<Tensor, Tensor, Tensor>, IRebuildableModel, ILinearEntry
 {
     private readonly TorchSharp.Modules.ModuleList<nn.Module<Tensor, Tensor>> _embeddings;
     private readonly nn.Module<Tensor, Tensor> _scorer;
+
+    // The score step's layers in order, for the entry split (ILinearEntry); an array field, which module registration
+    // does not read, so the weights keep their names under _scorer.
+    private readonly nn.Module<Tensor, Tensor>[] _layers;
 
     /// <summary>Creates the model with freshly initialised weights (seed torch first for reproducible weights).</summary>
     /// <exception cref="DriftWatchException">The settings are not valid; the message names the first bad one.</exception>
@@ -47,6 +51,7 @@ public sealed class TabularNet : nn.Module<Tensor, Tensor, Tensor>, IRebuildable
         }
         layers.Add(nn.Linear(width, settings.Outputs));
         _scorer = nn.Sequential(layers);
+        _layers = [.. layers];
         RegisterComponents();
     }
 
@@ -76,6 +81,21 @@ public sealed class TabularNet : nn.Module<Tensor, Tensor, Tensor>, IRebuildable
 
     /// <summary>Feature space <c>[rows, columns]</c> to the outputs <c>[rows, outputs]</c>.</summary>
     public Tensor Score(Tensor features) => _scorer.call(features);
+
+    /// <inheritdoc />
+    public Tensor EntryWeight => ((TorchSharp.Modules.Linear)_layers[0]).weight!;
+
+    /// <inheritdoc />
+    public Tensor? EntryBias => ((TorchSharp.Modules.Linear)_layers[0]).bias;
+
+    /// <inheritdoc />
+    public Tensor ScoreAfterEntry(Tensor entry)
+    {
+        var output = entry;
+        for (int i = 1; i < _layers.Length; i++)
+            output = _layers[i].call(output);
+        return output;
+    }
 
     /// <summary>The outputs <c>[rows, outputs]</c> of raw inputs.</summary>
     public override Tensor forward(Tensor dense, Tensor categorical) => Score(Encode(dense, categorical));

@@ -33,6 +33,29 @@ public sealed record AttributionInput(Func<Tensor, Tensor> Score, Tensor Inputs,
     /// <summary>The hidden layer that layer methods (<see cref="ILayerMethod"/>) and neuron conductance attribute to; null for feature-space methods.</summary>
     public Model.WatchedLayer? Layer { get; init; }
 
+    /// <summary>
+    /// The attributed function split at the model's affine entry layer, when the model declares one
+    /// (<see cref="Model.ILinearEntry"/>); Integrated Gradients then walks its path in that layer's output. Null for the
+    /// whole function alone.
+    /// </summary>
+    public LinearEntry? Entry { get; init; }
+
+    /// <summary>
+    /// The input that attributes <paramref name="target"/> of <paramref name="model"/> over <paramref name="features"/>, with
+    /// the schema's column ownership and, when the model declares an entry layer and <paramref name="splitAtEntry"/> is
+    /// true, the split there after checking it on the first rows.
+    /// </summary>
+    /// <exception cref="DriftWatchException">The model's declared entry layer does not reproduce its score step.</exception>
+    public static AttributionInput ForModel(Model.IWatchedModel model, Model.AttributionTarget target, Tensor features, Tensor baseline, int chunkRows, Model.FeatureSchema schema, bool splitAtEntry = true)
+    {
+        ArgumentNullException.ThrowIfNull(model);
+        ArgumentNullException.ThrowIfNull(target);
+        Tensor Score(Tensor f) => target.Select(model.Score(f));
+        var entry = splitAtEntry ? LinearEntry.Of(model, target) : null;
+        entry?.Check(Score, features);
+        return new AttributionInput(Score, features, baseline, chunkRows) { Entry = entry }.WithSchema(schema);
+    }
+
     /// <summary>The same input with the column ownership of <paramref name="schema"/>.</summary>
     public AttributionInput WithSchema(Model.FeatureSchema schema)
     {

@@ -127,7 +127,7 @@ public static class MapQuality
             uniform[i] = (float)(2 * random.NextDouble() - 1);
         var row = torch.arange(rows, dtype: ScalarType.Int64).repeat_interleave(m);
         var y = x.index_select(0, row) + torch.tensor(uniform, [rows * m, columns]).to(x.dtype) * halfWidth.unsqueeze(0);
-        var perturbedInput = new AttributionInput(input.Score, y, baseline.index_select(0, row), input.ChunkRows) { ColumnOwners = input.ColumnOwners };
+        var perturbedInput = new AttributionInput(input.Score, y, baseline.index_select(0, row), input.ChunkRows) { ColumnOwners = input.ColumnOwners, Entry = input.Entry };
         var perturbed = method.Attribute(perturbedInput);
         var perturbedScores = FeatureScores(perturbed.Scores, Enumerable.Range(0, rows * m).ToArray(), groups, columns);
 

@@ -309,7 +309,7 @@ public static class Reattribution
         if (features.dim() != 2 || features.shape[0] != probe.Count || features.shape[1] != schema.ColumnCount)
             throw new DriftWatchException($"encode returned shape [{string.Join(", ", features.shape)}]; expected [{probe.Count}, {schema.ColumnCount}] as the run's schema says");
         var baseline = baselineChoice.Resolve(features[TensorIndex.Slice(probe.HeldOutCount, probe.Count)], schema.ColumnCount);
-        var input = new AttributionInput(f => target.Select(model.Score(f)), features, baseline, request.ChunkRows).WithSchema(schema);
+        var input = AttributionInput.ForModel(model, target, features, baseline, request.ChunkRows, schema);
 
         var watch = Stopwatch.StartNew();
         var columns = request.Method.Attribute(input);
