@@ -328,7 +328,8 @@ if (Runs("4") || Runs("5"))
         using (var scope = torch.NewDisposeScope())
         {
             var features256 = EncodeRows(demo, scenario.Validation.Rows, 256);
-            var input = new AttributionInput(f => demo.Score(f).squeeze(1), features256, torch.zeros(features256.shape[1]), 8192);
+            // As the monitor attributes: default blocks, through the demo model's declared entry layer.
+            var input = AttributionInput.ForModel(demo, AttributionTarget.Logit, features256, torch.zeros(features256.shape[1]), AttributionInput.DefaultChunkRows, demo.Schema);
             attribution = Measure.Interleaved(repeats, () => new IntegratedGradients(64).Attribute(input))[0];
         }
         Add(new Figure("4", Invariant($"store write per epoch, 256 × {features} map with statistics, verdict, epoch"), perEpochWrite, "s", "", "one transaction each"));

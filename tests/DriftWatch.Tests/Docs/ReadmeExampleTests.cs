@@ -33,11 +33,13 @@ public sealed class GradeNet : nn.Module<Tensor, Tensor, Tensor>, IWatchedModel
 
 public sealed class ReadmeExampleTests
 {
-    [Fact]
-    public void TheReadmeExampleIsTheCompiledOne()
+    [Theory]
+    [InlineData("ReadmeExampleTests.cs")]
+    [InlineData("ReadmeEntryExample.cs")]
+    public void TheReadmeExampleIsTheCompiledOne(string file)
     {
         string root = ConventionTests.FindRepositoryRoot();
-        string source = File.ReadAllText(Path.Combine(root, "tests", "DriftWatch.Tests", "Docs", "ReadmeExampleTests.cs"));
+        string source = File.ReadAllText(Path.Combine(root, "tests", "DriftWatch.Tests", "Docs", file));
         string readme = File.ReadAllText(Path.Combine(root, "README.md"));
         int begin = source.IndexOf("// README:begin", StringComparison.Ordinal);
         int end = source.IndexOf("// README:end", StringComparison.Ordinal);
@@ -72,5 +74,19 @@ public sealed class ReadmeExampleTests
 
         Assert.False(verdict.IsHalt);
         Assert.Single(monitor.Store.Epochs(monitor.Run.Id));
+    }
+
+    [Fact]
+    public void TheReadmeEntryExampleDeclaresAnEntryTheCheckAccepts()
+    {
+        using var model = new Entry.GradeNet();
+        model.eval();
+        using var scope = torch.NewDisposeScope();
+        var features = model.Encode(torch.rand(10, 2), torch.randint(12, [10, 1]));
+
+        var input = AttributionInput.ForModel(model, AttributionTarget.Logit, features, torch.zeros(10), 2048, model.Schema);
+
+        Assert.NotNull(input.Entry);
+        Assert.Equal([32L, 10L], input.Entry.Weight.shape);
     }
 }
