@@ -194,9 +194,10 @@ internal sealed class DemoRunAudit
             features = model.Encode(torch.tensor(p.Dense, [p.Count, p.DenseCount]), torch.tensor(p.Categorical, [p.Count, p.CategoricalCount])).detach();
         }
         var baseline = Baseline.Zero.Resolve(features[TensorIndex.Slice(_probe.HeldOutCount, _probe.Count)], model.Schema.ColumnCount);
-        // Built as the monitor builds it, through the demo model's declared entry layer: the path in feature space gives the
-        // same map only up to float rounding, which the tolerance below is too tight for on near-zero scores.
-        var columns = new IntegratedGradients(_steps).Attribute(AttributionInput.ForModel(model, AttributionTarget.Logit, features, baseline, 8192, model.Schema));
+        // Built exactly as the monitor builds it (its default blocks, through the demo model's declared entry layer):
+        // another route or block size gives the same map only up to float rounding, which the tolerance below is too
+        // tight for on near-zero scores.
+        var columns = new IntegratedGradients(_steps).Attribute(AttributionInput.ForModel(model, AttributionTarget.Logit, features, baseline, AttributionInput.DefaultChunkRows, model.Schema));
         var expected = AttributionMap.FromColumns(columns, model.Schema).Scores;
         var read = FloatBytes.ToFloats(stored.Scores);
         if (read.Length != expected.Length)
