@@ -9,13 +9,14 @@ internal sealed class WideNet : nn.Module<Tensor, Tensor>, IWatchedModel, ILinea
 {
     public const int Inputs = 128;
     private readonly nn.Module<Tensor, Tensor> _body;
-    private readonly nn.Module<Tensor, Tensor>[] _layers; // for the entry split; array fields are not registered
+    private readonly LayerChain _chain;
 
     public WideNet()
         : base("wide-net")
     {
-        _layers = [nn.Linear(Inputs, 1024), nn.ReLU(), nn.Linear(1024, 768), nn.ReLU(), nn.Linear(768, 1)];
-        _body = nn.Sequential(_layers);
+        nn.Module<Tensor, Tensor>[] layers = [nn.Linear(Inputs, 1024), nn.ReLU(), nn.Linear(1024, 768), nn.ReLU(), nn.Linear(768, 1)];
+        _body = nn.Sequential(layers);
+        _chain = new LayerChain(layers);
         var schema = FeatureSchema.CreateBuilder();
         for (int i = 0; i < Inputs; i++)
             schema.AddDense($"x{i}");
@@ -33,11 +34,11 @@ internal sealed class WideNet : nn.Module<Tensor, Tensor>, IWatchedModel, ILinea
 
     public Tensor Score(Tensor features) => _body.call(features);
 
-    public Tensor EntryWeight => ((TorchSharp.Modules.Linear)_layers[0]).weight!;
+    public Tensor EntryWeight => _chain.EntryWeight;
 
-    public Tensor? EntryBias => ((TorchSharp.Modules.Linear)_layers[0]).bias;
+    public Tensor? EntryBias => _chain.EntryBias;
 
-    public Tensor ScoreAfterEntry(Tensor entry) => _layers.Skip(1).Aggregate(entry, (h, layer) => layer.call(h));
+    public Tensor ScoreAfterEntry(Tensor entry) => _chain.ScoreAfterEntry(entry);
 
     public override Tensor forward(Tensor input) => Score(input);
 }

@@ -18,9 +18,7 @@ public sealed class GreenhouseNet : nn.Module<Tensor, Tensor, Tensor>, IWatchedM
     private readonly TorchSharp.Modules.ModuleList<nn.Module<Tensor, Tensor>> _embeddings;
     private readonly nn.Module<Tensor, Tensor> _scorer;
 
-    // The score step's layers in order, for the entry split (ILinearEntry); an array field, which module registration
-    // does not read, so the weights keep their names under _scorer.
-    private readonly nn.Module<Tensor, Tensor>[] _layers;
+    private readonly LayerChain _chain; // the score step's layers again, for ILinearEntry; not registered a second time
 
     /// <summary>Creates the model with freshly initialised weights (seed torch first for reproducible weights).</summary>
     /// <param name="denseNames">The dense features, in column order.</param>
@@ -60,7 +58,7 @@ public sealed class GreenhouseNet : nn.Module<Tensor, Tensor, Tensor>, IWatchedM
             layers.Add(nn.Dropout(dropout));
         layers.Add(nn.Linear(hidden, 1));
         _scorer = nn.Sequential(layers);
-        _layers = [.. layers];
+        _chain = new LayerChain(layers);
         RegisterComponents();
     }
 
@@ -113,19 +111,13 @@ public sealed class GreenhouseNet : nn.Module<Tensor, Tensor, Tensor>, IWatchedM
     public Tensor Score(Tensor features) => _scorer.call(features);
 
     /// <inheritdoc />
-    public Tensor EntryWeight => ((TorchSharp.Modules.Linear)_layers[0]).weight!;
+    public Tensor EntryWeight => _chain.EntryWeight;
 
     /// <inheritdoc />
-    public Tensor? EntryBias => ((TorchSharp.Modules.Linear)_layers[0]).bias;
+    public Tensor? EntryBias => _chain.EntryBias;
 
     /// <inheritdoc />
-    public Tensor ScoreAfterEntry(Tensor entry)
-    {
-        var output = entry;
-        for (int i = 1; i < _layers.Length; i++)
-            output = _layers[i].call(output);
-        return output;
-    }
+    public Tensor ScoreAfterEntry(Tensor entry) => _chain.ScoreAfterEntry(entry);
 
     /// <summary>The pass logit <c>[rows, 1]</c> of raw inputs.</summary>
     public override Tensor forward(Tensor dense, Tensor categorical) => Score(Encode(dense, categorical));

@@ -18,9 +18,7 @@ public sealed class TabularNet : nn.Module<Tensor, Tensor, Tensor>, IRebuildable
     private readonly TorchSharp.Modules.ModuleList<nn.Module<Tensor, Tensor>> _embeddings;
     private readonly nn.Module<Tensor, Tensor> _scorer;
 
-    // The score step's layers in order, for the entry split (ILinearEntry); an array field, which module registration
-    // does not read, so the weights keep their names under _scorer.
-    private readonly nn.Module<Tensor, Tensor>[] _layers;
+    private readonly LayerChain _chain; // the score step's layers again, for ILinearEntry; not registered a second time
 
     /// <summary>Creates the model with freshly initialised weights (seed torch first for reproducible weights).</summary>
     /// <exception cref="DriftWatchException">The settings are not valid; the message names the first bad one.</exception>
@@ -51,7 +49,7 @@ public sealed class TabularNet : nn.Module<Tensor, Tensor, Tensor>, IRebuildable
         }
         layers.Add(nn.Linear(width, settings.Outputs));
         _scorer = nn.Sequential(layers);
-        _layers = [.. layers];
+        _chain = new LayerChain(layers);
         RegisterComponents();
     }
 
@@ -83,19 +81,13 @@ public sealed class TabularNet : nn.Module<Tensor, Tensor, Tensor>, IRebuildable
     public Tensor Score(Tensor features) => _scorer.call(features);
 
     /// <inheritdoc />
-    public Tensor EntryWeight => ((TorchSharp.Modules.Linear)_layers[0]).weight!;
+    public Tensor EntryWeight => _chain.EntryWeight;
 
     /// <inheritdoc />
-    public Tensor? EntryBias => ((TorchSharp.Modules.Linear)_layers[0]).bias;
+    public Tensor? EntryBias => _chain.EntryBias;
 
     /// <inheritdoc />
-    public Tensor ScoreAfterEntry(Tensor entry)
-    {
-        var output = entry;
-        for (int i = 1; i < _layers.Length; i++)
-            output = _layers[i].call(output);
-        return output;
-    }
+    public Tensor ScoreAfterEntry(Tensor entry) => _chain.ScoreAfterEntry(entry);
 
     /// <summary>The outputs <c>[rows, outputs]</c> of raw inputs.</summary>
     public override Tensor forward(Tensor dense, Tensor categorical) => Score(Encode(dense, categorical));

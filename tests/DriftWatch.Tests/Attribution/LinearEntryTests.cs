@@ -198,6 +198,14 @@ public sealed class LinearEntryTests
     }
 
     [Fact]
+    public void ALayerChainMustOpenWithALinearLayer()
+    {
+        var error = Assert.Throws<ArgumentException>(() => new LayerChain([nn.ReLU(), nn.Linear(3, 1)]));
+        Assert.StartsWith("the first layer of the chain must be a linear layer; got ReLU", error.Message, StringComparison.Ordinal);
+        Assert.Throws<ArgumentException>(() => new LayerChain([]));
+    }
+
+    [Fact]
     public void DeclaringTheEntryLayerKeepsTheWeightNamesSnapshotsUse()
     {
         // Stored snapshots are state dictionaries: the entry split must not register the layers a second time.
