@@ -33,6 +33,13 @@ public sealed record MonitorOptions
     /// <summary>At most this many expanded rows go through the model at once. Default <see cref="AttributionInput.DefaultChunkRows"/> (2048).</summary>
     public int ChunkRows { get; init; } = AttributionInput.DefaultChunkRows;
 
+    /// <summary>
+    /// Memory one block of expanded rows may take in its forward and backward pass, in bytes: blocks get fewer rows than
+    /// <see cref="ChunkRows"/> when the model's rows are large (<see cref="MemoryBudget"/>). Default
+    /// <see cref="MemoryBudget.DefaultBytes"/> (256 MiB).
+    /// </summary>
+    public long MemoryBudgetBytes { get; init; } = MemoryBudget.DefaultBytes;
+
     /// <summary>Attribute every k-th epoch (metrics and snapshots are still kept every epoch). Default 1.</summary>
     public int AttributeEvery { get; init; } = 1;
 
@@ -110,6 +117,8 @@ public sealed record MonitorOptions
             throw new DriftWatchException($"method '{duplicate.Key}' is configured twice; each method may appear once");
         if (ChunkRows < 1)
             throw new DriftWatchException($"ChunkRows must be at least 1; got {ChunkRows}");
+        if (MemoryBudgetBytes < 1)
+            throw new DriftWatchException($"MemoryBudgetBytes must be at least 1; got {MemoryBudgetBytes}");
         if (AttributeEvery < 1)
             throw new DriftWatchException($"AttributeEvery must be at least 1; got {AttributeEvery}");
         if (Policy is null)

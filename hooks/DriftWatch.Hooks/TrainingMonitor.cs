@@ -380,13 +380,14 @@ public sealed class TrainingMonitor : IDisposable
             AttributionInput input;
             try
             {
-                input = AttributionInput.ForModel(model, target, features, baseline, _options.ChunkRows, _options.Schema);
+                input = AttributionInput.ForModel(model, target, features, baseline, _options.ChunkRows, _options.Schema, memoryBudgetBytes: _options.MemoryBudgetBytes);
             }
-            catch (DriftWatchException e) when (!_options.Strict)
+            catch (Exception e) when (!_options.Strict)
             {
-                // A declared entry layer that does not reproduce the score step: say so, and attribute the whole model.
+                // A declared entry layer that does not reproduce the score step, or a score step that fails on the rows it
+                // was checked on: say so, and attribute the whole model (the methods report a failing score step too).
                 failures.Add(Failure(epoch, "the entry layer check", e));
-                input = AttributionInput.ForModel(model, target, features, baseline, _options.ChunkRows, _options.Schema, splitAtEntry: false);
+                input = AttributionInput.ForModel(model, target, features, baseline, _options.ChunkRows, _options.Schema, splitAtEntry: false, _options.MemoryBudgetBytes);
             }
             var figures = new Dictionary<string, QualityFigures>(StringComparer.Ordinal);
 

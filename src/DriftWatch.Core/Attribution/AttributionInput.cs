@@ -42,18 +42,22 @@ public sealed record AttributionInput(Func<Tensor, Tensor> Score, Tensor Inputs,
 
     /// <summary>
     /// The input that attributes <paramref name="target"/> of <paramref name="model"/> over <paramref name="features"/>, with
-    /// the schema's column ownership and, when the model declares an entry layer and <paramref name="splitAtEntry"/> is
-    /// true, the split there after checking it on the first rows.
+    /// the schema's column ownership, blocks of at most <paramref name="chunkRows"/> expanded rows and fewer when
+    /// <paramref name="memoryBudgetBytes"/> holds fewer (<see cref="MemoryBudget"/>), and, when the model declares an
+    /// entry layer and <paramref name="splitAtEntry"/> is true, the split there after checking it on the first rows.
     /// </summary>
     /// <exception cref="DriftWatchException">The model's declared entry layer does not reproduce its score step.</exception>
-    public static AttributionInput ForModel(Model.IWatchedModel model, Model.AttributionTarget target, Tensor features, Tensor baseline, int chunkRows, Model.FeatureSchema schema, bool splitAtEntry = true)
+    public static AttributionInput ForModel(
+        Model.IWatchedModel model, Model.AttributionTarget target, Tensor features, Tensor baseline, int chunkRows, Model.FeatureSchema schema,
+        bool splitAtEntry = true, long memoryBudgetBytes = MemoryBudget.DefaultBytes)
     {
         ArgumentNullException.ThrowIfNull(model);
         ArgumentNullException.ThrowIfNull(target);
         Tensor Score(Tensor f) => target.Select(model.Score(f));
         var entry = splitAtEntry ? LinearEntry.Of(model, target) : null;
         entry?.Check(Score, features);
-        return new AttributionInput(Score, features, baseline, chunkRows) { Entry = entry }.WithSchema(schema);
+        int rows = MemoryBudget.ChunkRows(MemoryBudget.BytesPerRow(model.Module, Score, features), memoryBudgetBytes, chunkRows);
+        return new AttributionInput(Score, features, baseline, rows) { Entry = entry }.WithSchema(schema);
     }
 
     /// <summary>The same input with the column ownership of <paramref name="schema"/>.</summary>

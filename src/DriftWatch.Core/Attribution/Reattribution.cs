@@ -48,6 +48,9 @@ public sealed record ReattributionRequest
     /// <summary>At most this many expanded rows go through the model at once. Default <see cref="AttributionInput.DefaultChunkRows"/> (2048).</summary>
     public int ChunkRows { get; init; } = AttributionInput.DefaultChunkRows;
 
+    /// <summary>Memory one block may take, in bytes; fewer rows than <see cref="ChunkRows"/> when the model's rows are large. Default <see cref="MemoryBudget.DefaultBytes"/> (256 MiB).</summary>
+    public long MemoryBudgetBytes { get; init; } = MemoryBudget.DefaultBytes;
+
     /// <summary>Measure the new maps' quality figures too. Default: null, off.</summary>
     public QualityOptions? Quality { get; init; }
 
@@ -235,6 +238,8 @@ public static class Reattribution
         CheckName(store, run, request, request.Name);
         if (request.ChunkRows < 1)
             throw new DriftWatchException($"chunk rows must be at least 1; got {request.ChunkRows}");
+        if (request.MemoryBudgetBytes < 1)
+            throw new DriftWatchException($"the memory budget must be at least 1 byte; got {request.MemoryBudgetBytes}");
         if (request.FirstEpoch > request.LastEpoch)
             throw new DriftWatchException($"the epoch range {Range(request)} is empty; give the first epoch before the last");
         request.Quality?.Validate();
@@ -309,7 +314,7 @@ public static class Reattribution
         if (features.dim() != 2 || features.shape[0] != probe.Count || features.shape[1] != schema.ColumnCount)
             throw new DriftWatchException($"encode returned shape [{string.Join(", ", features.shape)}]; expected [{probe.Count}, {schema.ColumnCount}] as the run's schema says");
         var baseline = baselineChoice.Resolve(features[TensorIndex.Slice(probe.HeldOutCount, probe.Count)], schema.ColumnCount);
-        var input = AttributionInput.ForModel(model, target, features, baseline, request.ChunkRows, schema);
+        var input = AttributionInput.ForModel(model, target, features, baseline, request.ChunkRows, schema, memoryBudgetBytes: request.MemoryBudgetBytes);
 
         var watch = Stopwatch.StartNew();
         var columns = request.Method.Attribute(input);
