@@ -43,6 +43,14 @@ Example::
 
 Then, in another shell (or the morning after): ``driftwatch follow runs/night-7 --store runs/store.litedb``.
 
+Optional, when ``score`` applies a ``torch.nn.Linear`` to the features first (``body.0`` above): export the rest of
+``score`` as ``score_after_entry(entry)`` and pass ``entry_layer="body.0"``. DriftWatch then walks Integrated
+Gradients' path in that layer's output, which gives the same attributions for less work::
+
+        @torch.jit.export
+        def score_after_entry(self, entry: torch.Tensor) -> torch.Tensor:
+            return self.body[2](self.body[1](entry))
+
 Files written (the run-folder contract, README "Watching a PyTorch run"):
 
 * ``schema.json``: the features in feature-space order, each with its kind and the columns it owns;
@@ -61,6 +69,7 @@ import os
 import torch
 
 SCHEMA_FILE = "schema.json"
+ENTRY_METHOD = "score_after_entry"
 PROBE_FILE = "probe.csv"
 METRICS_FILE = "metrics.jsonl"
 FINISHED_FILE = "finished"
@@ -87,7 +96,7 @@ def categorical(name, width):
 class RunFolderWriter:
     """Writes one run folder: the schema and probe rows once, then a snapshot and a metrics line per epoch."""
 
-    def __init__(self, folder, features, held_out, training, target="logit", training_cats=None):
+    def __init__(self, folder, features, held_out, training, target="logit", training_cats=None, entry_layer=None):
         """Prepares ``folder`` (created if missing).
 
         ``features``: ``dense(...)`` and ``categorical(...)`` entries in the order ``encode`` lays out their columns.
@@ -96,6 +105,9 @@ class RunFolderWriter:
         ``target``: the attributed output: ``logit``, ``probability``, ``regression`` or ``class N``.
         ``training_cats``: optional, the categorical ids of every training row ``[rows, categoricals]``; the counts of
         each id let DriftWatch recognise identifier-like features (most ids in one to three rows).
+        ``entry_layer``: optional, the module path (as ``named_modules()`` names it) of the ``torch.nn.Linear`` that
+        ``score`` applies to the features first; the model must then export ``score_after_entry``, the rest of
+        ``score``. Checked on the held-out rows at the first epoch.
         """
         self.folder = str(folder)
         self.features = [dict(f) for f in features]
@@ -108,6 +120,7 @@ class RunFolderWriter:
         self.held_out = tuple(_as_tensors(held_out, "held_out"))
         self.training = tuple(_as_tensors(training, "training"))
         self.training_cats = None if training_cats is None else torch.as_tensor(training_cats, dtype=torch.int64)
+        self.entry_layer = None if entry_layer is None else str(entry_layer)
         self._first = True
         self._last_epoch = None
         os.makedirs(self.folder, exist_ok=True)
@@ -172,7 +185,24 @@ class RunFolderWriter:
             if features.dim() != 2 or features.shape[1] != self.column_count or features.shape[0] != dense_rows.shape[0]:
                 raise ValueError("encode returned shape %s; the schema declares %d feature-space columns per row"
                                  % (list(features.shape), self.column_count))
-            scripted.score(features)
+            scores = scripted.score(features)
+            if self.entry_layer is not None:
+                self._check_entry(scripted, features, scores)
+
+    def _check_entry(self, scripted, features, scores):
+        if not hasattr(scripted, ENTRY_METHOD):
+            raise TypeError("entry_layer is given but the model has no TorchScript method %r; define it (the rest of score "
+                            "after the entry layer) and mark it @torch.jit.export" % ENTRY_METHOD)
+        parameters = dict(scripted.named_parameters())
+        weight = parameters.get(self.entry_layer + ".weight")
+        if weight is None:
+            raise ValueError("entry_layer %r has no weight; layers with one: %s" % (
+                self.entry_layer, ", ".join(k[:-len(".weight")] for k in parameters if k.endswith(".weight"))))
+        entry = torch.nn.functional.linear(features, weight, parameters.get(self.entry_layer + ".bias"))
+        split = getattr(scripted, ENTRY_METHOD)(entry)
+        if split.shape != scores.shape or not torch.allclose(split, scores, rtol=1e-4, atol=1e-5):
+            raise ValueError("%s(linear(features)) through entry_layer %r does not reproduce score(features); "
+                             "check that score applies that layer first and %s runs the rest" % (ENTRY_METHOD, self.entry_layer, ENTRY_METHOD))
 
     def _write_schema(self):
         column = 0
@@ -182,6 +212,9 @@ class RunFolderWriter:
             column += f["width"]
         document = {"contract": CONTRACT_VERSION, "target": self.target, "encodeMethod": "encode", "scoreMethod": "score",
                     "features": described}
+        if self.entry_layer is not None:
+            document["entryLayer"] = self.entry_layer
+            document["scoreAfterEntryMethod"] = ENTRY_METHOD
         if self.training_cats is not None:
             cat_names = [f["name"] for f in self.features if f["kind"] == "categorical"]
             if self.training_cats.dim() != 2 or self.training_cats.shape[1] != len(cat_names):

@@ -89,8 +89,8 @@ internal static class FollowCommand
                     Check(runFolder, epoch);
                 foreach (var epoch in pending)
                 {
-                    using var model = TorchScriptModel.Load(epoch.SnapshotPath, runFolder.Schema, runFolder.EncodeMethod, runFolder.ScoreMethod);
-                    latest = monitor.EndEpoch(model, epoch.Epoch, epoch.Metrics);
+                    using var model = TorchScriptModel.Load(epoch.SnapshotPath, runFolder.Schema, runFolder.EncodeMethod, runFolder.ScoreMethod, runFolder.Entry);
+                    latest = monitor.EndEpoch(model.Watched, epoch.Epoch, epoch.Metrics);
                     Print(output, latest);
                     if (latest.IsHalt)
                     {
@@ -124,7 +124,7 @@ internal static class FollowCommand
     private static void Check(RunFolder folder, FolderEpoch epoch)
     {
         using var scope = torch.NewDisposeScope();
-        using var model = TorchScriptModel.Load(epoch.SnapshotPath, folder.Schema, folder.EncodeMethod, folder.ScoreMethod);
+        using var model = TorchScriptModel.Load(epoch.SnapshotPath, folder.Schema, folder.EncodeMethod, folder.ScoreMethod, folder.Entry);
         var rows = folder.Probe.Rows;
         var dense = torch.tensor(rows.Dense, [rows.Count, rows.DenseCount]);
         var categorical = torch.tensor(rows.Categorical, [rows.Count, rows.CategoricalCount]);

@@ -35,8 +35,9 @@ internal sealed partial class RunFolder
     public const string FinishedFile = "finished";
 
     private RunFolder(string path, FeatureSchema schema, ProbeSet probe, AttributionTarget target, string encodeMethod, string scoreMethod,
-        ImmutableDictionary<string, ImmutableDictionary<long, int>> valueCounts)
+        TorchScriptEntry? entry, ImmutableDictionary<string, ImmutableDictionary<long, int>> valueCounts)
     {
+        Entry = entry;
         Path = path;
         Schema = schema;
         Probe = probe;
@@ -64,6 +65,9 @@ internal sealed partial class RunFolder
     /// <summary>The score method's name in each snapshot.</summary>
     public string ScoreMethod { get; }
 
+    /// <summary>The linear layer the score method applies first and the method after it (<c>entryLayer</c>, <c>scoreAfterEntryMethod</c>), or null.</summary>
+    public TorchScriptEntry? Entry { get; }
+
     /// <summary>Per categorical feature, training rows per id (empty when the schema gives none).</summary>
     public ImmutableDictionary<string, ImmutableDictionary<long, int>> TrainingValueCounts { get; }
 
@@ -80,9 +84,9 @@ internal sealed partial class RunFolder
         string schemaPath = System.IO.Path.Combine(path, SchemaFile);
         if (!File.Exists(schemaPath))
             throw new DriftWatchException($"run folder '{folder}' has no {SchemaFile}; the Python helper writes it at the first epoch");
-        var (schema, target, encode, score, counts) = ReadSchema(schemaPath);
+        var (schema, target, encode, score, entry, counts) = ReadSchema(schemaPath);
         var probe = ReadProbe(System.IO.Path.Combine(path, ProbeFile), schema);
-        return new RunFolder(path, schema, probe, target, encode, score, counts);
+        return new RunFolder(path, schema, probe, target, encode, score, entry, counts);
     }
 
     /// <summary>Whether the training loop has closed the folder.</summary>
@@ -118,7 +122,7 @@ internal sealed partial class RunFolder
     [GeneratedRegex(@"^epoch-(\d{1,9})\.pt$", RegexOptions.CultureInvariant)]
     private static partial Regex SnapshotName();
 
-    private static (FeatureSchema, AttributionTarget, string, string, ImmutableDictionary<string, ImmutableDictionary<long, int>>) ReadSchema(string path)
+    private static (FeatureSchema, AttributionTarget, string, string, TorchScriptEntry?, ImmutableDictionary<string, ImmutableDictionary<long, int>>) ReadSchema(string path)
     {
         string Bad(string what) => $"schema file '{path}': {what}";
         JsonDocument document;
@@ -166,6 +170,13 @@ internal sealed partial class RunFolder
             var target = AttributionTarget.Parse(Text(root, "target") ?? "logit");
             string encode = Text(root, "encodeMethod") ?? "encode";
             string score = Text(root, "scoreMethod") ?? "score";
+            string? entryLayer = Text(root, "entryLayer");
+            string? afterEntry = Text(root, "scoreAfterEntryMethod");
+            if (entryLayer is null && afterEntry is not null)
+                throw new DriftWatchException(Bad("\"scoreAfterEntryMethod\" is given without \"entryLayer\"; name the linear layer the score method applies first, or drop both"));
+            if (entryLayer is not null && entryLayer.Trim().Length == 0)
+                throw new DriftWatchException(Bad("\"entryLayer\" is empty; give the module path of the score method's first linear layer (e.g. \"body.0\") or drop it"));
+            var entry = entryLayer is null ? null : new TorchScriptEntry(entryLayer, afterEntry ?? "score_after_entry");
             var counts = ImmutableDictionary<string, ImmutableDictionary<long, int>>.Empty;
             if (root.TryGetProperty("trainingValueCounts", out var perFeature) && perFeature.ValueKind == JsonValueKind.Object)
             {
@@ -181,7 +192,7 @@ internal sealed partial class RunFolder
                     counts = counts.SetItem(feature.Name, values.ToImmutable());
                 }
             }
-            return (schema, target, encode, score, counts);
+            return (schema, target, encode, score, entry, counts);
         }
     }
 

@@ -4,6 +4,15 @@ using static TorchSharp.torch;
 namespace DriftWatch.Model;
 
 /// <summary>
+/// The linear layer a TorchScript model's score method applies first, and the exported method that runs the rest
+/// (see <see cref="ILinearEntry"/>).
+/// </summary>
+/// <param name="Layer">The layer's module path as <c>named_modules()</c> names it (e.g. <c>body.0</c>); its parameters
+/// <c>Layer.weight</c> <c>[units, columns]</c> and, if present, <c>Layer.bias</c> are the entry.</param>
+/// <param name="Method">The exported method that takes the layer's output to the score method's output.</param>
+public sealed record TorchScriptEntry(string Layer, string Method);
+
+/// <summary>
 /// A watched model loaded from a TorchScript file whose module exports an encode method and a score method
 /// (for example a snapshot written by <c>hooks/driftwatch_follow.py</c>).
 /// </summary>
@@ -14,15 +23,24 @@ namespace DriftWatch.Model;
 public sealed class TorchScriptModel : IWatchedModel, IDisposable
 {
     private readonly jit.ScriptModule _module;
+    private Tensor? _entryWeight;
+    private Tensor? _entryBias;
 
-    private TorchScriptModel(string path, jit.ScriptModule module, FeatureSchema schema, string encodeMethod, string scoreMethod)
+    private TorchScriptModel(string path, jit.ScriptModule module, FeatureSchema schema, string encodeMethod, string scoreMethod, TorchScriptEntry? entry)
     {
         Path = path;
         _module = module;
         Schema = schema;
         EncodeMethod = encodeMethod;
         ScoreMethod = scoreMethod;
+        Entry = entry;
     }
+
+    /// <summary>The entry layer the run folder declares, or null.</summary>
+    public TorchScriptEntry? Entry { get; }
+
+    /// <summary>The model to watch: this one, or, with an <see cref="Entry"/>, this one declaring it as an <see cref="ILinearEntry"/>.</summary>
+    public IWatchedModel Watched => Entry is null ? this : new DeclaredEntry(this);
 
     /// <summary>The file the module was loaded from.</summary>
     public string Path { get; }
@@ -44,8 +62,9 @@ public sealed class TorchScriptModel : IWatchedModel, IDisposable
     /// <param name="schema">The features and the columns each owns, in the order the encode method lays them out.</param>
     /// <param name="encodeMethod">The encode method's name. Default <c>encode</c>.</param>
     /// <param name="scoreMethod">The score method's name. Default <c>score</c>.</param>
-    /// <exception cref="DriftWatchException">The file is missing, is not TorchScript, or lacks one of the methods.</exception>
-    public static TorchScriptModel Load(string path, FeatureSchema schema, string encodeMethod = "encode", string scoreMethod = "score")
+    /// <param name="entry">The entry layer and the method after it, when the run folder declares them. Default none.</param>
+    /// <exception cref="DriftWatchException">The file is missing, is not TorchScript, or lacks one of the methods or the entry layer's weight.</exception>
+    public static TorchScriptModel Load(string path, FeatureSchema schema, string encodeMethod = "encode", string scoreMethod = "score", TorchScriptEntry? entry = null)
     {
         ArgumentNullException.ThrowIfNull(path);
         ArgumentNullException.ThrowIfNull(schema);
@@ -62,11 +81,12 @@ public sealed class TorchScriptModel : IWatchedModel, IDisposable
         {
             throw new DriftWatchException($"TorchScript snapshot '{path}' could not be loaded ({FirstLine(e.Message)}); write it with torch.jit.save of a torch.jit.script module", e);
         }
-        var model = new TorchScriptModel(path, module, schema, encodeMethod, scoreMethod);
+        var model = new TorchScriptModel(path, module, schema, encodeMethod, scoreMethod, entry);
         try
         {
             model._module.eval();
             model.CheckMethods();
+            model.FindEntry();
         }
         catch
         {
@@ -130,11 +150,25 @@ public sealed class TorchScriptModel : IWatchedModel, IDisposable
             ?? throw new DriftWatchException($"TorchScript snapshot '{Path}': {method} returned {result?.GetType().Name ?? "nothing"}, not one tensor");
     }
 
+    private void FindEntry()
+    {
+        if (Entry is null)
+            return;
+        var parameters = _module.named_parameters().ToDictionary(p => p.name, p => p.parameter, StringComparer.Ordinal);
+        if (!parameters.TryGetValue(Entry.Layer + ".weight", out var weight))
+        {
+            string layers = string.Join(", ", parameters.Keys.Where(k => k.EndsWith(".weight", StringComparison.Ordinal)).Select(k => k[..^".weight".Length]).Take(12));
+            throw new DriftWatchException($"TorchScript snapshot '{Path}' has no parameter '{Entry.Layer}.weight' for the entry layer schema.json names; layers with a weight: {(layers.Length == 0 ? "none" : layers)}");
+        }
+        _entryWeight = weight;
+        _entryBias = parameters.GetValueOrDefault(Entry.Layer + ".bias");
+    }
+
     private void CheckMethods()
     {
         // A scripted module keeps only exported methods; probing with a tiny input tells a missing method apart
         // from one that merely rejects the input, since TorchSharp reports both as a native error.
-        foreach (string method in new[] { EncodeMethod, ScoreMethod })
+        foreach (string method in Entry is null ? [EncodeMethod, ScoreMethod] : new[] { EncodeMethod, ScoreMethod, Entry.Method })
         {
             if (!HasMethod(method))
                 throw new DriftWatchException($"TorchScript snapshot '{Path}' has no method '{method}'; define it on the module and mark it @torch.jit.export before torch.jit.script");
@@ -159,6 +193,24 @@ public sealed class TorchScriptModel : IWatchedModel, IDisposable
         message.Contains("Method '", StringComparison.Ordinal) && message.Contains("is not defined", StringComparison.Ordinal)
         || message.Contains("does not have a field with name", StringComparison.Ordinal)
         || message.Contains("has no attribute", StringComparison.Ordinal);
+
+    // The same model declaring its entry layer; the snapshot's weights are read when an attribution starts.
+    private sealed class DeclaredEntry(TorchScriptModel model) : IWatchedModel, ILinearEntry
+    {
+        public FeatureSchema Schema => model.Schema;
+
+        public nn.Module Module => model.Module;
+
+        public Tensor EntryWeight => model._entryWeight!;
+
+        public Tensor? EntryBias => model._entryBias;
+
+        public Tensor Encode(Tensor dense, Tensor categorical) => model.Encode(dense, categorical);
+
+        public Tensor Score(Tensor features) => model.Score(features);
+
+        public Tensor ScoreAfterEntry(Tensor entry) => model.Invoke(model.Entry!.Method, entry);
+    }
 
     private static string FirstLine(string message)
     {

@@ -221,11 +221,46 @@ public sealed class FollowTests : IClassFixture<PythonRunFixture>
         Assert.Equal([1, 2, 3, 4], reading.Epochs(reading.GetRun("night").Id).Select(e => e.Epoch));
     }
 
+    [Fact]
+    public void WithoutItsEntryLayerTheRunGetsTheSameAttributions()
+    {
+        if (!Available())
+            return;
+        // The Python run declares body.0 as its entry layer (train_small_run.py), so follow walks the path past it; the
+        // same folder without the declaration is attributed through the whole score method.
+        Assert.Contains("\"entryLayer\": \"body.0\"", File.ReadAllText(Path.Combine(_run.Folder, "schema.json")), StringComparison.Ordinal);
+        string plain = _run.CopyFolder("no-entry");
+        Rewrite(Path.Combine(plain, "schema.json"), "\"entryLayer\": \"body.0\",", "");
+        Rewrite(Path.Combine(plain, "schema.json"), "\"scoreAfterEntryMethod\": \"score_after_entry\",", "");
+        Assert.DoesNotContain("entry", File.ReadAllText(Path.Combine(plain, "schema.json")), StringComparison.OrdinalIgnoreCase);
+        string withEntry = NewStore(), without = NewStore();
+        Assert.Equal(ExitCodes.Fine, Follow(_run.Folder, "--store", withEntry, "--once").Code);
+        Assert.Equal(ExitCodes.Fine, Follow(plain, "--store", without, "--once", "--run", "greenhouse-py").Code);
+
+        using var a = RunStore.OpenForReading(withEntry);
+        using var b = RunStore.OpenForReading(without);
+        Assert.All(a.Epochs(a.GetRun("greenhouse-py").Id), e => Assert.Empty(e.Problems)); // the entry check passed every epoch
+        var mapsA = a.Maps(a.GetRun("greenhouse-py").Id, "integrated-gradients");
+        var mapsB = b.Maps(b.GetRun("greenhouse-py").Id, "integrated-gradients");
+        Assert.Equal(4, mapsA.Count);
+        Assert.Equal(mapsA.Count, mapsB.Count);
+        for (int m = 0; m < mapsA.Count; m++)
+        {
+            var x = FloatBytes.ToFloats(mapsA[m].Scores);
+            var y = FloatBytes.ToFloats(mapsB[m].Scores);
+            Assert.Equal(x.Length, y.Length);
+            Assert.True(x.Max(Math.Abs) > 0.1, "the attributions are all near zero; the comparison would say nothing");
+            for (int i = 0; i < x.Length; i++)
+                Assert.True(Math.Abs(x[i] - y[i]) <= 1e-5, $"epoch {mapsA[m].Epoch}, value {i}: {x[i]} through the entry, {y[i]} without");
+        }
+    }
+
     [Theory]
     [InlineData("missing-epoch", "epoch 2 is missing its snapshot epoch-0002.pt", ExitCodes.BadInput)]
     [InlineData("corrupt-snapshot", "epoch-0003.pt' could not be loaded", ExitCodes.Fine)]
     [InlineData("missing-method", "epoch-0001.pt' has no method 'predict'", ExitCodes.Fine)]
     [InlineData("narrow-schema", "encode returned shape [64, 7] for 64 probe rows; the schema declares [64, 6]", ExitCodes.BadInput)]
+    [InlineData("missing-entry-layer", "epoch-0001.pt' has no parameter 'body.9.weight' for the entry layer schema.json names; layers with a weight: bay, body.0, body.2", ExitCodes.Fine)]
     public void ABadFolderGetsOneClearLineAndLeavesTheStoreAlone(string damage, string expected, int resumedCode)
     {
         if (!Available())
@@ -243,6 +278,9 @@ public sealed class FollowTests : IClassFixture<PythonRunFixture>
                 break;
             case "missing-method":
                 Rewrite(Path.Combine(folder, "schema.json"), "\"scoreMethod\": \"score\"", "\"scoreMethod\": \"predict\"");
+                break;
+            case "missing-entry-layer":
+                Rewrite(Path.Combine(folder, "schema.json"), "\"entryLayer\": \"body.0\"", "\"entryLayer\": \"body.9\"");
                 break;
             default:
                 Rewrite(Path.Combine(folder, "schema.json"), "\"columnCount\": 3", "\"columnCount\": 2");

@@ -41,6 +41,10 @@ class Model(torch.nn.Module):
     def score(self, features: torch.Tensor) -> torch.Tensor:
         return self.body(features)
 
+    @torch.jit.export
+    def score_after_entry(self, entry: torch.Tensor) -> torch.Tensor:
+        return self.body[2](self.body[1](entry))
+
     def forward(self, dense: torch.Tensor, cats: torch.Tensor) -> torch.Tensor:
         return self.score(self.encode(dense, cats))
 
@@ -65,7 +69,7 @@ def integrated_gradients(m, d, c):
     cols = total / steps * x
     return torch.cat([cols[:, :4], cols[:, 4:].sum(dim=1, keepdim=True)], dim=1)
 
-with RunFolderWriter(folder, features, probe_held, probe_train, training_cats=train_c) as run:
+with RunFolderWriter(folder, features, probe_held, probe_train, training_cats=train_c, entry_layer="body.0") as run:
     for epoch in range(1, epochs + 1):
         model.train()
         for start in range(0, 256, 32):
