@@ -14,22 +14,6 @@ namespace DriftWatch.Tests.Attribution;
 /// <summary>Integrated Gradients along the path in a model's affine entry layer (<see cref="ILinearEntry"/>).</summary>
 public sealed class LinearEntryTests
 {
-    // Three dense features and one categorical of 5 ids, the shape RowsBuilder and TestProbes.Small produce.
-    private static TabularNetSettings Settings(params int[] hidden) => new()
-    {
-        DenseNames = ["dense 1", "dense 2", "dense 3"],
-        Categoricals = [new CategoricalEmbedding("colour", 5, 4)],
-        HiddenWidths = [.. hidden],
-        Activation = HiddenActivation.GELU,
-    };
-
-    private static Tensor Features(IWatchedModel model, int rows, int seed = 3)
-    {
-        var data = new RowsBuilder().WithRows(rows).WithSeed(seed).Build();
-        using var noGrad = torch.no_grad();
-        return model.Encode(torch.tensor(data.Dense, [rows, 3]), torch.tensor(data.Categorical, [rows, 1])).detach();
-    }
-
     private static void AssertClose(float[] expected, float[] actual)
     {
         Assert.Equal(expected.Length, actual.Length);
@@ -49,10 +33,10 @@ public sealed class LinearEntryTests
         // Sundararajan, Taly, Yan 2017, §3: IG integrates ∂F/∂x_i along x′ + α(x − x′). An affine first layer maps that
         // straight line to the straight line between the ends' images and contributes its weight to every gradient
         // (the chain rule), so both routes give the same numbers up to float rounding.
-        using var model = new TabularNet(Settings(16, 8));
+        using var model = new TabularNet(RowsShapedModels.Settings(16, 8));
         model.eval();
         using var scope = torch.NewDisposeScope();
-        var features = Features(model, 37);
+        var features = RowsShapedModels.Features(model, 37);
         var baseline = rowBaselines ? features.flip(0) * 0.5 : torch.zeros(features.shape[1]);
         var method = new IntegratedGradients(16);
 
@@ -108,10 +92,10 @@ public sealed class LinearEntryTests
     {
         // Sundararajan, Taly, Yan 2017, Eq. 1: for F(x) = w·x + b the path gradient is w everywhere, so IG_i = (x_i − x′_i)·w_i.
         // With no hidden layer the rest of the score step is the identity on the entry's single unit.
-        using var model = new TabularNet(Settings());
+        using var model = new TabularNet(RowsShapedModels.Settings());
         model.eval();
         using var scope = torch.NewDisposeScope();
-        var features = Features(model, 9);
+        var features = RowsShapedModels.Features(model, 9);
         var baseline = torch.full(features.shape[1], 0.25f);
         var columns = new IntegratedGradients(3).Attribute(AttributionInput.ForModel(model, AttributionTarget.Logit, features, baseline, 64, model.Schema));
 
@@ -127,10 +111,10 @@ public sealed class LinearEntryTests
     [Fact]
     public void AdaptiveStepsTakeTheEntryPathToo()
     {
-        using var model = new TabularNet(Settings(16, 8));
+        using var model = new TabularNet(RowsShapedModels.Settings(16, 8));
         model.eval();
         using var scope = torch.NewDisposeScope();
-        var features = Features(model, 20);
+        var features = RowsShapedModels.Features(model, 20);
         var baseline = torch.zeros(features.shape[1]);
         var method = new AdaptiveIntegratedGradients(initialSteps: 4, maximumSteps: 64, tolerance: 0.001);
 
@@ -146,17 +130,17 @@ public sealed class LinearEntryTests
     {
         using var model = new SmallNet(3, 5, 4);
         using var scope = torch.NewDisposeScope();
-        var features = Features(model, 4);
+        var features = RowsShapedModels.Features(model, 4);
         Assert.Null(AttributionInput.ForModel(model, AttributionTarget.Logit, features, torch.zeros(7), 64, model.Schema).Entry);
     }
 
     [Fact]
     public void AnEntryThatDoesNotReproduceTheScoreStepIsRefusedWithTheRowAndTheFix()
     {
-        using var inner = new TabularNet(Settings(8));
+        using var inner = new TabularNet(RowsShapedModels.Settings(8));
         using var skewed = new DeclaredEntry(inner, shift: 0.5f);
         using var scope = torch.NewDisposeScope();
-        var features = Features(inner, 12);
+        var features = RowsShapedModels.Features(inner, 12);
 
         var error = Assert.Throws<DriftWatchException>(() => AttributionInput.ForModel(skewed, AttributionTarget.Logit, features, torch.zeros(7), 64, inner.Schema));
         Assert.Contains("does not reproduce its score step: row 0", error.Message, StringComparison.Ordinal);
@@ -171,7 +155,7 @@ public sealed class LinearEntryTests
     public void TheMonitorReportsABadEntryAndAttributesTheWholeModel()
     {
         using var temp = new TempFolder();
-        using var inner = new TabularNet(Settings(8));
+        using var inner = new TabularNet(RowsShapedModels.Settings(8));
         using var skewed = new DeclaredEntry(inner, shift: 0.5f);
         using var monitor = new TrainingMonitor(new MonitorOptions
         {
@@ -215,7 +199,7 @@ public sealed class LinearEntryTests
             ["_embeddings.0.weight", "_embeddings.1.weight", "_embeddings.2.weight", "_embeddings.3.weight", "_embeddings.4.weight",
              "_scorer.0.weight", "_scorer.0.bias", "_scorer.3.weight", "_scorer.3.bias", "_scorer.6.weight", "_scorer.6.bias"],
             demo.state_dict().Keys.ToArray());
-        using var tabular = new TabularNet(Settings(16, 8));
+        using var tabular = new TabularNet(RowsShapedModels.Settings(16, 8));
         Assert.Equal(
             ["_embeddings.0.weight", "_scorer.0.weight", "_scorer.0.bias", "_scorer.2.weight", "_scorer.2.bias", "_scorer.4.weight", "_scorer.4.bias"],
             tabular.state_dict().Keys.ToArray());

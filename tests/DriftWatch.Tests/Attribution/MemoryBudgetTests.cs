@@ -11,21 +11,8 @@ namespace DriftWatch.Tests.Attribution;
 
 public sealed class MemoryBudgetTests
 {
-    // Three dense features and a categorical of 5 ids in 4 columns (7 feature-space columns), one hidden layer of 1,000.
-    private static TabularNet WideRows() => new(new TabularNetSettings
-    {
-        DenseNames = ["dense 1", "dense 2", "dense 3"],
-        Categoricals = [new CategoricalEmbedding("colour", 5, 4)],
-        HiddenWidths = [1000],
-        Activation = HiddenActivation.GELU,
-    });
-
-    private static Tensor Features(IWatchedModel model, int rows)
-    {
-        var data = new RowsBuilder().WithRows(rows).Build();
-        using var noGrad = torch.no_grad();
-        return model.Encode(torch.tensor(data.Dense, [rows, 3]), torch.tensor(data.Categorical, [rows, 1])).detach();
-    }
+    // RowsBuilder's shape (7 feature-space columns) with one hidden layer of 1,000 units.
+    private static TabularNet WideRows() => new(RowsShapedModels.Settings(1000));
 
     [Fact]
     public void ARowCostsItsLayersOutputsTwiceAndItself()
@@ -36,7 +23,7 @@ public sealed class MemoryBudgetTests
         using var model = WideRows();
         model.eval();
         using var scope = torch.NewDisposeScope();
-        var features = Features(model, 10);
+        var features = RowsShapedModels.Features(model, 10);
 
         long bytes = MemoryBudget.BytesPerRow(model, f => model.Score(f).squeeze(1), features);
 
@@ -59,7 +46,7 @@ public sealed class MemoryBudgetTests
         using var model = WideRows();
         model.eval();
         using var scope = torch.NewDisposeScope();
-        var features = Features(model, 24);
+        var features = RowsShapedModels.Features(model, 24);
         var baseline = torch.zeros(7);
 
         var tight = AttributionInput.ForModel(model, AttributionTarget.Logit, features, baseline, 2048, model.Schema, memoryBudgetBytes: 1 << 20);
@@ -100,7 +87,7 @@ public sealed class MemoryBudgetTests
     {
         using var model = WideRows();
         using var scope = torch.NewDisposeScope();
-        var features = Features(model, 4);
+        var features = RowsShapedModels.Features(model, 4);
 
         Assert.Equal(0, MemoryBudget.BytesPerRow(model, f => f.sum(dim: 1), features));
     }

@@ -61,3 +61,27 @@ internal sealed class SmallNet : nn.Module<Tensor, Tensor, Tensor>, IWatchedMode
 
     public override Tensor forward(Tensor dense, Tensor categorical) => Score(Encode(dense, categorical));
 }
+
+/// <summary>
+/// Tabular models shaped for <see cref="RowsBuilder"/>'s rows: three dense features and a categorical of 5 ids in 4
+/// columns (7 feature-space columns), GELU between the hidden layers.
+/// </summary>
+internal static class RowsShapedModels
+{
+    /// <summary>The settings, with <paramref name="hidden"/> the widths of the hidden layers (none: a linear model).</summary>
+    public static DriftWatch.Hooks.Models.TabularNetSettings Settings(params int[] hidden) => new()
+    {
+        DenseNames = ["dense 1", "dense 2", "dense 3"],
+        Categoricals = [new DriftWatch.Hooks.Models.CategoricalEmbedding("colour", 5, 4)],
+        HiddenWidths = [.. hidden],
+        Activation = DriftWatch.Hooks.Models.HiddenActivation.GELU,
+    };
+
+    /// <summary><paramref name="rows"/> rows from <see cref="RowsBuilder"/> (seed <paramref name="seed"/>) in the model's feature space.</summary>
+    public static Tensor Features(IWatchedModel model, int rows, int seed = 3)
+    {
+        var data = new RowsBuilder().WithRows(rows).WithSeed(seed).Build();
+        using var noGrad = torch.no_grad();
+        return model.Encode(torch.tensor(data.Dense, [rows, 3]), torch.tensor(data.Categorical, [rows, 1])).detach();
+    }
+}
