@@ -108,7 +108,7 @@ public sealed record GatePolicy
         ["seed"] = "integer",
         ["cusumAllowance"] = "number ≥ 0",
         ["cusumThreshold"] = "number > 0",
-        ["haltOn"] = "array of " + string.Join(", ", Enum.GetNames<FindingKind>()),
+        ["haltOn"] = "array of " + string.Join(", ", FindingKinds.Names),
         ["singleMethodMayHalt"] = "true or false",
     }.ToImmutableDictionary();
 
@@ -176,7 +176,7 @@ public sealed record GatePolicy
             ["seed"] = Seed,
             ["cusumAllowance"] = CusumAllowance,
             ["cusumThreshold"] = CusumThreshold,
-            ["haltOn"] = HaltOn.Select(k => k.ToString()).ToArray(),
+            ["haltOn"] = HaltOn.Select(FindingKinds.NameOf).ToArray(),
             ["singleMethodMayHalt"] = SingleMethodMayHalt,
         };
         return JsonSerializer.Serialize(values, new JsonSerializerOptions { WriteIndented = true });
@@ -235,8 +235,7 @@ public sealed record GatePolicy
         var kinds = ImmutableArray.CreateBuilder<FindingKind>();
         foreach (var item in value.EnumerateArray())
         {
-            if (item.ValueKind != JsonValueKind.String || !Enum.TryParse(item.GetString(), ignoreCase: false, out FindingKind kind) || !Enum.IsDefined(kind)
-                || int.TryParse(item.GetString(), NumberStyles.Integer, CultureInfo.InvariantCulture, out _))
+            if (item.ValueKind != JsonValueKind.String || !FindingKinds.TryParse(item.GetString(), out FindingKind kind))
                 throw bad();
             kinds.Add(kind);
         }

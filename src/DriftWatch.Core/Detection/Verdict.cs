@@ -40,6 +40,31 @@ public enum FindingKind
     MonitoringFailure,
 }
 
+/// <summary>Finding kinds by their stored names (the names policies and stores use).</summary>
+public static class FindingKinds
+{
+    /// <summary>The names of every kind this version knows, in verdict order.</summary>
+    public static IReadOnlyList<string> Names { get; } = Enum.GetNames<FindingKind>();
+
+    /// <summary>The kind with this exact (case-sensitive) stored name; false when this version knows none.</summary>
+    public static bool TryParse(string? name, out FindingKind kind)
+    {
+        foreach (var known in Enum.GetValues<FindingKind>())
+        {
+            if (string.Equals(known.ToString(), name, StringComparison.Ordinal))
+            {
+                kind = known;
+                return true;
+            }
+        }
+        kind = default;
+        return false;
+    }
+
+    /// <summary>The stored name of a kind.</summary>
+    public static string NameOf(FindingKind kind) => kind.ToString();
+}
+
 /// <summary>A flagged feature (or the run as a whole) at an epoch, with its size and the evidence behind it.</summary>
 /// <param name="Kind">What the finding is about.</param>
 /// <param name="Severity">The verdict this finding alone asks for.</param>
