@@ -559,7 +559,7 @@ public sealed class TrainingMonitor : IDisposable
     }
 
     private static Finding Failure(int epoch, string where, Exception e) =>
-        new(FindingKind.MonitoringFailure, VerdictKind.Caution, "", 0, 0, [epoch],
+        new(FindingKind.MonitoringFailure, VerdictKind.Caution, "", 0, 0, EpochSpan.At(epoch),
             $"{where} failed at epoch {epoch}: {e.GetType().Name}: {e.Message}");
 
     private static ImportanceDocument ToDocument(HalfImportance half) => new()

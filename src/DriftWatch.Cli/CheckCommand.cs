@@ -96,7 +96,7 @@ internal static class CheckCommand
                 ["feature"] = f.Feature,
                 ["size"] = double.IsFinite(f.Size) ? f.Size : null,
                 ["noiseFloor"] = double.IsFinite(f.NoiseFloor) ? f.NoiseFloor : null,
-                ["epochs"] = f.Epochs.ToArray(),
+                ["epochs"] = new[] { f.Epochs.First, f.Epochs.Last },
                 ["evidence"] = f.Evidence,
                 ["seenOnlyBy"] = f.SeenOnlyBy.IsDefaultOrEmpty ? Array.Empty<string>() : f.SeenOnlyBy.ToArray(),
                 ["agreement"] = double.IsFinite(f.Agreement) ? f.Agreement : null,

@@ -91,8 +91,8 @@ public sealed class RunTables
         foreach (var map in store.MapAggregates(run.Id).OrderBy(m => m.Epoch).ThenBy(m => m.Method, StringComparer.Ordinal).ThenBy(m => m.Target, StringComparer.Ordinal))
         {
             var stats = map.Method == primary ? statistics.GetValueOrDefault(map.Epoch) : null;
-            AddHalf(importance, run, store, map, "held-out", map.HeldOut, features, stats?.ShareHeldOutWidth);
-            AddHalf(importance, run, store, map, "training", map.Training, features, stats?.ShareTrainingWidth);
+            AddHalf(importance, run, store, map, "held-out", map.HeldOut, features, stats?.ShareHeldOutWidth.ToArray());
+            AddHalf(importance, run, store, map, "training", map.Training, features, stats?.ShareTrainingWidth.ToArray());
         }
 
         var epochs = store.Epochs(run.Id);

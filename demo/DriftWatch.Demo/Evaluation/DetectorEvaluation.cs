@@ -4,6 +4,7 @@ using System.Globalization;
 using System.Text;
 using DriftWatch.Demo.Greenhouse;
 using DriftWatch.Detection;
+using DriftWatch.Detection.Rules;
 using DriftWatch.Hooks;
 using DriftWatch.Probing;
 using TorchSharp;
@@ -38,7 +39,8 @@ public sealed record EvaluationRun(
 /// <summary>Runs the seeded scenario suite and summarises the gate against the planted truth and the GL5 rule.</summary>
 public static class DetectorEvaluation
 {
-    private static readonly FindingKind[] FeatureKinds = [FindingKind.Leak, FindingKind.MemorisedIdentifier, FindingKind.ProbableLeak];
+    // Kinds compared with the planted truth, and the loss rule attribution halts are compared with: each kind's rule says which it is.
+    private static readonly FindingKind[] FeatureKinds = [.. FindingRules.Kinds.Where(k => k.Role == EvaluationRole.NamesFault).Select(k => k.Kind)];
 
     /// <summary>Runs every scenario × seed, writes runs.csv and summary.csv, prints the summary table, returns the runs.</summary>
     /// <remarks>With <see cref="EvaluationOptions.Shard"/>, runs that shard's block only, into its own folder; with <see cref="EvaluationOptions.MergeShards"/>, joins finished shards instead (<see cref="EvaluationShards"/>).</remarks>
@@ -210,7 +212,7 @@ public static class DetectorEvaluation
             firstNamed.ToImmutableDictionary(),
             kinds.ToImmutableDictionary(k => k.Key, k => string.Join("+", k.Value)),
             records.Where(r => r.Verdict.Kind == VerdictKind.Halt).Select(r => (int?)r.Epoch).FirstOrDefault(),
-            records.Where(r => r.Verdict.Findings.Any(f => f.Severity == VerdictKind.Halt && f.Kind != FindingKind.Overfitting)).Select(r => (int?)r.Epoch).FirstOrDefault(),
+            records.Where(r => r.Verdict.Findings.Any(f => f.Severity == VerdictKind.Halt && f.Kind.Info.Role != EvaluationRole.LossRule)).Select(r => (int?)r.Epoch).FirstOrDefault(),
             records.MinBy(r => r.ValidationLoss).Epoch,
             glIndex < 0 ? null : records[glIndex].Epoch,
             seconds);

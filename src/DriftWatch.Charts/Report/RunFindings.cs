@@ -57,7 +57,7 @@ public static class RunFindings
             {
                 var list = groups[key];
                 var last = list[^1].Finding;
-                int since = list.Min(p => p.Finding.Epochs.IsDefaultOrEmpty ? p.Epoch : Math.Min(p.Finding.Epochs[0], p.Epoch));
+                int since = list.Min(p => Math.Min(p.Finding.Epochs.First, p.Epoch));
                 return new FindingSummary(key.Item1, key.Item2, list.Max(p => p.Finding.Severity), [.. list.Select(p => p.Epoch)], since, last.Size, last.NoiseFloor, last.Evidence)
                 {
                     SeenOnlyBy = last.IsSeenByOtherMethodsOnly ? last.SeenOnlyBy : [],
@@ -96,15 +96,5 @@ public static class RunFindings
     }
 
     /// <summary>The kind's name in plain words, e.g. <c>memorised identifier</c>.</summary>
-    public static string Describe(FindingKind kind) => kind switch
-    {
-        FindingKind.Leak => "leak",
-        FindingKind.MemorisedIdentifier => "memorised identifier",
-        FindingKind.DominantFeature => "dominant feature",
-        FindingKind.ProbableLeak => "probable leak",
-        FindingKind.Overfitting => "overfitting",
-        FindingKind.NumericalTrouble => "numerical trouble",
-        FindingKind.MonitoringFailure => "monitoring failure",
-        _ => kind.ToString(),
-    };
+    public static string Describe(FindingKind kind) => kind.Info.PlainWords;
 }

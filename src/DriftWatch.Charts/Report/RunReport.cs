@@ -325,23 +325,13 @@ public static class RunReport
         var others = findings.Where(f => !f.SeenOnlyBy.IsDefaultOrEmpty).ToList();
         findings = findings.Where(f => f.SeenOnlyBy.IsDefaultOrEmpty).ToList();
         string Names(FindingKind kind) => string.Join(", ", findings.Where(f => f.Kind == kind && f.Feature.Length > 0).Select(f => $"'{f.Feature}'").Distinct());
-        if (findings.Any(f => f.Kind == FindingKind.Leak))
-            steps.Add($"Check how {Names(FindingKind.Leak)} is produced for training rows and for held-out rows: a value that carries the label only where the model trained is a leak. The divergence chart shows the gap.");
-        if (findings.Any(f => f.Kind == FindingKind.ProbableLeak))
-            steps.Add($"Check whether {Names(FindingKind.ProbableLeak)} is derived from the label: it nearly fixes the label on held-out rows too, a pipeline fault the validation loss cannot show.");
-        if (findings.Any(f => f.Kind == FindingKind.MemorisedIdentifier))
-            steps.Add($"{Names(FindingKind.MemorisedIdentifier)} behaves like an identifier the model memorised: consider dropping it or grouping its rare values. The feature chart shows the rows it separates.");
-        if (findings.Any(f => f.Kind == FindingKind.Overfitting))
-        {
-            var best = history.Epochs.Where(e => e.ValidationLoss is double v && double.IsFinite(v)).MinBy(e => e.ValidationLoss!.Value);
-            steps.Add(best is null
-                ? "Validation loss rose past the policy's threshold: consider the weights of the epoch with the lowest validation loss."
-                : $"Validation loss rose past the policy's threshold: the lowest was at epoch {ReportText.Integer(best.Epoch)}, whose snapshot the store keeps.");
-        }
-        if (findings.Any(f => f.Kind == FindingKind.DominantFeature))
-            steps.Add($"{Names(FindingKind.DominantFeature)} decides on both halves; that may be genuine, but check how it is produced before trusting it.");
-        if (findings.Any(f => f.Kind is FindingKind.NumericalTrouble or FindingKind.MonitoringFailure))
-            steps.Add("Some epochs had numerical trouble or a monitoring failure; their attributions are not trusted ('driftwatch show' lists the problems).");
+        var best = history.Epochs.Where(e => e.ValidationLoss is double v && double.IsFinite(v)).MinBy(e => e.ValidationLoss!.Value);
+        // One step per kind, in the order of what they mean (faults, then the loss, then advisories and health); each
+        // kind's advice is its rule's, and kinds that share a step (numerical trouble, a monitoring failure) give it once.
+        var kinds = findings.Select(f => f.Kind).Distinct().Select(k => k.Info).OrderBy(info => info.Role).ThenBy(info => info.Kind);
+        foreach (var info in kinds)
+            steps.Add(info.Advice(new Detection.Rules.AdviceContext(Names(info.Kind), best?.Epoch)));
+        steps = [.. steps.Distinct(StringComparer.Ordinal)];
         foreach (var group in others.GroupBy(f => string.Join(" and ", f.SeenOnlyBy)))
         {
             string features = string.Join(", ", group.Select(f => $"'{f.Feature}' ({RunFindings.Describe(f.Kind)})").Distinct());

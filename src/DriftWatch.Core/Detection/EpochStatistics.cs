@@ -20,34 +20,34 @@ public sealed record EpochStatistics
     public required bool Trusted { get; init; }
 
     /// <summary>Share of mean |attribution| on the held-out half.</summary>
-    public double[] ShareHeldOut { get; init; } = [];
+    public ImmutableArray<double> ShareHeldOut { get; init; } = [];
 
     /// <summary>Share on the training half.</summary>
-    public double[] ShareTraining { get; init; } = [];
+    public ImmutableArray<double> ShareTraining { get; init; } = [];
 
     /// <summary>90% bootstrap width of the held-out share.</summary>
-    public double[] ShareHeldOutWidth { get; init; } = [];
+    public ImmutableArray<double> ShareHeldOutWidth { get; init; } = [];
 
     /// <summary>90% bootstrap width of the training share.</summary>
-    public double[] ShareTrainingWidth { get; init; } = [];
+    public ImmutableArray<double> ShareTrainingWidth { get; init; } = [];
 
     /// <summary>Divergence: training share minus held-out share.</summary>
-    public double[] ShareGap { get; init; } = [];
+    public ImmutableArray<double> ShareGap { get; init; } = [];
 
     /// <summary>90% bootstrap width of the share gap (halves resampled separately).</summary>
-    public double[] ShareGapWidth { get; init; } = [];
+    public ImmutableArray<double> ShareGapWidth { get; init; } = [];
 
     /// <summary>Label alignment on the held-out half (empty without binary labels).</summary>
-    public double[] AlignmentHeldOut { get; init; } = [];
+    public ImmutableArray<double> AlignmentHeldOut { get; init; } = [];
 
     /// <summary>Label alignment on the training half.</summary>
-    public double[] AlignmentTraining { get; init; } = [];
+    public ImmutableArray<double> AlignmentTraining { get; init; } = [];
 
     /// <summary>Training alignment minus held-out alignment.</summary>
-    public double[] AlignmentGap { get; init; } = [];
+    public ImmutableArray<double> AlignmentGap { get; init; } = [];
 
     /// <summary>90% bootstrap width of the alignment gap.</summary>
-    public double[] AlignmentGapWidth { get; init; } = [];
+    public ImmutableArray<double> AlignmentGapWidth { get; init; } = [];
 
     /// <summary>90% bootstrap width of the held-out lead: top feature's share minus the runner-up's.</summary>
     public double LeadWidthHeldOut { get; init; }
@@ -56,7 +56,7 @@ public sealed record EpochStatistics
     public double LeadWidthTraining { get; init; }
 
     /// <summary>Whether the feature's held-out share series has shifted by the CUSUM rule so far (descriptive).</summary>
-    public bool[] Shifted { get; init; } = [];
+    public ImmutableArray<bool> Shifted { get; init; } = [];
 
     /// <summary>Drift score: 1 − Spearman ρ between this and the previous attributed epoch's held-out shares; NaN for the first.</summary>
     public double Drift { get; init; } = double.NaN;

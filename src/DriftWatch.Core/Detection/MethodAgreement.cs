@@ -179,11 +179,6 @@ public sealed class CrossMethodDetector
         return evidence.EndsWith('.') ? evidence : evidence + ".";
     }
 
-    // Findings about the same feature that different methods may name differently: a gap between the halves, or one feature deciding.
-    private static string? Family(FindingKind kind) => kind switch
-    {
-        FindingKind.Leak or FindingKind.MemorisedIdentifier => "gap",
-        FindingKind.DominantFeature or FindingKind.ProbableLeak => "dominance",
-        _ => null,
-    };
+    // Findings about the same feature that different methods may name differently share a family (the kind's rule says which).
+    private static string? Family(FindingKind kind) => kind.Info.Family;
 }

@@ -31,7 +31,7 @@ public static class RunReview
     {
         ArgumentNullException.ThrowIfNull(epoch);
         var failures = epoch.Problems
-            .Select(p => new Finding(FindingKind.MonitoringFailure, VerdictKind.Caution, "", 0, 0, [epoch.Epoch, epoch.Epoch], p))
+            .Select(p => Rules.MonitoringFailureRule.Failure(epoch.Epoch, p))
             .ToImmutableArray();
         return new EpochEvidence(epoch.Epoch, epoch.Metrics, map is null ? null : ToMap(map), failures);
     }

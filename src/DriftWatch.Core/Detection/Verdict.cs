@@ -15,45 +15,93 @@ public enum VerdictKind
     Halt = 2,
 }
 
-/// <summary>What a finding is about.</summary>
-public enum FindingKind
+/// <summary>
+/// What a finding is about, by its stored name. The kinds this version knows are the rules of
+/// <see cref="Rules.FindingRules"/>, each with its words, advice, family and severity; a name read from a store written by a
+/// newer version is kept as it is, and <see cref="IsKnown"/> is false for it.
+/// </summary>
+/// <remarks>Kinds order as the rule catalogue lists them (the verdict's order); unknown kinds come after, by name.</remarks>
+public readonly record struct FindingKind : IComparable<FindingKind>
 {
+    /// <summary>A kind by its stored name.</summary>
+    /// <exception cref="ArgumentException">The name is empty or not a plain identifier (letters and digits).</exception>
+    public FindingKind(string name)
+    {
+        ArgumentException.ThrowIfNullOrEmpty(name);
+        if (!name.All(char.IsAsciiLetterOrDigit))
+            throw new ArgumentException($"a finding kind's name is letters and digits; got '{name}'", nameof(name));
+        Name = name;
+    }
+
+    /// <summary>The stored name, e.g. <c>MemorisedIdentifier</c>.</summary>
+    public string Name => field ?? "";
+
+    /// <summary>Whether this version has a rule for the kind.</summary>
+    public bool IsKnown => Rules.FindingRules.Find(this) is not null;
+
+    /// <summary>The kind's description: its rule's, or one that says this version does not know it.</summary>
+    public Rules.FindingKindInfo Info => Rules.FindingRules.Find(this) ?? Rules.FindingKindInfo.Unknown(this);
+
     /// <summary>A feature the model leans on for training rows but not for held-out rows.</summary>
-    Leak,
+    public static FindingKind Leak { get; } = new("Leak");
 
     /// <summary>An identifier-like categorical whose attributions agree with training labels but not held-out ones.</summary>
-    MemorisedIdentifier,
+    public static FindingKind MemorisedIdentifier { get; } = new("MemorisedIdentifier");
 
     /// <summary>One feature decides on both halves; may be genuine.</summary>
-    DominantFeature,
+    public static FindingKind DominantFeature { get; } = new("DominantFeature");
 
     /// <summary>A dominant categorical with a value that nearly fixes the label on held-out rows.</summary>
-    ProbableLeak,
+    public static FindingKind ProbableLeak { get; } = new("ProbableLeak");
 
     /// <summary>Validation loss has risen beyond the policy's generalisation-loss threshold.</summary>
-    Overfitting,
+    public static FindingKind Overfitting { get; } = new("Overfitting");
 
     /// <summary>NaN or Inf in losses or attributions, or convergence deltas beyond tolerance.</summary>
-    NumericalTrouble,
+    public static FindingKind NumericalTrouble { get; } = new("NumericalTrouble");
 
     /// <summary>Monitoring itself failed at this epoch; the training went on.</summary>
-    MonitoringFailure,
+    public static FindingKind MonitoringFailure { get; } = new("MonitoringFailure");
+
+    /// <inheritdoc/>
+    public int CompareTo(FindingKind other)
+    {
+        int mine = Rules.FindingRules.IndexOf(this), theirs = Rules.FindingRules.IndexOf(other);
+        if (mine >= 0 || theirs >= 0)
+            return (mine < 0 ? int.MaxValue : mine).CompareTo(theirs < 0 ? int.MaxValue : theirs);
+        return string.CompareOrdinal(Name, other.Name);
+    }
+
+    /// <summary>The stored name.</summary>
+    public override string ToString() => Name;
+
+    /// <summary>Orders by the catalogue (see <see cref="CompareTo"/>).</summary>
+    public static bool operator <(FindingKind left, FindingKind right) => left.CompareTo(right) < 0;
+
+    /// <summary>Orders by the catalogue (see <see cref="CompareTo"/>).</summary>
+    public static bool operator >(FindingKind left, FindingKind right) => left.CompareTo(right) > 0;
+
+    /// <summary>Orders by the catalogue (see <see cref="CompareTo"/>).</summary>
+    public static bool operator <=(FindingKind left, FindingKind right) => left.CompareTo(right) <= 0;
+
+    /// <summary>Orders by the catalogue (see <see cref="CompareTo"/>).</summary>
+    public static bool operator >=(FindingKind left, FindingKind right) => left.CompareTo(right) >= 0;
 }
 
 /// <summary>Finding kinds by their stored names (the names policies and stores use).</summary>
 public static class FindingKinds
 {
     /// <summary>The names of every kind this version knows, in verdict order.</summary>
-    public static IReadOnlyList<string> Names { get; } = Enum.GetNames<FindingKind>();
+    public static IReadOnlyList<string> Names => [.. Rules.FindingRules.Kinds.Select(k => k.Kind.Name)];
 
     /// <summary>The kind with this exact (case-sensitive) stored name; false when this version knows none.</summary>
     public static bool TryParse(string? name, out FindingKind kind)
     {
-        foreach (var known in Enum.GetValues<FindingKind>())
+        foreach (var known in Rules.FindingRules.Kinds)
         {
-            if (string.Equals(known.ToString(), name, StringComparison.Ordinal))
+            if (string.Equals(known.Kind.Name, name, StringComparison.Ordinal))
             {
-                kind = known;
+                kind = known.Kind;
                 return true;
             }
         }
@@ -61,8 +109,42 @@ public static class FindingKinds
         return false;
     }
 
+    /// <summary>A kind read from a store: a known kind, or the stored name kept as a kind this version does not know.</summary>
+    /// <exception cref="ArgumentException">The name is empty or not letters and digits.</exception>
+    public static FindingKind FromStored(string name) => TryParse(name, out var kind) ? kind : new FindingKind(name);
+
     /// <summary>The stored name of a kind.</summary>
-    public static string NameOf(FindingKind kind) => kind.ToString();
+    public static string NameOf(FindingKind kind) => kind.Name;
+}
+
+/// <summary>The epochs a finding covers, from its first to its last (both included, 1-based as users number them).</summary>
+/// <param name="First">The first epoch.</param>
+/// <param name="Last">The last epoch, at least <paramref name="First"/>.</param>
+public readonly record struct EpochSpan(int First, int Last)
+{
+    /// <summary>The first epoch.</summary>
+    public int First { get; } = First <= Last ? First : throw new ArgumentOutOfRangeException(nameof(First), First, $"an epoch span runs forwards; got {First} to {Last}");
+
+    /// <summary>The span of one epoch.</summary>
+    public static EpochSpan At(int epoch) => new(epoch, epoch);
+
+    /// <summary>The span read from a stored list of epochs: its first and last entries (one entry: that epoch).</summary>
+    /// <exception cref="ArgumentException">The list is empty.</exception>
+    public static EpochSpan FromStored(IReadOnlyList<int> epochs)
+    {
+        ArgumentNullException.ThrowIfNull(epochs);
+        if (epochs.Count == 0)
+            throw new ArgumentException("a stored finding names at least one epoch", nameof(epochs));
+        return new EpochSpan(epochs[0], epochs[^1]);
+    }
+
+    /// <summary>Whether the span covers <paramref name="epoch"/>.</summary>
+    public bool Contains(int epoch) => epoch >= First && epoch <= Last;
+
+    /// <summary>The span as shown to people: <c>7</c> or <c>3–7</c>.</summary>
+    public override string ToString() => First == Last
+        ? First.ToString(System.Globalization.CultureInfo.InvariantCulture)
+        : string.Create(System.Globalization.CultureInfo.InvariantCulture, $"{First}–{Last}");
 }
 
 /// <summary>A flagged feature (or the run as a whole) at an epoch, with its size and the evidence behind it.</summary>
@@ -71,7 +153,7 @@ public static class FindingKinds
 /// <param name="Feature">The feature concerned, or empty for run-level findings.</param>
 /// <param name="Size">The statistic's value.</param>
 /// <param name="NoiseFloor">The noise floor it was judged against (0 when none applies).</param>
-/// <param name="Epochs">The epochs the finding covers.</param>
+/// <param name="Epochs">The epochs the finding covers, first to last.</param>
 /// <param name="Evidence">Plain-language evidence, one sentence.</param>
 public sealed record Finding(
     FindingKind Kind,
@@ -79,7 +161,7 @@ public sealed record Finding(
     string Feature,
     double Size,
     double NoiseFloor,
-    ImmutableArray<int> Epochs,
+    EpochSpan Epochs,
     string Evidence)
 {
     /// <summary>

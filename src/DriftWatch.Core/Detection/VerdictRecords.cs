@@ -18,12 +18,12 @@ public static class VerdictRecords
             Reasons = [.. verdict.Reasons],
             Findings = verdict.Findings.Select(f => new FindingDocument
             {
-                Kind = f.Kind.ToString(),
+                Kind = f.Kind.Name,
                 Feature = f.Feature,
                 Severity = f.Severity.ToString(),
                 Size = f.Size,
                 NoiseFloor = f.NoiseFloor,
-                Epochs = [.. f.Epochs],
+                Epochs = [f.Epochs.First, f.Epochs.Last],
                 Evidence = f.Evidence,
                 SeenOnlyBy = f.SeenOnlyBy.IsDefaultOrEmpty ? [] : [.. f.SeenOnlyBy],
                 Agreement = f.Agreement,
@@ -36,12 +36,12 @@ public static class VerdictRecords
     {
         ArgumentNullException.ThrowIfNull(document);
         var findings = document.Findings.Select(f => new Finding(
-            Enum.Parse<FindingKind>(f.Kind),
+            FindingKinds.FromStored(f.Kind),
             Enum.Parse<VerdictKind>(f.Severity),
             f.Feature,
             f.Size,
             f.NoiseFloor,
-            [.. f.Epochs],
+            EpochSpan.FromStored(f.Epochs),
             f.Evidence)
         {
             SeenOnlyBy = f.SeenOnlyBy is null ? [] : [.. f.SeenOnlyBy],

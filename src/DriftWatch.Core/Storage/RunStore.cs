@@ -1,4 +1,5 @@
 using System.Buffers.Binary;
+using System.Collections.Immutable;
 using System.Text;
 using LiteDB;
 
@@ -425,6 +426,13 @@ public sealed class RunStore : IDisposable
     private static BsonMapper CreateMapper()
     {
         var mapper = new BsonMapper { EmptyStringToNull = false, TrimWhitespace = false };
+        // Frozen arrays are stored as the plain BSON arrays the mutable ones were, so documents read the same either way.
+        mapper.RegisterType(
+            values => new BsonArray(values.IsDefault ? [] : values.Select(v => new BsonValue(v))),
+            bson => bson.IsArray ? [.. bson.AsArray.Select(v => v.AsDouble)] : ImmutableArray<double>.Empty);
+        mapper.RegisterType(
+            values => new BsonArray(values.IsDefault ? [] : values.Select(v => new BsonValue(v))),
+            bson => bson.IsArray ? [.. bson.AsArray.Select(v => v.AsBoolean)] : ImmutableArray<bool>.Empty);
         var seen = new HashSet<Type>();
         var pending = new Stack<Type>([typeof(RunDocument), typeof(EpochDocument), typeof(MapDocument), typeof(VerdictDocument), typeof(StatisticsDocument), typeof(ShardDocument), typeof(LayerMapDocument)]);
         while (pending.TryPop(out var type))

@@ -27,7 +27,7 @@ public sealed class CrossMethodDetectorTests
             Assert.True(got.Verdict.Kind >= expected.Verdict.Kind);
             Assert.Equal(expected.Verdict.Findings.Select(f => (f.Kind, f.Feature, f.Size, f.Severity)), own.Select(f => (f.Kind, f.Feature, f.Size, f.Severity)));
             Assert.All(got.Verdict.Findings.Where(f => f.IsSeenByOtherMethodsOnly), f => Assert.Equal(VerdictKind.Caution, f.Severity));
-            Assert.Equal(expected.Statistics.ShareGap, got.Statistics.ShareGap);
+            Assert.Equal(expected.Statistics.ShareGap.ToArray(), got.Statistics.ShareGap.ToArray());
         }
         var last = both.Observe(primary.Epoch(6), Maps(("integrated-gradients", primary.Epoch(6)), ("smoothgrad", second.Epoch(6))));
         var leak = Assert.Single(last.Verdict.Findings, f => f.Kind == FindingKind.Leak);
@@ -78,7 +78,7 @@ public sealed class CrossMethodDetectorTests
         Assert.True(leak.IsSeenByOtherMethodsOnly);
         Assert.Equal(VerdictKind.Caution, leak.Severity);
         Assert.Equal(VerdictKind.Caution, last.Kind);
-        Assert.Equal(new[] { 2, 4 }, leak.Epochs.ToArray());
+        Assert.Equal(new EpochSpan(2, 4), leak.Epochs);
         Assert.StartsWith("Seen by smoothgrad only: integrated-gradients, whose maps the verdict reads, does not show it at this epoch: 'humidity' takes ", leak.Evidence);
         Assert.Contains("It may be an artefact of that method, or a swing the other methods miss.", leak.Evidence);
         Assert.Contains("It asks for Caution, not Halt, since the verdict's method does not see it (policy key singleMethodMayHalt).", leak.Evidence);

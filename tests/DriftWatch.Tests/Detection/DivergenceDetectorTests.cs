@@ -31,7 +31,7 @@ public sealed class DivergenceDetectorTests
         var leak = Assert.Single(verdict.Findings);
         Assert.Equal(FindingKind.Leak, leak.Kind);
         Assert.Equal("humidity", leak.Feature);
-        Assert.Equal(new[] { 4, 5 }, leak.Epochs.ToArray());
+        Assert.Equal(new EpochSpan(4, 5), leak.Epochs);
         Assert.True(leak.Size > leak.NoiseFloor);
     }
 

@@ -126,7 +126,7 @@ public sealed class ReplayEqualityTests
             text.Append("  reason ").Append(reason).Append('\n');
         foreach (var f in v.Findings)
         {
-            text.Append(Invariant($"  finding {f.Kind} {f.Severity} '{f.Feature}' size {R(f.Size)} floor {R(f.NoiseFloor)} epochs {f.Epochs.First()}..{f.Epochs.Last()} agreement {R(f.Agreement)} only [{string.Join(",", f.SeenOnlyBy)}]\n"));
+            text.Append(Invariant($"  finding {f.Kind} {f.Severity} '{f.Feature}' size {R(f.Size)} floor {R(f.NoiseFloor)} epochs {f.Epochs.First}..{f.Epochs.Last} agreement {R(f.Agreement)} only [{string.Join(",", f.SeenOnlyBy)}]\n"));
             text.Append("    ").Append(f.Evidence).Append('\n');
         }
     }

@@ -80,7 +80,7 @@ public sealed class MonitoringFaultTests
                 }
                 else
                 {
-                    Assert.DoesNotContain(verdict.Findings, f => f.Kind is FindingKind.NumericalTrouble or FindingKind.MonitoringFailure);
+                    Assert.DoesNotContain(verdict.Findings, f => (f.Kind == FindingKind.NumericalTrouble || f.Kind == FindingKind.MonitoringFailure));
                 }
             }
         }

@@ -1,0 +1,79 @@
+using static DriftWatch.Detection.Rules.RuleText;
+
+namespace DriftWatch.Detection.Rules;
+
+/// <summary>The leak rule's settings, read from the policy.</summary>
+/// <param name="Widths">Share gap beyond this many widths of its noise floor (policy <c>leakWidths</c>).</param>
+/// <param name="MinimumGap">The share gap must also exceed this (policy <c>leakMinimumGap</c>).</param>
+/// <param name="AlignmentWidths">Alignment gap beyond this many widths of its noise floor (policy <c>leakAlignmentWidths</c>).</param>
+/// <param name="MinimumAlignmentGap">The alignment gap must also exceed this (policy <c>leakMinimumAlignmentGap</c>).</param>
+/// <param name="MinimumShare">By alignment, the training share must be at least this (policy <c>leakMinimumShare</c>).</param>
+public sealed record LeakSettings(double Widths, double MinimumGap, double AlignmentWidths, double MinimumAlignmentGap, double MinimumShare)
+{
+    /// <summary>The settings a policy gives.</summary>
+    public static LeakSettings From(GatePolicy policy)
+    {
+        ArgumentNullException.ThrowIfNull(policy);
+        return new(policy.LeakWidths, policy.LeakMinimumGap, policy.LeakAlignmentWidths, policy.LeakMinimumAlignmentGap, policy.LeakMinimumShare);
+    }
+}
+
+/// <summary>
+/// <b>Leak</b>: the training-minus-held-out share gap beyond its widths of the noise floor W, or the label-alignment gap
+/// beyond its widths of W for a feature that is not identifier-like and takes enough of the training attribution.
+/// </summary>
+public sealed class LeakRule : IFindingRule
+{
+    private readonly LeakSettings _settings;
+    private readonly Streaks _streaks;
+
+    /// <summary>A leak rule for one detector.</summary>
+    public LeakRule(LeakSettings settings, int patience)
+    {
+        ArgumentNullException.ThrowIfNull(settings);
+        _settings = settings;
+        _streaks = new Streaks(patience);
+    }
+
+    /// <summary>The leak kind's words and advice.</summary>
+    public static FindingKindInfo Kind { get; } = new(
+        FindingKind.Leak,
+        "leak",
+        "A feature the model leans on for training rows but not for held-out rows.",
+        "gap",
+        SeverityRule.PolicyDecides,
+        EvaluationRole.NamesFault,
+        a => $"Check how {a.Features} is produced for training rows and for held-out rows: a value that carries the label only where the model trained is a leak. The divergence chart shows the gap.");
+
+    /// <inheritdoc/>
+    public FindingKindInfo Info => Kind;
+
+    /// <inheritdoc/>
+    public RuleStage Stage => RuleStage.Attribution;
+
+    /// <inheritdoc/>
+    public void Evaluate(EpochView epoch, IList<Finding> findings)
+    {
+        ArgumentNullException.ThrowIfNull(epoch);
+        ArgumentNullException.ThrowIfNull(findings);
+        var s = epoch.Statistics!;
+        var run = epoch.Run;
+        for (int f = 0; f < s.ShareGap.Length; f++)
+        {
+            // Two faces of a leak: the model leans on the feature more for training rows (share gap), or as much but
+            // only there does it point at the label (alignment gap) — a leak that keeps value frequencies equal shows only the second.
+            bool shareLeak = s.ShareGap[f] > _settings.Widths * s.ShareGapWidth[f] && s.ShareGap[f] > _settings.MinimumGap;
+            bool alignmentLeak = !run.IdentifierLike[f] && s.AlignmentGap.Length > 0
+                && s.AlignmentGap[f] > _settings.AlignmentWidths * s.AlignmentGapWidth[f] && s.AlignmentGap[f] > _settings.MinimumAlignmentGap
+                && s.ShareTraining[f] >= _settings.MinimumShare;
+            if (_streaks.Observe(f, shareLeak || alignmentLeak, epoch.Epoch) is not int since)
+                continue;
+            string name = run.FeatureName(f);
+            string evidence = shareLeak
+                ? Format($"'{name}' takes {s.ShareTraining[f]:P1} of attribution on training rows but {s.ShareHeldOut[f]:P1} on held-out rows (gap {s.ShareGap[f]:+0.000;-0.000}, noise floor {s.ShareGapWidth[f]:0.000}) since epoch {since}: the model leans on it for rows it trained on only — a leaked or memorised signal")
+                : Format($"'{name}' points at the true label on training rows (alignment {s.AlignmentTraining[f]:+0.00;-0.00}) but not on held-out rows ({s.AlignmentHeldOut[f]:+0.00;-0.00}; gap noise floor {s.AlignmentGapWidth[f]:0.00}) since epoch {since}, with {s.ShareTraining[f]:P1} of training attribution: it carries the label only where the model trained — a leaked signal");
+            findings.Add(new Finding(FindingKind.Leak, Kind.SeverityUnder(run.Policy), name,
+                shareLeak ? s.ShareGap[f] : s.AlignmentGap[f], shareLeak ? s.ShareGapWidth[f] : s.AlignmentGapWidth[f], new EpochSpan(since, epoch.Epoch), evidence));
+        }
+    }
+}
