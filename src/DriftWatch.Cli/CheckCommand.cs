@@ -72,7 +72,7 @@ internal static class CheckCommand
         }
         output.WriteLine($"{name}: epoch {Formats.Integer(latest.Epoch)}  {latest.Kind}{(halt ? "  — stopping is advised" : "")}  ({DisplayText.Clean(source)})");
         foreach (var finding in latest.Findings)
-            output.WriteLine($"  {finding.Severity.ToString().ToLowerInvariant(),-8} {finding.Kind}: {DisplayText.Clean(finding.Evidence)}");
+            output.WriteLine($"  {finding.Severity.ToString().ToLowerInvariant(),-8} {(finding.Kind.IsKnown ? finding.Kind.Name : DisplayText.Clean(finding.Kind.Info.PlainWords))}: {DisplayText.Clean(finding.Evidence)}");
         if (firstHalt is not null && firstHalt.Epoch != latest.Epoch)
             output.WriteLine($"  first Halt at epoch {Formats.Integer(firstHalt.Epoch)}: {DisplayText.Clean(firstHalt.Reasons.FirstOrDefault() ?? "")}");
         if (halt)
