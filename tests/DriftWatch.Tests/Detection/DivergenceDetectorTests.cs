@@ -76,25 +76,25 @@ public sealed class DivergenceDetectorTests
     [Theory]
     [InlineData(true)]
     [InlineData(false)]
-    public void AMemorisedIdentifierReportsReplayAsSupportingEvidence(bool replay)
+    public void AMemorisedIdentifierReportsEchoesAsSupportingEvidence(bool echo)
     {
-        // Held-out rows share crate ids with training rows of the other label: a model that replays the training label
+        // Held-out rows share crate ids with training rows of the other label: a model that echoes the training label
         // of an id points against the held-out row's own label on every one of them (127 of the 128 held-out rows share).
-        var run = new HistoryBuilder().WithMemorisedCrate(fromEpoch: 1).WithSharedCrates(replay).Run(6);
+        var run = new HistoryBuilder().WithMemorisedCrate(fromEpoch: 1).WithSharedCrates(echo).Run(6);
 
         var finding = run.SelectMany(a => a.Verdict.Findings).First(f => f.Kind == FindingKind.MemorisedIdentifier);
-        var counts = System.Text.RegularExpressions.Regex.Match(finding.Evidence, @"replay \(supporting evidence\): on (\d+) of (\d+) held-out rows");
+        var counts = System.Text.RegularExpressions.Regex.Match(finding.Evidence, @"echo \(supporting evidence\): on (\d+) of (\d+) held-out rows");
         Assert.True(counts.Success, finding.Evidence);
         Assert.Equal(127, int.Parse(counts.Groups[2].Value, System.Globalization.CultureInfo.InvariantCulture));
-        int replayed = int.Parse(counts.Groups[1].Value, System.Globalization.CultureInfo.InvariantCulture);
-        if (replay)
+        int echoed = int.Parse(counts.Groups[1].Value, System.Globalization.CultureInfo.InvariantCulture);
+        if (echo)
         {
-            Assert.Equal(127, replayed);
+            Assert.Equal(127, echoed);
             Assert.Contains("including 127 of the 127 whose own label differs", finding.Evidence);
         }
         else
         {
-            Assert.InRange(replayed, 40, 87); // random signs: about half, well inside 127 ± 3.5 standard deviations
+            Assert.InRange(echoed, 40, 87); // random signs: about half, well inside 127 ± 3.5 standard deviations
         }
     }
 

@@ -25,7 +25,7 @@ internal sealed class HistoryBuilder
     private bool _pureValue;
     private bool _pureHeldOut = true;
     private bool _sharedCrates;
-    private bool _replay;
+    private bool _echo;
     private double _trainingNudge = 1;
 
     public HistoryBuilder WithSeed(int seed)
@@ -64,13 +64,13 @@ internal sealed class HistoryBuilder
     }
 
     /// <summary>
-    /// Held-out row r carries the crate id of training row r + 1 (whose label differs); with <paramref name="replay"/> a
+    /// Held-out row r carries the crate id of training row r + 1 (whose label differs); with <paramref name="echo"/> a
     /// memorised crate's held-out score points at that training row's label instead of at random.
     /// </summary>
-    public HistoryBuilder WithSharedCrates(bool replay)
+    public HistoryBuilder WithSharedCrates(bool echo)
     {
         _sharedCrates = true;
-        _replay = replay;
+        _echo = echo;
         return this;
     }
 
@@ -122,7 +122,7 @@ internal sealed class HistoryBuilder
                     size *= _trainingNudge;
                 if (f == Crate && epoch >= _memoriseFrom)
                     sign = training && random.NextDouble() < _memoriseAgreement ? label
-                        : !training && _replay && CrateOf(r) != r ? -label // the training row sharing its crate has the other label
+                        : !training && _echo && CrateOf(r) != r ? -label // the training row sharing its crate has the other label
                         : (random.NextDouble() < 0.5 ? 1 : -1);
                 if (f == _dominantFeature && epoch >= _dominantFrom)
                 {

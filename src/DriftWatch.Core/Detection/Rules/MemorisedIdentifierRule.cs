@@ -89,7 +89,7 @@ public sealed class MemorisedIdentifierRule : IFindingRule
     // Supporting evidence, never a rule on its own: a held-out row whose identifier value also sits on a training probe
     // row "echoes" that row when the feature's attribution points at the training row's label (the majority label when
     // several rows share the value) rather than at its own. Only values shared within the probe set can be checked, so
-    // the sentence says how many rows that was. (The sentence calls this a replay.)
+    // the sentence says how many rows that was.
     private static string Echoes(DetectorRun run, int feature, Attribution.AttributionMap map)
     {
         var context = run.Context;
@@ -119,8 +119,8 @@ public sealed class MemorisedIdentifierRule : IFindingRule
             }
         }
         if (shared == 0)
-            return "; replay cannot be checked: no held-out probe row shares a value with a training probe row";
-        string text = Format($"; replay (supporting evidence): on {echoed} of {shared} held-out rows whose value also sits on training probe rows, the attribution points at that training label");
+            return "; echo cannot be checked: no held-out probe row shares a value with a training probe row";
+        string text = Format($"; echo (supporting evidence): on {echoed} of {shared} held-out rows whose value also sits on training probe rows, the attribution points at that training label");
         return differing == 0
             ? text
             : text + Format($", including {echoedDiffering} of the {differing} whose own label differs");
