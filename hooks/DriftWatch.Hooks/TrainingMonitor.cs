@@ -102,7 +102,7 @@ public sealed class TrainingMonitor : IDisposable
             Admit(model, epoch, metrics);
             var attributed = IsAttributed(epoch) ? Attribute(model, epoch, failures) : NoMaps;
             using var weights = _options.SaveSnapshots ? Snapshot(model, epoch, failures) : null;
-            return _latest = DetectAndStore(epoch, metrics, attributed, weights, failures, () => clock.Elapsed.TotalSeconds);
+            return _latest = DetectAndRecord(epoch, metrics, attributed, weights, failures, () => clock.Elapsed.TotalSeconds);
         }
         catch (Exception e) when (!_options.Strict)
         {
@@ -169,7 +169,7 @@ public sealed class TrainingMonitor : IDisposable
                 }
                 if (weights is not null)
                     weights.Position = 0;
-                return DetectAndStore(epoch, metrics, attributed, _options.SaveSnapshots ? weights : null, failures, () => admitted + clock.Elapsed.TotalSeconds);
+                return DetectAndRecord(epoch, metrics, attributed, _options.SaveSnapshots ? weights : null, failures, () => admitted + clock.Elapsed.TotalSeconds);
             }
         }
         catch (Exception e) when (!_options.Strict)
@@ -234,7 +234,7 @@ public sealed class TrainingMonitor : IDisposable
         }
     }
 
-    private Verdict DetectAndStore(int epoch, EpochMetrics metrics, EpochMaps attributed, MemoryStream? weights, List<Finding> failures, Func<double> monitorSeconds)
+    private Verdict DetectAndRecord(int epoch, EpochMetrics metrics, EpochMaps attributed, MemoryStream? weights, List<Finding> failures, Func<double> monitorSeconds)
     {
         var values = metrics.ToDictionary();
         var assessment = Detect(epoch, values, attributed, failures);
