@@ -4,6 +4,7 @@ using DriftWatch.Demo.Greenhouse;
 using DriftWatch.Detection;
 using DriftWatch.Hooks;
 using DriftWatch.Probing;
+using DriftWatch.Storage;
 using TorchSharp;
 using static TorchSharp.torch;
 
@@ -97,7 +98,8 @@ internal static class GreenhouseTraining
         });
 
         // Over every stored epoch, so a resumed run reports the whole run and not only this session.
-        var stored = monitor.Store.Epochs(monitor.Run.Id)
+        using var reading = RunStore.OpenForReading(monitorOptions.StorePath);
+        var stored = reading.Epochs(monitor.Run.Id)
             .Where(e => e.Metrics.ContainsKey(EpochMetrics.ValidationLossKey))
             .ToList();
         output.WriteLine();
@@ -107,7 +109,7 @@ internal static class GreenhouseTraining
             output.WriteLine(Invariant(
                 $"lowest validation loss {best.Metrics[EpochMetrics.ValidationLossKey]:F4} at epoch {best.Epoch}; {records.Count} epochs trained in {total.Elapsed.TotalSeconds:F1} s, {stored.Count} in the store"));
         }
-        string chart = RenderTrend(monitor, options.RunName, monitorOptions.StorePath);
+        string chart = RenderTrend(reading, options.RunName, monitorOptions.StorePath);
         string validation = WriteValidationRows(scenario, model.Schema, options.RunName, monitorOptions.StorePath);
         string store = Quote(monitorOptions.StorePath);
         string run = Quote(options.RunName);
@@ -123,9 +125,9 @@ internal static class GreenhouseTraining
     }
 
     // The trend chart beside the store: share of importance per feature over the epochs, losses beneath.
-    private static string RenderTrend(TrainingMonitor monitor, string runName, string storePath)
+    private static string RenderTrend(RunStore store, string runName, string storePath)
     {
-        var history = Charts.RunHistory.Load(monitor.Store, runName);
+        var history = Charts.RunHistory.Load(store, runName);
         string folder = Path.Combine(Path.GetDirectoryName(storePath)!, "charts");
         Directory.CreateDirectory(folder);
         string path = Path.Combine(folder, Charts.ChartFiles.FileName(runName, "trend", history.Method));

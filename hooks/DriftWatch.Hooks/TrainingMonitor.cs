@@ -27,6 +27,7 @@ public sealed class TrainingMonitor : IDisposable
     private readonly MonitorOptions _options;
     private readonly RunStore _store;
     private readonly RunDocument _run;
+    private readonly EpochAttribution _attribution;
     private CrossMethodDetector _detector;
     private volatile int _lastEpoch;
     private IWatchedModel? _checkedModel;
@@ -38,6 +39,7 @@ public sealed class TrainingMonitor : IDisposable
     private bool _disposed;
 
     private static readonly Verdict NothingJudged = new(-1, VerdictKind.Continue, ["no epoch has been judged yet"], []);
+    private static readonly EpochMaps NoMaps = new([], [], []);
 
     /// <summary>Validates the options, opens the store and registers the run (or resumes it).</summary>
     /// <exception cref="DriftWatchException">Bad options, an unusable store, or a resumed run whose schema, probe set or methods differ.</exception>
@@ -46,6 +48,7 @@ public sealed class TrainingMonitor : IDisposable
         ArgumentNullException.ThrowIfNull(options);
         options.Validate();
         _options = options;
+        _attribution = AttributionOf(options);
         _store = RunStore.OpenForWriting(options.StorePath);
         try
         {
@@ -66,16 +69,17 @@ public sealed class TrainingMonitor : IDisposable
         }
     }
 
-    /// <summary>The run's stored record.</summary>
-    public RunDocument Run => _run;
+    /// <summary>What the monitor knows of its run now: its id and name in the store, its model's recipe and shape, its last complete epoch.</summary>
+    /// <remarks>A copy taken when read; the monitor keeps the run's record to itself.</remarks>
+    public MonitoredRun Run => MonitoredRun.Of(_run, _store.Path, _lastEpoch);
 
     /// <summary>The last complete epoch in the store (−1 before the first), so a resumed loop knows where to start.</summary>
     /// <remarks>With background attribution, an epoch is complete once its background work is stored.</remarks>
     public int LastEpoch => _lastEpoch;
 
-    /// <summary>The store this monitor writes; share it only for reading.</summary>
+    /// <summary>The store this monitor writes; for the monitor's own assembly and its tests. Others open the file with <see cref="RunStore.OpenForReading"/>.</summary>
     /// <remarks>With background attribution, call <see cref="WaitForPendingEpoch"/> first to read what the latest epoch wrote.</remarks>
-    public RunStore Store => _store;
+    internal RunStore Store => _store;
 
     /// <summary>Records the epoch: snapshot, attribution maps, metrics, verdict. Call once per epoch, after validation.</summary>
     /// <param name="model">The model being trained, in whatever mode the loop left it (restored afterwards).</param>
@@ -96,10 +100,9 @@ public sealed class TrainingMonitor : IDisposable
         try
         {
             Admit(model, epoch, metrics);
-            var layerMaps = new List<LayerMapDocument>();
-            var maps = epoch % _options.AttributeEvery == 0 ? Attribute(model, epoch, failures, layerMaps) : [];
-            using var weights = _options.SaveSnapshots ? Serialise(model, epoch, failures) : null;
-            return _latest = Judge(epoch, metrics, maps, layerMaps, weights, failures, () => clock.Elapsed.TotalSeconds);
+            var attributed = IsAttributed(epoch) ? Attribute(model, epoch, failures) : NoMaps;
+            using var weights = _options.SaveSnapshots ? Snapshot(model, epoch, failures) : null;
+            return _latest = DetectAndRecord(epoch, metrics, attributed, weights, failures, () => clock.Elapsed.TotalSeconds);
         }
         catch (Exception e) when (!_options.Strict)
         {
@@ -136,7 +139,7 @@ public sealed class TrainingMonitor : IDisposable
         try
         {
             Admit(model, epoch, metrics);
-            weights = Serialise(model, epoch, failures);
+            weights = Snapshot(model, epoch, failures);
         }
         catch (Exception e) when (!_options.Strict)
         {
@@ -144,65 +147,34 @@ public sealed class TrainingMonitor : IDisposable
             return _latest = FailureVerdict(epoch, failures, e);
         }
         double admitted = clock.Elapsed.TotalSeconds;
-        _pending = Task.Run(() => AttributeAndJudge(epoch, metrics, weights, failures, admitted));
+        _pending = Task.Run(() => AttributeInBackground(epoch, metrics, weights, failures, admitted));
         return judged;
     }
 
     // The background half of an epoch: load the snapshot into the monitor's copy of the model, attribute, judge, store.
-    private Verdict AttributeAndJudge(int epoch, EpochMetrics metrics, MemoryStream? weights, List<Finding> failures, double admitted)
+    private Verdict AttributeInBackground(int epoch, EpochMetrics metrics, MemoryStream? weights, List<Finding> failures, double admitted)
     {
         var clock = Stopwatch.StartNew();
         try
         {
             using (weights)
             {
-                var maps = new List<StoredMap>();
-                var layerMaps = new List<LayerMapDocument>();
-                if (epoch % _options.AttributeEvery == 0)
+                var attributed = NoMaps;
+                if (IsAttributed(epoch))
                 {
                     if (weights is null)
                         failures.Add(Failure(epoch, "attribution", new DriftWatchException("the epoch's weights could not be snapshotted, so its copy of the model could not be loaded")));
                     else if (LoadCopy(weights, epoch, failures))
-                        maps = Attribute(_copy!, epoch, failures, layerMaps);
+                        attributed = Attribute(_copy!, epoch, failures);
                 }
                 if (weights is not null)
                     weights.Position = 0;
-                return Judge(epoch, metrics, maps, layerMaps, _options.SaveSnapshots ? weights : null, failures, () => admitted + clock.Elapsed.TotalSeconds);
+                return DetectAndRecord(epoch, metrics, attributed, _options.SaveSnapshots ? weights : null, failures, () => admitted + clock.Elapsed.TotalSeconds);
             }
         }
         catch (Exception e) when (!_options.Strict)
         {
             return FailureVerdict(epoch, failures, e);
-        }
-    }
-
-    // Each watched layer with each layer method; the hooks these register are gone when each call returns.
-    private void AttributeLayers(IWatchedModel model, AttributionInput input, int epoch, List<Finding> failures, List<LayerMapDocument> layerMaps)
-    {
-        float[] outputs;
-        try
-        {
-            outputs = LayerMaps.Outputs(input);
-        }
-        catch (Exception e) when (!_options.Strict)
-        {
-            failures.Add(Failure(epoch, "layer maps", e));
-            return;
-        }
-        foreach (string path in _options.WatchedLayers)
-        {
-            foreach (var method in _options.LayerMethods)
-            {
-                try
-                {
-                    var layer = WatchedLayer.Find(model.Module, path);
-                    layerMaps.Add(LayerMaps.Attribute(method, input with { Layer = layer }, outputs, _run.Id, epoch, _options.Target.Label));
-                }
-                catch (Exception e) when (!_options.Strict)
-                {
-                    failures.Add(Failure(epoch, $"{method.Name} of layer '{path}'", e));
-                }
-            }
         }
     }
 
@@ -233,29 +205,69 @@ public sealed class TrainingMonitor : IDisposable
         CheckModel(model);
     }
 
-    // The detector's judgement and the epoch's one transaction.
-    private Verdict Judge(int epoch, EpochMetrics metrics, List<StoredMap> maps, List<LayerMapDocument> layerMaps, MemoryStream? weights, List<Finding> failures, Func<double> monitorSeconds)
+    private bool IsAttributed(int epoch) => epoch % _options.AttributeEvery == 0;
+
+    // The epoch's maps, quality figures and layer maps; a step that failed is one monitoring-failure finding.
+    private EpochMaps Attribute(IWatchedModel model, int epoch, List<Finding> failures)
+    {
+        var attributed = _attribution.Attribute(model, _run.Id, epoch);
+        failures.AddRange(attributed.Problems.Select(p => Failure(epoch, p.Text)));
+        return attributed;
+    }
+
+    // The weights in memory, before the epoch's transaction: a model that cannot be saved costs the snapshot, not the epoch.
+    private MemoryStream? Snapshot(IWatchedModel model, int epoch, List<Finding> failures)
+    {
+        var weights = new MemoryStream();
+        try
+        {
+            using (var writer = new BinaryWriter(weights, System.Text.Encoding.UTF8, leaveOpen: true))
+                model.Module.save(writer);
+            weights.Position = 0;
+            return weights;
+        }
+        catch (Exception e) when (!_options.Strict)
+        {
+            weights.Dispose();
+            failures.Add(Failure(epoch, "snapshot", e));
+            return null;
+        }
+    }
+
+    private Verdict DetectAndRecord(int epoch, EpochMetrics metrics, EpochMaps attributed, MemoryStream? weights, List<Finding> failures, Func<double> monitorSeconds)
     {
         var values = metrics.ToDictionary();
-        var primary = maps.FirstOrDefault(m => m.Document.Method == _options.Methods[0].Name);
-        var assessment = _detector.Observe(
-            new EpochEvidence(epoch, values, primary?.Map, [.. failures]),
-            maps.ToDictionary(m => m.Document.Method, m => m.Map, StringComparer.Ordinal));
+        var assessment = Detect(epoch, values, attributed, failures);
+        Record(epoch, values, attributed, weights, assessment, failures, monitorSeconds);
+        _lastEpoch = epoch;
+        return assessment.Verdict;
+    }
 
-        // One transaction per epoch: maps, snapshot, statistics, verdict and the epoch's document (the marker
-        // readers and a resumed run look for) land together or not at all, and the file is opened once.
+    // The detector's judgement: the first method's map makes the verdict, the others' detectors run beside it.
+    private Assessment Detect(int epoch, Dictionary<string, double> values, EpochMaps attributed, List<Finding> failures)
+    {
+        var primary = attributed.Maps.FirstOrDefault(m => m.Document.Method == _options.Methods[0].Name);
+        return _detector.Observe(
+            new EpochEvidence(epoch, values, primary?.Map, [.. failures]),
+            attributed.Maps.ToDictionary(m => m.Document.Method, m => m.Map, StringComparer.Ordinal));
+    }
+
+    // One transaction per epoch: maps, snapshot, statistics, verdict and the epoch's document (the marker readers and a
+    // resumed run look for) land together or not at all, and the file is opened once.
+    private void Record(int epoch, Dictionary<string, double> values, EpochMaps attributed, MemoryStream? weights, Assessment assessment, List<Finding> failures, Func<double> monitorSeconds)
+    {
         try
         {
             var storeClock = Stopwatch.StartNew();
             _store.InOneTransaction(() =>
             {
-                foreach (var map in maps)
+                foreach (var map in attributed.Maps)
                 {
                     _store.WriteMap(map.Document);
                     if (map.Quality is not null)
                         _store.WriteQuality(map.Quality);
                 }
-                foreach (var layerMap in layerMaps)
+                foreach (var layerMap in attributed.LayerMaps)
                     _store.WriteLayerMap(layerMap);
                 string? snapshot = weights is null ? null : _store.SaveSnapshot(_run.Id, epoch, weights);
                 _store.WriteStatistics(new StatisticsDocument { RunId = _run.Id, Epoch = epoch, Statistics = assessment.Statistics });
@@ -279,8 +291,6 @@ public sealed class TrainingMonitor : IDisposable
             _detector = CatchUp(before: epoch);
             throw;
         }
-        _lastEpoch = epoch;
-        return assessment.Verdict;
     }
 
     private static Verdict FailureVerdict(int epoch, List<Finding> failures, Exception e)
@@ -289,6 +299,10 @@ public sealed class TrainingMonitor : IDisposable
         var kind = failures.Max(f => f.Severity);
         return new Verdict(epoch, kind, failures.Select(f => f.Evidence).ToImmutableArray(), [.. failures]);
     }
+
+    private static Finding Failure(int epoch, string where, Exception e) => Failure(epoch, AttributionProblem.Describe(where, epoch, e));
+
+    private static Finding Failure(int epoch, string evidence) => Detection.Rules.MonitoringFailureRule.Failure(epoch, evidence);
 
     /// <summary>
     /// Loads the weight snapshot of the run's last complete epoch into <paramref name="module"/> and returns that epoch,
@@ -343,167 +357,21 @@ public sealed class TrainingMonitor : IDisposable
             System.Runtime.ExceptionServices.ExceptionDispatchInfo.Throw(failure);
     }
 
-    private sealed record StoredMap(MapDocument Document, AttributionMap Map)
+    // The one attribution path, configured from the options.
+    private static EpochAttribution AttributionOf(MonitorOptions options) => new()
     {
-        /// <summary>Agreement with the epoch's other maps and quality figures, when either exists.</summary>
-        public MapQualityDocument? Quality { get; set; }
-    }
-
-    private List<StoredMap> Attribute(IWatchedModel model, int epoch, List<Finding> failures, List<LayerMapDocument> layerMaps)
-    {
-        var stored = new List<StoredMap>();
-        var module = model.Module;
-        bool wasTraining = module.training;
-        var parameters = module.parameters().ToList();
-        var requiresGrad = parameters.Select(p => p.requires_grad).ToList();
-        try
-        {
-            // Eval mode (no dropout, fixed batch-norm statistics) and frozen weights: the backward pass then
-            // computes input gradients only.
-            module.eval();
-            foreach (var p in parameters)
-                p.requires_grad = false;
-
-            using var scope = torch.NewDisposeScope();
-            var probe = _options.Probe;
-            Tensor features;
-            using (torch.no_grad())
-            {
-                var dense = torch.tensor(probe.Rows.Dense, [probe.Count, probe.Rows.DenseCount]);
-                var categorical = torch.tensor(probe.Rows.Categorical, [probe.Count, probe.Rows.CategoricalCount]);
-                features = model.Encode(dense, categorical).detach().to(ScalarType.Float32);
-            }
-            if (features.dim() != 2 || features.shape[0] != probe.Count || features.shape[1] != _options.Schema.ColumnCount)
-                throw new DriftWatchException($"encode returned shape [{string.Join(", ", features.shape)}]; expected [{probe.Count}, {_options.Schema.ColumnCount}] as the schema says");
-            var baseline = _options.Baseline.Resolve(features[TensorIndex.Slice(probe.HeldOutCount, probe.Count)], _options.Schema.ColumnCount);
-            var target = _options.Target;
-            AttributionInput input;
-            try
-            {
-                input = AttributionInput.ForModel(model, target, features, baseline, _options.ChunkRows, _options.Schema, memoryBudgetBytes: _options.MemoryBudgetBytes);
-            }
-            catch (Exception e) when (!_options.Strict)
-            {
-                // A declared entry layer that does not reproduce the score step, or a score step that fails on the rows it
-                // was checked on: say so, and attribute the whole model (the methods report a failing score step too).
-                failures.Add(Failure(epoch, "the entry layer check", e));
-                input = AttributionInput.ForModel(model, target, features, baseline, _options.ChunkRows, _options.Schema, splitAtEntry: false, _options.MemoryBudgetBytes);
-            }
-            var figures = new Dictionary<string, QualityFigures>(StringComparer.Ordinal);
-
-            foreach (var method in _options.Methods)
-            {
-                try
-                {
-                    var watch = Stopwatch.StartNew();
-                    var columns = method.Attribute(input);
-                    var map = AttributionMap.FromColumns(columns, _options.Schema);
-                    double seconds = watch.Elapsed.TotalSeconds;
-                    var (heldOut, training) = HalfImportance.ForHalves(map, probe);
-                    stored.Add(new StoredMap(new MapDocument
-                    {
-                        RunId = _run.Id,
-                        Epoch = epoch,
-                        Method = method.Name,
-                        Target = target.Label,
-                        Rows = map.Rows,
-                        Features = map.Features,
-                        Scores = FloatBytes.FromFloats(map.Scores),
-                        Deltas = map.Deltas is null ? null : FloatBytes.FromFloats(map.Deltas),
-                        OutputGaps = map.OutputGaps is null ? null : FloatBytes.FromFloats(map.OutputGaps),
-                        HeldOut = ToDocument(heldOut),
-                        Training = ToDocument(training),
-                        Seconds = seconds,
-                        Evaluations = columns.Evaluations,
-                        Settings = new Dictionary<string, string>(method.Settings, StringComparer.Ordinal),
-                    }, map));
-                    if (_options.Quality is not null)
-                        MeasureQuality(method, input, columns, epoch, figures, failures);
-                }
-                catch (Exception e) when (!_options.Strict)
-                {
-                    failures.Add(Failure(epoch, method.Name, e));
-                }
-            }
-            if (!_options.WatchedLayers.IsDefaultOrEmpty)
-                AttributeLayers(model, input, epoch, failures, layerMaps);
-            try
-            {
-                BuildQuality(epoch, stored, figures);
-            }
-            catch (Exception e) when (!_options.Strict)
-            {
-                failures.Add(Failure(epoch, "method agreement", e));
-            }
-        }
-        finally
-        {
-            for (int i = 0; i < parameters.Count; i++)
-                parameters[i].requires_grad = requiresGrad[i];
-            module.train(wasTraining);
-        }
-        return stored;
-    }
-
-    private void MeasureQuality(IAttributionMethod method, AttributionInput input, ColumnAttribution columns, int epoch, Dictionary<string, QualityFigures> figures, List<Finding> failures)
-    {
-        try
-        {
-            figures[method.Name] = MapQuality.Measure(method, input, columns, _options.Quality!);
-        }
-        catch (Exception e) when (!_options.Strict)
-        {
-            failures.Add(Failure(epoch, method.Name + " quality figures", e));
-        }
-    }
-
-    // Per map: its agreement with the other methods' maps of this epoch and its quality figures, when either exists.
-    private void BuildQuality(int epoch, List<StoredMap> stored, Dictionary<string, QualityFigures> figures)
-    {
-        if (stored.Count < 2 && figures.Count == 0)
-            return;
-        foreach (var map in stored)
-        {
-            var quality = figures.GetValueOrDefault(map.Document.Method);
-            map.Quality = new MapQualityDocument
-            {
-                RunId = _run.Id,
-                Epoch = epoch,
-                Method = map.Document.Method,
-                Target = _options.Target.Label,
-                Agreement = stored.Where(o => o.Document.Method != map.Document.Method)
-                    .Select(o => new AgreementDocument { Method = o.Document.Method, Spearman = MethodAgreement.Spearman(map.Map, o.Map, _options.Probe.HeldOutCount) })
-                    .ToList(),
-                Measured = quality is not null,
-                Infidelity = quality?.Infidelity ?? double.NaN,
-                RelativeInfidelity = quality?.RelativeInfidelity ?? double.NaN,
-                MaxSensitivity = quality?.MaxSensitivity ?? double.NaN,
-                RelativeMaxSensitivity = quality?.RelativeMaxSensitivity ?? double.NaN,
-                QualityRows = quality?.Rows ?? 0,
-                QualitySettings = quality is null ? [] : new Dictionary<string, string>(_options.Quality!.ToSettings(), StringComparer.Ordinal),
-                QualityEvaluations = quality?.Evaluations ?? 0,
-            };
-        }
-    }
-
-    // The weights in memory, before the epoch's transaction: a model that cannot be saved costs the snapshot, not the epoch.
-    private MemoryStream? Serialise(IWatchedModel model, int epoch, List<Finding> failures)
-    {
-        var weights = new MemoryStream();
-        try
-        {
-            using (var writer = new BinaryWriter(weights, System.Text.Encoding.UTF8, leaveOpen: true))
-                model.Module.save(writer);
-            weights.Position = 0;
-            return weights;
-        }
-        catch (Exception e) when (!_options.Strict)
-        {
-            weights.Dispose();
-            failures.Add(Failure(epoch, "snapshot", e));
-            return null;
-        }
-    }
+        Probe = options.Probe,
+        Schema = options.Schema,
+        Methods = options.Methods,
+        Target = options.Target,
+        Baseline = options.Baseline,
+        ChunkRows = options.ChunkRows,
+        MemoryBudgetBytes = options.MemoryBudgetBytes,
+        Quality = options.Quality,
+        WatchedLayers = options.WatchedLayers.IsDefault ? [] : options.WatchedLayers,
+        LayerMethods = options.LayerMethods,
+        Strict = options.Strict,
+    };
 
     private void CheckModel(IWatchedModel model)
     {
@@ -557,18 +425,6 @@ public sealed class TrainingMonitor : IDisposable
             RunReview.Observe(detector, stored, maps.GetValueOrDefault(stored.Epoch));
         return detector;
     }
-
-    private static Finding Failure(int epoch, string where, Exception e) =>
-        new(FindingKind.MonitoringFailure, VerdictKind.Caution, "", 0, 0, EpochSpan.At(epoch),
-            $"{where} failed at epoch {epoch}: {e.GetType().Name}: {e.Message}");
-
-    private static ImportanceDocument ToDocument(HalfImportance half) => new()
-    {
-        MeanAbsolute = half.MeanAbsolute,
-        MeanSigned = half.MeanSigned,
-        Share = half.Share,
-        Alignment = half.Alignment,
-    };
 
     private static string ModelShape(nn.Module module) =>
         string.Join(";", module.named_parameters().Select(p => $"{p.name}[{string.Join("x", p.parameter.shape)}]"));

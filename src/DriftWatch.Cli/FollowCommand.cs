@@ -103,13 +103,20 @@ internal static class FollowCommand
                 if (pending.Count == 0)
                     Thread.Sleep(wait);
             }
-            latest ??= monitor.Store.Verdicts(monitor.Run.Id).Select(VerdictRecords.FromDocument).LastOrDefault();
+            latest ??= LatestVerdict(options.StorePath, monitor.Run.Id);
             output.WriteLine(latest is null
                 ? "no complete epoch yet"
                 : $"done: latest epoch {Formats.Integer(latest.Epoch)} is {latest.Kind}{(runFolder.IsFinished ? " (the run has finished)" : "")}");
             return latest?.IsHalt == true ? ExitCodes.Halt : ExitCodes.Fine;
         });
         return command;
+    }
+
+    // The monitor keeps its store to itself; the latest stored verdict is read through a store opened for reading.
+    private static Verdict? LatestVerdict(string storePath, int runId)
+    {
+        using var reading = RunStore.OpenForReading(storePath);
+        return reading.Verdicts(runId).Select(VerdictRecords.FromDocument).LastOrDefault();
     }
 
     private static int StoredLastEpoch(string storePath, string name)

@@ -211,6 +211,7 @@ internal static class ReattributeCommand
         var missing = results.Where(r => r.Outcome == ReattributionOutcome.NoSnapshot).Select(r => r.Epoch).ToList();
         if (missing.Count > 0)
             output.WriteLine($"  no weight snapshot, skipped: epochs {Shard.Describe(missing)}");
+        WriteProblems(output, results);
         output.WriteLine($"  the store was only read; when every shard is done: driftwatch merge {Quote(folder)}/shard-*-of-{shard.Count.ToString(CultureInfo.InvariantCulture)}.litedb --into {Quote(path)}");
         return ExitCodes.Fine;
     }
@@ -227,8 +228,19 @@ internal static class ReattributeCommand
         var missing = results.Where(r => r.Outcome == ReattributionOutcome.NoSnapshot).Select(r => Formats.Integer(r.Epoch)).ToList();
         if (missing.Count > 0)
             output.WriteLine($"  no weight snapshot, skipped: epochs {string.Join(", ", missing)}");
+        WriteProblems(output, results);
         output.WriteLine($"  see them with: driftwatch show {Quote(run.Name)} --method {Quote(request.Name)} --store {Quote(store)}");
         output.WriteLine("  Attributions describe the model, not causes in the data.");
+    }
+
+    // What went wrong without stopping an epoch: a declared entry layer that failed its check.
+    private static void WriteProblems(TextWriter output, IReadOnlyList<ReattributedEpoch> results)
+    {
+        var problems = results.SelectMany(r => r.Problems).ToList();
+        foreach (string problem in problems)
+            output.WriteLine($"  problem: {DisplayText.Clean(problem)}");
+        if (problems.Count > 0)
+            output.WriteLine("  at those epochs the whole model was attributed, as the monitor does; fix the model's entry layer declaration to attribute through it");
     }
 
     // Parses KEY=VALUE settings; a key given twice keeps its last value.

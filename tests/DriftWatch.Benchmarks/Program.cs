@@ -411,33 +411,39 @@ return 0;
 static double DemoEpochWrite(GreenhouseNet model, GreenhouseScenario scenario, int repeats)
 {
     using var temp = new TempStore();
-    using var monitor = new TrainingMonitor(new MonitorOptions
+    int runId;
+    using (var monitor = new TrainingMonitor(new MonitorOptions
     {
         StorePath = temp.Path,
         RunName = "write",
         Schema = model.Schema,
         Probe = ProbeSet.Select(scenario.Validation.Rows, scenario.Training.Rows, 128, 1),
         Methods = [new IntegratedGradients(64)],
-    });
-    monitor.EndEpoch(model, 0, new EpochMetrics(0.5, 0.5));
-    var stored = monitor.Store.Maps(monitor.Run.Id)[0];
-    var statistics = monitor.Store.StatisticsOf(monitor.Run.Id)[0];
-    var verdict = monitor.Store.Verdicts(monitor.Run.Id)[0];
-    var epochDocument = monitor.Store.Epochs(monitor.Run.Id)[0];
-    using var weights = monitor.Store.ReadSnapshot(epochDocument.SnapshotId!);
+    }))
+    {
+        monitor.EndEpoch(model, 0, new EpochMetrics(0.5, 0.5));
+        runId = monitor.Run.Id;
+    }
+    // The monitor keeps its store to itself: the same writes go through a store opened on its file.
+    using var store = RunStore.OpenForWriting(temp.Path);
+    var stored = store.Maps(runId)[0];
+    var statistics = store.StatisticsOf(runId)[0];
+    var verdict = store.Verdicts(runId)[0];
+    var epochDocument = store.Epochs(runId)[0];
+    using var weights = store.ReadSnapshot(epochDocument.SnapshotId!);
     var bytes = weights.ToArray();
     int epoch = 1;
     return Measure.Interleaved(repeats, () =>
     {
         int e = epoch++;
-        monitor.Store.InOneTransaction(() =>
+        store.InOneTransaction(() =>
         {
-            monitor.Store.WriteMap(stored with { Id = 0, Epoch = e });
+            store.WriteMap(stored with { Id = 0, Epoch = e });
             using var snapshot = new MemoryStream(bytes);
-            monitor.Store.SaveSnapshot(monitor.Run.Id, e, snapshot);
-            monitor.Store.WriteStatistics(statistics with { Id = 0, Epoch = e });
-            monitor.Store.WriteVerdict(verdict with { Id = 0, Epoch = e });
-            monitor.Store.WriteEpoch(epochDocument with { Id = 0, Epoch = e });
+            store.SaveSnapshot(runId, e, snapshot);
+            store.WriteStatistics(statistics with { Id = 0, Epoch = e });
+            store.WriteVerdict(verdict with { Id = 0, Epoch = e });
+            store.WriteEpoch(epochDocument with { Id = 0, Epoch = e });
         });
     })[0];
 }

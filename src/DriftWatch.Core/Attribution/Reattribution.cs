@@ -1,11 +1,11 @@
+using System.Collections.Immutable;
 using System.Diagnostics;
+using System.Runtime.ExceptionServices;
 using DriftWatch.Detection;
 using DriftWatch.Model;
 using DriftWatch.Probing;
 using DriftWatch.Sharding;
 using DriftWatch.Storage;
-using TorchSharp;
-using static TorchSharp.torch;
 
 namespace DriftWatch.Attribution;
 
@@ -28,7 +28,11 @@ public enum ReattributionOutcome
 /// <param name="Seconds">Seconds spent on it.</param>
 /// <param name="Index">Its position among the epochs of the request, from 1.</param>
 /// <param name="Count">How many epochs the request covers.</param>
-public sealed record ReattributedEpoch(int Epoch, ReattributionOutcome Outcome, double Seconds, int Index, int Count);
+public sealed record ReattributedEpoch(int Epoch, ReattributionOutcome Outcome, double Seconds, int Index, int Count)
+{
+    /// <summary>What went wrong without stopping the epoch (a declared entry layer that failed its check), one line each.</summary>
+    public ImmutableArray<string> Problems { get; init; } = [];
+}
 
 /// <summary>What to re-attribute: a method, the epochs, the name the maps are stored under.</summary>
 public sealed record ReattributionRequest
@@ -186,22 +190,25 @@ public static class Reattribution
         RunStore source, RunDocument run, IWatchedModel model, ReattributionRequest request, IReadOnlyList<EpochDocument> epochs,
         IProgress<ReattributedEpoch>? progress, Func<int, bool> alreadyStored, Action<MapDocument, MapQualityDocument> write)
     {
-        string name = request.Name;
-        var schema = RunContext.FromRun(run).Schema;
-        var probe = ProbeOf(run);
-        var baselineChoice = BaselineOf(run);
-        var target = AttributionTarget.Parse(run.Target);
-
+        var attribution = new EpochAttribution
+        {
+            Probe = ProbeOf(run),
+            Schema = RunContext.FromRun(run).Schema,
+            Methods = [request.Method],
+            Target = AttributionTarget.Parse(run.Target),
+            Baseline = BaselineOf(run),
+            ChunkRows = request.ChunkRows,
+            MemoryBudgetBytes = request.MemoryBudgetBytes,
+            Quality = request.Quality,
+        };
         var results = new List<ReattributedEpoch>();
         var module = model.Module;
-        module.eval();
-        foreach (var p in module.parameters())
-            p.requires_grad = false;
         for (int i = 0; i < epochs.Count; i++)
         {
             var epoch = epochs[i];
             var clock = Stopwatch.StartNew();
             ReattributionOutcome outcome;
+            ImmutableArray<string> problems = [];
             if (alreadyStored(epoch.Epoch))
             {
                 outcome = ReattributionOutcome.AlreadyStored;
@@ -214,13 +221,12 @@ public static class Reattribution
             {
                 using (var weights = source.ReadSnapshot(epoch.SnapshotId))
                     Snapshots.LoadInto(module, weights, $"the snapshot of epoch {epoch.Epoch} of run '{run.Name}'");
-                foreach (var p in module.parameters())
-                    p.requires_grad = false;
-                var (map, quality) = AttributeEpoch(source, run, model, schema, probe, baselineChoice, target, request, name, epoch.Epoch);
+                var (map, quality, entryProblems) = AttributeEpoch(source, run, model, attribution, request, epoch.Epoch);
                 write(map, quality);
                 outcome = ReattributionOutcome.Stored;
+                problems = entryProblems;
             }
-            var result = new ReattributedEpoch(epoch.Epoch, outcome, clock.Elapsed.TotalSeconds, i + 1, epochs.Count);
+            var result = new ReattributedEpoch(epoch.Epoch, outcome, clock.Elapsed.TotalSeconds, i + 1, epochs.Count) { Problems = problems };
             results.Add(result);
             progress?.Report(result);
         }
@@ -299,70 +305,23 @@ public static class Reattribution
         }
     }
 
-    private static (MapDocument Map, MapQualityDocument Quality) AttributeEpoch(
-        RunStore store, RunDocument run, IWatchedModel model, FeatureSchema schema, ProbeSet probe, Baseline baselineChoice,
-        AttributionTarget target, ReattributionRequest request, string name, int epoch)
+    // The epoch's map under the stored name, and its quality document with its agreement with every map already stored
+    // at this epoch (originals and other re-attributions alike). A bad entry declaration is reported and the whole model
+    // attributed, as the monitor does; any other failure ends the job, since it leaves no map to store.
+    private static (MapDocument Map, MapQualityDocument Quality, ImmutableArray<string> Problems) AttributeEpoch(
+        RunStore store, RunDocument run, IWatchedModel model, EpochAttribution attribution, ReattributionRequest request, int epoch)
     {
-        using var scope = torch.NewDisposeScope();
-        Tensor features;
-        using (torch.no_grad())
-        {
-            var dense = torch.tensor(probe.Rows.Dense, [probe.Count, probe.Rows.DenseCount]);
-            var categorical = torch.tensor(probe.Rows.Categorical, [probe.Count, probe.Rows.CategoricalCount]);
-            features = model.Encode(dense, categorical).detach().to(ScalarType.Float32);
-        }
-        if (features.dim() != 2 || features.shape[0] != probe.Count || features.shape[1] != schema.ColumnCount)
-            throw new DriftWatchException($"encode returned shape [{string.Join(", ", features.shape)}]; expected [{probe.Count}, {schema.ColumnCount}] as the run's schema says");
-        var baseline = baselineChoice.Resolve(features[TensorIndex.Slice(probe.HeldOutCount, probe.Count)], schema.ColumnCount);
-        var input = AttributionInput.ForModel(model, target, features, baseline, request.ChunkRows, schema, memoryBudgetBytes: request.MemoryBudgetBytes);
-
-        var watch = Stopwatch.StartNew();
-        var columns = request.Method.Attribute(input);
-        var map = AttributionMap.FromColumns(columns, schema);
-        double seconds = watch.Elapsed.TotalSeconds;
-        var quality = request.Quality is null ? null : MapQuality.Measure(request.Method, input, columns, request.Quality);
-        var (heldOut, training) = HalfImportance.ForHalves(map, probe);
-
-        // Agreement with every map already stored at this epoch, originals and other re-attributions alike.
+        var attributed = attribution.Attribute(model, run.Id, epoch);
+        if (attributed.Problems.FirstOrDefault(p => p.Step != AttributionStep.EntryCheck) is { } fatal)
+            ExceptionDispatchInfo.Throw(fatal.Error);
+        var fresh = attributed.Maps[0];
+        string name = request.Name;
+        var map = fresh.Document with { Method = name, SourceMethod = request.Method.Name };
         var agreement = store.MapsAt(run.Id, epoch)
-            .Where(m => m.Target == target.Label && m.Method != name && m.Rows == map.Rows && m.Features == map.Features)
-            .Select(m => new AgreementDocument { Method = m.Method, Spearman = MethodAgreement.Spearman(map, RunReview.ToMap(m), probe.HeldOutCount) })
+            .Where(m => m.Target == map.Target && m.Method != name && m.Rows == map.Rows && m.Features == map.Features)
+            .Select(m => new AgreementDocument { Method = m.Method, Spearman = MethodAgreement.Spearman(fresh.Map, RunReview.ToMap(m), attribution.Probe.HeldOutCount) })
             .ToList();
-        var document = new MapDocument
-        {
-            RunId = run.Id,
-            Epoch = epoch,
-            Method = name,
-            Target = target.Label,
-            Rows = map.Rows,
-            Features = map.Features,
-            Scores = FloatBytes.FromFloats(map.Scores),
-            Deltas = map.Deltas is null ? null : FloatBytes.FromFloats(map.Deltas),
-            OutputGaps = map.OutputGaps is null ? null : FloatBytes.FromFloats(map.OutputGaps),
-            HeldOut = ImportanceDocuments.From(heldOut),
-            Training = ImportanceDocuments.From(training),
-            Seconds = seconds,
-            Evaluations = columns.Evaluations,
-            Settings = new Dictionary<string, string>(request.Method.Settings, StringComparer.Ordinal),
-            SourceMethod = request.Method.Name,
-        };
-        var qualityDocument = new MapQualityDocument
-        {
-            RunId = run.Id,
-            Epoch = epoch,
-            Method = name,
-            Target = target.Label,
-            Agreement = agreement,
-            Measured = quality is not null,
-            Infidelity = quality?.Infidelity ?? double.NaN,
-            RelativeInfidelity = quality?.RelativeInfidelity ?? double.NaN,
-            MaxSensitivity = quality?.MaxSensitivity ?? double.NaN,
-            RelativeMaxSensitivity = quality?.RelativeMaxSensitivity ?? double.NaN,
-            QualityRows = quality?.Rows ?? 0,
-            QualitySettings = quality is null ? [] : new Dictionary<string, string>(request.Quality!.ToSettings(), StringComparer.Ordinal),
-            QualityEvaluations = quality?.Evaluations ?? 0,
-        };
-        return (document, qualityDocument);
+        return (map, attribution.QualityDocument(map, fresh.Figures, agreement), [.. attributed.Problems.Select(p => p.Text)]);
     }
 
     private static string Range(ReattributionRequest request) =>

@@ -182,6 +182,42 @@ public sealed class LinearEntryTests
     }
 
     [Fact]
+    public void ReattributeReportsABadEntryAndAttributesTheWholeModelAsTheMonitorDoes()
+    {
+        using var temp = new TempFolder();
+        string path = temp.File("s.litedb");
+        using var inner = new TabularNet(RowsShapedModels.Settings(8));
+        using var skewed = new DeclaredEntry(inner, shift: 0.5f);
+        byte[] monitored;
+        using (var monitor = new TrainingMonitor(new MonitorOptions
+        {
+            StorePath = path,
+            RunName = "skewed",
+            Schema = inner.Schema,
+            Probe = TestProbes.Small(),
+            Methods = [new IntegratedGradients(16)],
+        }))
+        {
+            monitor.EndEpoch(skewed, 0, new EpochMetrics(0.7, 0.7));
+            monitored = Assert.Single(monitor.Store.Maps(monitor.Run.Id, "integrated-gradients")).Scores;
+        }
+        using var rebuilt = new TabularNet(RowsShapedModels.Settings(8));
+        using var rebuiltSkewed = new DeclaredEntry(rebuilt, shift: 0.5f);
+        using var store = DriftWatch.Storage.RunStore.OpenForWriting(path);
+        var run = store.GetRun("skewed");
+
+        var result = Assert.Single(Reattribution.Run(store, run, rebuiltSkewed, new ReattributionRequest { Method = new IntegratedGradients(16) }));
+
+        Assert.Equal(ReattributionOutcome.Stored, result.Outcome);
+        var problem = Assert.Single(result.Problems);
+        Assert.StartsWith("the entry layer check failed at epoch 0: DriftWatchException: ", problem, StringComparison.Ordinal);
+        Assert.Contains("does not reproduce its score step", problem, StringComparison.Ordinal);
+        // The whole score step was attributed, as the monitor did with the same weights: the same map to the bit.
+        var map = Assert.Single(store.Maps(run.Id, "re-integrated-gradients"));
+        Assert.Equal(monitored, map.Scores);
+    }
+
+    [Fact]
     public void ALayerChainMustOpenWithALinearLayer()
     {
         var error = Assert.Throws<ArgumentException>(() => new LayerChain([nn.ReLU(), nn.Linear(3, 1)]));

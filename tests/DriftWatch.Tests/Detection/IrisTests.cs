@@ -90,7 +90,7 @@ public sealed class IrisTests
         return (Rows(trainingRows, training: true), Rows(held.Order(), training: false));
     }
 
-    private static List<Verdict> Train(bool withTag, string store, out RunDocument run)
+    private static List<Verdict> Train(bool withTag, string store, out MonitoredRun run)
     {
         var (training, heldOut) = Split(withTag);
         using var model = new IrisNet(withTag);

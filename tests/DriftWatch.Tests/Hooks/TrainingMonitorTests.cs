@@ -36,6 +36,31 @@ public sealed class TrainingMonitorTests
     }
 
     [Fact]
+    public void TheRunAMonitorHandsOutIsACopyAndItsStoreStaysItsOwn()
+    {
+        using var temp = new TempFolder();
+        using var model = new SmallNet(3, 5, 4);
+        using var monitor = new TrainingMonitor(Options(temp.File("s.litedb"), model));
+        var before = monitor.Run;
+
+        monitor.EndEpoch(model, 0, new EpochMetrics(0.7, 0.7));
+
+        // The copy taken before the epoch keeps what it said; a fresh one says what the monitor learned since.
+        Assert.Equal(-1, before.LastEpoch);
+        Assert.Equal("", before.ModelShape);
+        var after = monitor.Run;
+        Assert.Equal(0, after.LastEpoch);
+        Assert.StartsWith("_embedding.weight[", after.ModelShape, StringComparison.Ordinal);
+        Assert.Equal((before.Id, "test-run", Path.GetFullPath(temp.File("s.litedb"))), (after.Id, after.Name, after.StorePath));
+        using var reading = RunStore.OpenForReading(after.StorePath);
+        Assert.Equal(after.ModelShape, reading.GetRun("test-run").ModelShape);
+        // Nothing public hands out the writable store or the mutable run record.
+        var exposed = typeof(TrainingMonitor).GetProperties().Select(p => p.PropertyType).ToList();
+        Assert.DoesNotContain(typeof(RunStore), exposed);
+        Assert.DoesNotContain(typeof(RunDocument), exposed);
+    }
+
+    [Fact]
     public void EveryEpochIsStoredWithMapsMetricsAndSnapshot()
     {
         using var temp = new TempFolder();
