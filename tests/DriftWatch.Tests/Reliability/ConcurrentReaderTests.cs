@@ -44,7 +44,8 @@ public sealed partial class ConcurrentReaderTests
             int i = 0;
             while (!demo.HasExited)
             {
-                var args = SampleStore.ReadCommands(store, run, temp.File("charts")).ElementAt(i++ % 5).ToArray();
+                // Not the demo's own charts folder beside the store: its last step writes the same trend chart file.
+                var args = SampleStore.ReadCommands(store, run, temp.File("reader-charts")).ElementAt(i++ % 5).ToArray();
                 var clock = Stopwatch.StartNew();
                 var (code, _, error) = SampleStore.Cli(args);
                 Record(timings, args[0], clock.Elapsed.TotalSeconds);
