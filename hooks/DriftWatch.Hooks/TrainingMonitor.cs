@@ -45,6 +45,7 @@ public sealed class TrainingMonitor : IDisposable
     {
         ArgumentNullException.ThrowIfNull(options);
         options.Validate();
+        options.CheckModelRecipe();
         _options = options;
         _store = RunStore.OpenForWriting(options.StorePath);
         try
