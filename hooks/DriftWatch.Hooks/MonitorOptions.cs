@@ -2,27 +2,48 @@ using System.Collections.Immutable;
 using DriftWatch.Attribution;
 using DriftWatch.Detection;
 using DriftWatch.Model;
+using DriftWatch.Options;
 using DriftWatch.Probing;
 
 namespace DriftWatch.Hooks;
 
 /// <summary>How a <see cref="TrainingMonitor"/> watches a run. Build once, then the monitor validates and keeps it.</summary>
+/// <remarks>
+/// A setting that can be checked alone (an empty name, a count below 1, a method twice) is checked when it is set, by
+/// <c>new</c> or <c>with</c>; what depends on several settings is checked by <see cref="Validate"/>, which names every problem.
+/// </remarks>
 public sealed record MonitorOptions
 {
+    private static readonly IntegerRange OneOrMore = IntegerRange.AtLeast(1) with { Text = "at least 1" };
+
     /// <summary>Path of the LiteDB store file; created when missing.</summary>
-    public required string StorePath { get; init; }
+    /// <exception cref="DriftWatchException">Empty.</exception>
+    public required string StorePath
+    {
+        get;
+        init => field = !string.IsNullOrWhiteSpace(value) ? value
+            : throw new DriftWatchException("StorePath is empty; give the monitor a store file path such as 'runs.litedb'");
+    }
 
     /// <summary>The run's name in the store. Reusing a name resumes that run (same schema and probe set required).</summary>
-    public required string RunName { get; init; }
+    /// <exception cref="DriftWatchException">Empty.</exception>
+    public required string RunName
+    {
+        get;
+        init => field = !string.IsNullOrWhiteSpace(value) ? value : throw new DriftWatchException("RunName is empty; give the run a name");
+    }
 
     /// <summary>The feature schema of the watched model.</summary>
-    public required FeatureSchema Schema { get; init; }
+    /// <exception cref="DriftWatchException">Null.</exception>
+    public required FeatureSchema Schema { get; init => field = value ?? throw new DriftWatchException("Schema is null; pass the watched model's schema (model.Schema)"); }
 
     /// <summary>The probe set attributed at every epoch.</summary>
-    public required ProbeSet Probe { get; init; }
+    /// <exception cref="DriftWatchException">Null.</exception>
+    public required ProbeSet Probe { get; init => field = value ?? throw new DriftWatchException("Probe is null; build a probe set from the model's own input rows (ProbeSet.Select)"); }
 
     /// <summary>Attribution methods. Default: Integrated Gradients, 64 midpoint steps.</summary>
-    public ImmutableArray<IAttributionMethod> Methods { get; init; } = [new IntegratedGradients()];
+    /// <exception cref="DriftWatchException">Empty, or a method twice.</exception>
+    public ImmutableArray<IAttributionMethod> Methods { get; init => field = CheckMethods(value); } = [new IntegratedGradients()];
 
     /// <summary>The attributed output. Default: the logit of a binary classifier.</summary>
     public AttributionTarget Target { get; init; } = AttributionTarget.Logit;
@@ -31,17 +52,20 @@ public sealed record MonitorOptions
     public Baseline Baseline { get; init; } = Baseline.Zero;
 
     /// <summary>At most this many expanded rows go through the model at once. Default <see cref="AttributionInput.DefaultChunkRows"/> (2048).</summary>
-    public int ChunkRows { get; init; } = AttributionInput.DefaultChunkRows;
+    /// <exception cref="DriftWatchException">Less than 1.</exception>
+    public int ChunkRows { get; init => field = OneOrMore.Check(value, nameof(ChunkRows)); } = AttributionInput.DefaultChunkRows;
 
     /// <summary>
     /// Memory one block of expanded rows may take in its forward and backward pass, in bytes: blocks get fewer rows than
     /// <see cref="ChunkRows"/> when the model's rows are large (<see cref="MemoryBudget"/>). Default
     /// <see cref="MemoryBudget.DefaultBytes"/> (256 MiB).
     /// </summary>
-    public long MemoryBudgetBytes { get; init; } = MemoryBudget.DefaultBytes;
+    /// <exception cref="DriftWatchException">Less than 1.</exception>
+    public long MemoryBudgetBytes { get; init => field = OneOrMore.Check(value, nameof(MemoryBudgetBytes)); } = MemoryBudget.DefaultBytes;
 
     /// <summary>Attribute every k-th epoch (metrics and snapshots are still kept every epoch). Default 1.</summary>
-    public int AttributeEvery { get; init; } = 1;
+    /// <exception cref="DriftWatchException">Less than 1.</exception>
+    public int AttributeEvery { get; init => field = OneOrMore.Check(value, nameof(AttributeEvery)); } = 1;
 
     /// <summary>Save a weight snapshot every epoch. Default true.</summary>
     public bool SaveSnapshots { get; init; } = true;
@@ -50,7 +74,8 @@ public sealed record MonitorOptions
     public bool Strict { get; init; }
 
     /// <summary>The gate's policy: thresholds, warm-up, patience, which findings may Halt. Default: <see cref="GatePolicy.Default"/>.</summary>
-    public GatePolicy Policy { get; init; } = GatePolicy.Default;
+    /// <exception cref="DriftWatchException">Null.</exception>
+    public GatePolicy Policy { get; init => field = value ?? throw new DriftWatchException("Policy is null; leave it out for the built-in policy"); } = GatePolicy.Default;
 
     /// <summary>Free text stored with the run: model, data, settings.</summary>
     public string Description { get; init; } = "";
@@ -82,7 +107,8 @@ public sealed record MonitorOptions
     /// Hidden layers whose units are attributed at every attributed epoch, by module path as <c>named_modules()</c> of the
     /// model's module lists them (e.g. <c>_scorer.1</c>); each gets one layer map per layer method. Default: none.
     /// </summary>
-    public ImmutableArray<string> WatchedLayers { get; init; } = [];
+    /// <exception cref="DriftWatchException">A blank name, or a layer twice.</exception>
+    public ImmutableArray<string> WatchedLayers { get; init => field = CheckLayers(value); } = [];
 
     /// <summary>The methods applied to each watched layer; each must be an <see cref="ILayerMethod"/>. Default: layer conductance, 32 steps.</summary>
     public ImmutableArray<IAttributionMethod> LayerMethods { get; init; } = [new LayerConductance(steps: 32)];
@@ -100,80 +126,101 @@ public sealed record MonitorOptions
     /// </remarks>
     public bool BackgroundAttribution { get; init; }
 
-    /// <summary>Checks every setting, naming the first bad one.</summary>
-    /// <exception cref="DriftWatchException">A setting is out of range or the probe set does not fit the schema.</exception>
+    /// <summary>
+    /// Checks what no single setting can check alone (the probe set and baseline against the schema, the watched model and
+    /// layers, the value counts, the quality settings), naming every problem. Changes nothing and builds nothing: the
+    /// recipe's model is checked by <see cref="CheckModelRecipe"/> where the monitor builds it.
+    /// </summary>
+    /// <exception cref="DriftWatchException">One or more problems, all named on one line.</exception>
     public void Validate()
     {
-        if (string.IsNullOrWhiteSpace(StorePath))
-            throw new DriftWatchException("StorePath is empty; give the monitor a store file path such as 'runs.litedb'");
-        if (string.IsNullOrWhiteSpace(RunName))
-            throw new DriftWatchException("RunName is empty; give the run a name");
-        if (Schema is null || Probe is null)
-            throw new DriftWatchException("Schema and Probe must both be set");
-        if (Methods.IsDefaultOrEmpty)
-            throw new DriftWatchException("Methods is empty; configure at least one attribution method");
-        var duplicate = Methods.GroupBy(m => m.Name).FirstOrDefault(g => g.Count() > 1);
-        if (duplicate is not null)
-            throw new DriftWatchException($"method '{duplicate.Key}' is configured twice; each method may appear once");
-        if (ChunkRows < 1)
-            throw new DriftWatchException($"ChunkRows must be at least 1; got {ChunkRows}");
-        if (MemoryBudgetBytes < 1)
-            throw new DriftWatchException($"MemoryBudgetBytes must be at least 1; got {MemoryBudgetBytes}");
-        if (AttributeEvery < 1)
-            throw new DriftWatchException($"AttributeEvery must be at least 1; got {AttributeEvery}");
-        if (Policy is null)
-            throw new DriftWatchException("Policy is null; leave it out for the built-in policy");
-        if (Probe.Rows.DenseCount != Schema.DenseCount || Probe.Rows.CategoricalCount != Schema.CategoricalCount)
-            throw new DriftWatchException(
-                $"probe rows have {Probe.Rows.DenseCount} dense and {Probe.Rows.CategoricalCount} categorical inputs but the schema has {Schema.DenseCount} and {Schema.CategoricalCount}; build the probe from the model's own input rows");
-        if (Baseline.Kind == BaselineKind.Given && Baseline.Values!.Length != Schema.ColumnCount)
-            throw new DriftWatchException($"given baseline has {Baseline.Values.Length} values but the schema has {Schema.ColumnCount} feature-space columns");
-        Quality?.Validate();
-        if (BackgroundAttribution && Model is null)
-            throw new DriftWatchException("BackgroundAttribution needs Model (a ModelRecipe): the monitor builds its own copy of the model from it to attribute each epoch's weights while the next epoch trains");
-        if (Model is not null)
+        var problems = new Problems();
+        problems.AddIf(Probe.Rows.DenseCount != Schema.DenseCount || Probe.Rows.CategoricalCount != Schema.CategoricalCount, () =>
+            $"probe rows have {Probe.Rows.DenseCount} dense and {Probe.Rows.CategoricalCount} categorical inputs but the schema has {Schema.DenseCount} and {Schema.CategoricalCount}; build the probe from the model's own input rows");
+        problems.AddIf(Baseline.Kind == BaselineKind.Given && Baseline.Values!.Length != Schema.ColumnCount, () =>
+            $"given baseline has {Baseline.Values!.Length} values but the schema has {Schema.ColumnCount} feature-space columns");
+        if (Quality is not null)
+            problems.Try(Quality.Validate);
+        problems.AddIf(BackgroundAttribution && Model is null, () =>
+            "BackgroundAttribution needs Model (a ModelRecipe): the monitor builds its own copy of the model from it to attribute each epoch's weights while the next epoch trains");
+        problems.AddIf(WatchedModel is not null && !SameSchema(WatchedModel.Schema), () => "WatchedModel's schema differs from Schema; pass model.Schema as Schema");
+        if (!WatchedLayers.IsEmpty)
         {
-            // Building draws fresh weights; the caller's random stream must not move because the monitor checked a recipe.
-            using var state = TorchSharp.torch.random.get_rng_state();
-            var built = Model.Build();
-            try
+            problems.AddIf(LayerMethods.IsDefaultOrEmpty, () => "WatchedLayers is set but LayerMethods is empty; leave LayerMethods out for layer conductance");
+            if (!LayerMethods.IsDefaultOrEmpty)
             {
-                if (!built.Schema.Names.SequenceEqual(Schema.Names) || built.Schema.ColumnCount != Schema.ColumnCount)
-                    throw new DriftWatchException($"the model that Model's factory '{Model.FactoryName}' builds from its settings has another feature schema than Schema; give the factory the settings of the model you train");
+                foreach (var notLayer in LayerMethods.Where(m => m is not ILayerMethod))
+                    problems.Add($"LayerMethods holds '{notLayer.Name}', which is not a layer method; use layer-conductance, layer-activation or layer-gradient-x-activation");
+                foreach (var sameName in LayerMethods.GroupBy(m => m.Name).Where(g => g.Count() > 1))
+                    problems.Add($"layer method '{sameName.Key}' is configured twice; each may appear once");
             }
-            finally
-            {
-                built.Module.Dispose();
-                TorchSharp.torch.random.set_rng_state(state);
-            }
-        }
-        if (WatchedModel is not null && (!WatchedModel.Schema.Names.SequenceEqual(Schema.Names) || WatchedModel.Schema.ColumnCount != Schema.ColumnCount))
-            throw new DriftWatchException("WatchedModel's schema differs from Schema; pass model.Schema as Schema");
-        if (!WatchedLayers.IsDefault && !WatchedLayers.IsEmpty)
-        {
-            if (WatchedLayers.Any(string.IsNullOrWhiteSpace))
-                throw new DriftWatchException("WatchedLayers has an empty name; name each layer by its module path, e.g. '_scorer.1'");
-            var twice = WatchedLayers.GroupBy(l => l, StringComparer.Ordinal).FirstOrDefault(g => g.Count() > 1);
-            if (twice is not null)
-                throw new DriftWatchException($"layer '{twice.Key}' is in WatchedLayers twice; name each layer once");
-            if (LayerMethods.IsDefaultOrEmpty)
-                throw new DriftWatchException("WatchedLayers is set but LayerMethods is empty; leave LayerMethods out for layer conductance");
-            var notLayer = LayerMethods.FirstOrDefault(m => m is not ILayerMethod);
-            if (notLayer is not null)
-                throw new DriftWatchException($"LayerMethods holds '{notLayer.Name}', which is not a layer method; use layer-conductance, layer-activation or layer-gradient-x-activation");
-            var sameName = LayerMethods.GroupBy(m => m.Name).FirstOrDefault(g => g.Count() > 1);
-            if (sameName is not null)
-                throw new DriftWatchException($"layer method '{sameName.Key}' is configured twice; each may appear once");
             if (WatchedModel is not null)
             {
                 foreach (string layer in WatchedLayers)
-                    WatchedLayer.Find(WatchedModel.Module, layer); // an unknown path is refused here, before training
+                    problems.Try(() => WatchedLayer.Find(WatchedModel.Module, layer)); // an unknown path is refused here, before training
             }
         }
-        foreach (var name in TrainingValueCounts.Keys)
+        foreach (var name in (TrainingValueCounts ?? ImmutableDictionary<string, ImmutableDictionary<long, int>>.Empty).Keys)
         {
-            if (!Schema.Features.Any(f => f.Name == name && f.Kind == FeatureKind.Categorical))
-                throw new DriftWatchException($"TrainingValueCounts names '{name}', which is not a categorical feature of the schema");
+            problems.AddIf(!Schema.Features.Any(f => f.Name == name && f.Kind == FeatureKind.Categorical), () =>
+                $"TrainingValueCounts names '{name}', which is not a categorical feature of the schema");
         }
+        problems.ThrowIfAny();
+    }
+
+    /// <summary>
+    /// Builds the model from <see cref="Model"/>'s recipe and checks it with <see cref="ValidateModelSchema"/>; does nothing
+    /// without a recipe. Building draws fresh weights, so the caller's random stream is saved and restored around it.
+    /// </summary>
+    /// <exception cref="DriftWatchException">The built model's schema is not <see cref="Schema"/>.</exception>
+    public void CheckModelRecipe()
+    {
+        if (Model is null)
+            return;
+        using var state = TorchSharp.torch.random.get_rng_state();
+        var built = Model.Build();
+        try
+        {
+            ValidateModelSchema(built);
+        }
+        finally
+        {
+            built.Module.Dispose();
+            TorchSharp.torch.random.set_rng_state(state);
+        }
+    }
+
+    /// <summary>Checks that a model built from <see cref="Model"/>'s recipe has the feature schema <see cref="Schema"/> names.</summary>
+    /// <exception cref="DriftWatchException">Its schema differs.</exception>
+    public void ValidateModelSchema(IWatchedModel built)
+    {
+        ArgumentNullException.ThrowIfNull(built);
+        if (!SameSchema(built.Schema))
+            throw new DriftWatchException($"the model that Model's factory '{Model?.FactoryName}' builds from its settings has another feature schema than Schema; give the factory the settings of the model you train");
+    }
+
+    private bool SameSchema(FeatureSchema other) => other.Names.SequenceEqual(Schema.Names) && other.ColumnCount == Schema.ColumnCount;
+
+    private static ImmutableArray<IAttributionMethod> CheckMethods(ImmutableArray<IAttributionMethod> methods)
+    {
+        if (methods.IsDefaultOrEmpty)
+            throw new DriftWatchException("Methods is empty; configure at least one attribution method");
+        var problems = new Problems();
+        foreach (var duplicate in methods.GroupBy(m => m.Name).Where(g => g.Count() > 1))
+            problems.Add($"method '{duplicate.Key}' is configured twice; each method may appear once");
+        problems.ThrowIfAny();
+        return methods;
+    }
+
+    private static ImmutableArray<string> CheckLayers(ImmutableArray<string> layers)
+    {
+        if (layers.IsDefault)
+            return [];
+        var problems = new Problems();
+        problems.AddIf(layers.Any(string.IsNullOrWhiteSpace), () => "WatchedLayers has an empty name; name each layer by its module path, e.g. '_scorer.1'");
+        foreach (var twice in layers.Where(l => !string.IsNullOrWhiteSpace(l)).GroupBy(l => l, StringComparer.Ordinal).Where(g => g.Count() > 1))
+            problems.Add($"layer '{twice.Key}' is in WatchedLayers twice; name each layer once");
+        problems.ThrowIfAny();
+        return layers;
     }
 }

@@ -47,6 +47,7 @@ public sealed class TrainingMonitor : IDisposable
     {
         ArgumentNullException.ThrowIfNull(options);
         options.Validate();
+        options.CheckModelRecipe();
         _options = options;
         _attribution = AttributionOf(options);
         _store = RunStore.OpenForWriting(options.StorePath);

@@ -1,3 +1,4 @@
+using DriftWatch.Options;
 using DriftWatch.Storage;
 
 namespace DriftWatch.Charts;
@@ -22,19 +23,34 @@ public enum ChartKind
 }
 
 /// <summary>What to draw beyond the kind: how many features, which feature, which heatmap value.</summary>
+/// <remarks>Every setting is checked when it is set (<c>new</c> or <c>with</c>), with the message the chart itself gives.</remarks>
 public sealed record ChartChoices
 {
-    /// <summary>Features in the trend chart. Default <see cref="TrendChart.DefaultTopFeatures"/>.</summary>
-    public int TopFeatures { get; init; } = TrendChart.DefaultTopFeatures;
+    private static readonly IntegerRange TopFeaturesRange =
+        IntegerRange.Between(1, TrendChart.MaximumTopFeatures) with { Rule = $"draws between 1 and {TrendChart.MaximumTopFeatures} features" };
 
-    /// <summary>Columns of the divergence chart. Default <see cref="DivergenceChart.DefaultFeatures"/>.</summary>
-    public int DivergenceFeatures { get; init; } = DivergenceChart.DefaultFeatures;
+    private static readonly IntegerRange DivergenceFeaturesRange =
+        IntegerRange.Between(1, DivergenceChart.MaximumFeatures) with { Rule = $"draws between 1 and {DivergenceChart.MaximumFeatures} features" };
+
+    /// <summary>Features in the trend chart, 1 to <see cref="TrendChart.MaximumTopFeatures"/>. Default <see cref="TrendChart.DefaultTopFeatures"/>.</summary>
+    /// <exception cref="DriftWatchException">Out of range.</exception>
+    public int TopFeatures { get; init => field = TopFeaturesRange.Check(value, "the trend chart"); } = TrendChart.DefaultTopFeatures;
+
+    /// <summary>Columns of the divergence chart, 1 to <see cref="DivergenceChart.MaximumFeatures"/>. Default <see cref="DivergenceChart.DefaultFeatures"/>.</summary>
+    /// <exception cref="DriftWatchException">Out of range.</exception>
+    public int DivergenceFeatures { get; init => field = DivergenceFeaturesRange.Check(value, "the divergence chart"); } = DivergenceChart.DefaultFeatures;
 
     /// <summary>The feature of the feature detail chart (also drawn first in the divergence chart); null picks <see cref="ChartCatalog.DefaultFeature"/>.</summary>
     public string? Feature { get; init; }
 
     /// <summary>What the heatmap shows. Default <see cref="HeatmapValue.Share"/>.</summary>
-    public HeatmapValue HeatmapValue { get; init; } = HeatmapValue.Share;
+    /// <exception cref="DriftWatchException">Not one of the named values.</exception>
+    public HeatmapValue HeatmapValue
+    {
+        get;
+        init => field = Enum.IsDefined(value) ? value
+            : throw new DriftWatchException($"heatmap value must be {string.Join(", ", Enum.GetNames<HeatmapValue>())}; got {(int)value}");
+    } = HeatmapValue.Share;
 
     /// <summary>Whether the heatmap may be drawn taller than the size asked for, so that many features' names stay readable (<see cref="HeatmapChart.ReadableHeight"/>). Default true.</summary>
     public bool GrowHeatmap { get; init; } = true;

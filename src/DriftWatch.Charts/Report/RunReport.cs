@@ -7,22 +7,38 @@ using DriftWatch.Storage;
 namespace DriftWatch.Charts;
 
 /// <summary>What a report contains and where it goes.</summary>
+/// <remarks>Every setting is checked when it is set (<c>new</c> or <c>with</c>); a bad one throws at once.</remarks>
 public sealed record ReportOptions
 {
     /// <summary>The attribution method whose maps to read. Default <see cref="RunHistory.DefaultMethod"/>.</summary>
-    public string Method { get; init; } = RunHistory.DefaultMethod;
+    /// <exception cref="DriftWatchException">Empty.</exception>
+    public string Method
+    {
+        get;
+        init => field = !string.IsNullOrWhiteSpace(value) ? value
+            : throw new DriftWatchException($"report Method is empty; name an attribution method such as '{RunHistory.DefaultMethod}' or leave it out");
+    } = RunHistory.DefaultMethod;
 
     /// <summary>The charts to include, in order. Default: every kind.</summary>
-    public IReadOnlyList<ChartKind> Charts { get; init; } = ChartCatalog.All;
+    /// <exception cref="DriftWatchException">Null, or a kind that is not one of <see cref="ChartCatalog.All"/>.</exception>
+    public IReadOnlyList<ChartKind> Charts
+    {
+        get;
+        init => field = value is not null && value.All(ChartCatalog.All.Contains) ? value
+            : throw new DriftWatchException($"report Charts must hold kinds among {string.Join(", ", ChartCatalog.All.Select(ChartCatalog.Spelling))} (or none); got {(value is null ? "null" : string.Join(", ", value.Select(k => (int)k)))}");
+    } = ChartCatalog.All;
 
     /// <summary>What the charts draw.</summary>
-    public ChartChoices Choices { get; init; } = new();
+    /// <exception cref="DriftWatchException">Null.</exception>
+    public ChartChoices Choices { get; init => field = value ?? throw new DriftWatchException("report Choices is null; leave it out for the default choices"); } = new();
 
     /// <summary>The charts' size. Default <see cref="ChartSize.Default"/>.</summary>
-    public ChartSize Size { get; init; } = ChartSize.Default;
+    /// <exception cref="DriftWatchException">A side outside <see cref="ChartSize.MinimumSide"/>..<see cref="ChartSize.MaximumSide"/> (e.g. <c>default</c>).</exception>
+    public ChartSize Size { get; init => field = new ChartSize(value.Width, value.Height); } = ChartSize.Default;
 
     /// <summary>The report's time stamp, from an injected clock in tests. Default: now.</summary>
-    public TimeProvider Clock { get; init; } = TimeProvider.System;
+    /// <exception cref="DriftWatchException">Null.</exception>
+    public TimeProvider Clock { get; init => field = value ?? throw new DriftWatchException("report Clock is null; leave it out for the system clock"); } = TimeProvider.System;
 }
 
 /// <summary>The files a report wrote.</summary>

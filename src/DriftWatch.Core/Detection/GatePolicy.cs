@@ -1,6 +1,7 @@
+using System.Collections.Frozen;
 using System.Collections.Immutable;
-using System.Globalization;
 using System.Text.Json;
+using DriftWatch.Options;
 
 namespace DriftWatch.Detection;
 
@@ -8,109 +9,133 @@ namespace DriftWatch.Detection;
 /// <remarks>
 /// Widths are multiples of a statistic's noise floor W, the 90% width of its row bootstrap. Defaults come from
 /// prototype measurements on invented greenhouse-like data (see the README's evaluation section) and are starting
-/// points, not universal constants.
+/// points, not universal constants. Every setting is declared once, in <see cref="Settings"/> (key, values accepted,
+/// meaning) and by its property (type and default); a value out of range is refused when it is set, by <c>new</c>,
+/// <c>with</c> or <see cref="Parse"/> alike, with the message a policy file gets.
 /// </remarks>
 public sealed record GatePolicy
 {
-    /// <summary>Epochs at the start whose attribution findings are ignored. Default 1.</summary>
-    public int WarmupEpochs { get; init; } = 1;
+    /// <summary>Every setting, in the order <see cref="ToJson"/> writes them: key, values accepted and meaning, for reading, writing and help.</summary>
+    public static ImmutableArray<PolicySetting> Settings { get; } =
+    [
+        PolicySetting.Integer(nameof(WarmupEpochs), "warmupEpochs", IntegerRange.AtLeast(0), p => p.WarmupEpochs, (p, v) => p with { WarmupEpochs = v },
+            "Epochs at the start whose attribution findings are ignored."),
+        PolicySetting.Integer(nameof(Patience), "patience", IntegerRange.AtLeast(1), p => p.Patience, (p, v) => p with { Patience = v },
+            "Consecutive flagged epochs before an attribution rule becomes a finding."),
+        PolicySetting.Number(nameof(GeneralisationLossThreshold), "generalisationLossThreshold", NumberRange.Above(0) with { Text = "number > 0 (percent)" },
+            p => p.GeneralisationLossThreshold, (p, v) => p with { GeneralisationLossThreshold = v },
+            "Prechelt's GL threshold α, in percent: overfitting when GL(t) > α."),
+        PolicySetting.Number(nameof(LeakWidths), "leakWidths", NumberRange.Above(0), p => p.LeakWidths, (p, v) => p with { LeakWidths = v },
+            "Leak: training-minus-held-out share gap beyond this many widths W."),
+        PolicySetting.Number(nameof(LeakMinimumGap), "leakMinimumGap", NumberRange.Interval(0, true, 1, true), p => p.LeakMinimumGap, (p, v) => p with { LeakMinimumGap = v },
+            "Leak: the share gap must also exceed this absolute amount."),
+        PolicySetting.Number(nameof(LeakAlignmentWidths), "leakAlignmentWidths", NumberRange.Above(0), p => p.LeakAlignmentWidths, (p, v) => p with { LeakAlignmentWidths = v },
+            "Leak: label-alignment gap (training minus held-out) of a feature that is not identifier-like beyond this many widths W."),
+        PolicySetting.Number(nameof(LeakMinimumAlignmentGap), "leakMinimumAlignmentGap", NumberRange.Interval(0, true, 2, true), p => p.LeakMinimumAlignmentGap,
+            (p, v) => p with { LeakMinimumAlignmentGap = v }, "Leak: the alignment gap must also exceed this absolute amount."),
+        PolicySetting.Number(nameof(LeakMinimumShare), "leakMinimumShare", NumberRange.Interval(0, true, 1, true), p => p.LeakMinimumShare, (p, v) => p with { LeakMinimumShare = v },
+            "Leak by alignment: the feature's share of training-half attribution must be at least this (the model leans on it)."),
+        PolicySetting.Number(nameof(IdentifierWidths), "identifierWidths", NumberRange.Above(0), p => p.IdentifierWidths, (p, v) => p with { IdentifierWidths = v },
+            "Memorised identifier: label-alignment gap beyond this many widths W."),
+        PolicySetting.Number(nameof(IdentifierCusumAllowance), "identifierCusumAllowance", NumberRange.AtLeast(0), p => p.IdentifierCusumAllowance,
+            (p, v) => p with { IdentifierCusumAllowance = v }, "Memorised identifier, accumulated: CUSUM allowance K on the alignment gap, in its standard errors."),
+        PolicySetting.Number(nameof(IdentifierCusumThreshold), "identifierCusumThreshold", NumberRange.Above(0), p => p.IdentifierCusumThreshold,
+            (p, v) => p with { IdentifierCusumThreshold = v }, "Memorised identifier, accumulated: CUSUM decision interval H on the alignment gap, in its standard errors."),
+        PolicySetting.Number(nameof(IdentifierRareFraction), "identifierRareFraction", NumberRange.Interval(0, false, 1, true), p => p.IdentifierRareFraction,
+            (p, v) => p with { IdentifierRareFraction = v },
+            "A categorical is identifier-like when at least this fraction of training rows carry a value seen in at most 3 training rows."),
+        PolicySetting.Number(nameof(DominanceWidths), "dominanceWidths", NumberRange.Above(0), p => p.DominanceWidths, (p, v) => p with { DominanceWidths = v },
+            "Dominant feature: top-1 minus top-2 share beyond this many widths W on both halves."),
+        PolicySetting.Number(nameof(PurityLowerBound), "purityLowerBound", NumberRange.Interval(0, false, 1, true), p => p.PurityLowerBound, (p, v) => p with { PurityLowerBound = v },
+            "Probable leak: the one-sided 95% Wilson lower bound of how often the dominant categorical's attribution points at the true label, over the probe "
+            + "rows of both halves, must be at least this, and so must the plain share on held-out rows."),
+        PolicySetting.Number(nameof(DeltaTolerance), "deltaTolerance", NumberRange.Interval(0, false, 1, true), p => p.DeltaTolerance, (p, v) => p with { DeltaTolerance = v },
+            "Mean convergence delta, as a fraction of mean |F(x) − F(x′)|, beyond which an epoch's path maps are not trusted."),
+        PolicySetting.Integer(nameof(BootstrapResamples), "bootstrapResamples", IntegerRange.Between(20, 10000), p => p.BootstrapResamples, (p, v) => p with { BootstrapResamples = v },
+            "Bootstrap resamples for noise floors."),
+        PolicySetting.Integer(nameof(Seed), "seed", IntegerRange.Any, p => p.Seed, (p, v) => p with { Seed = v }, "Seed of the bootstrap."),
+        PolicySetting.Number(nameof(CusumAllowance), "cusumAllowance", NumberRange.AtLeast(0), p => p.CusumAllowance, (p, v) => p with { CusumAllowance = v },
+            "CUSUM allowance K in standard errors of a share."),
+        PolicySetting.Number(nameof(CusumThreshold), "cusumThreshold", NumberRange.Above(0), p => p.CusumThreshold, (p, v) => p with { CusumThreshold = v },
+            "CUSUM decision interval H in standard errors of a share."),
+        PolicySetting.Kinds(nameof(HaltOn), "haltOn", p => p.HaltOn, (p, v) => p with { HaltOn = v }, "Finding kinds that may raise a Halt; the others raise Caution."),
+        PolicySetting.Switch(nameof(SingleMethodMayHalt), "singleMethodMayHalt", p => p.SingleMethodMayHalt, (p, v) => p with { SingleMethodMayHalt = v },
+            "Whether a finding that only other methods than the first configured one show may raise a Halt (by its kind, as haltOn says); when false such a "
+            + "finding asks for Caution at most, since one method's swing can be that method's artefact."),
+    ];
 
-    /// <summary>Consecutive flagged epochs before an attribution rule becomes a finding. Default 2.</summary>
-    public int Patience { get; init; } = 2;
+    private static readonly FrozenDictionary<string, PolicySetting> ByKey = Settings.ToFrozenDictionary(s => s.Key, StringComparer.Ordinal);
 
-    /// <summary>Prechelt's GL threshold α, in percent: overfitting when GL(t) &gt; α. Default 5.</summary>
-    public double GeneralisationLossThreshold { get; init; } = 5;
+    private static readonly FrozenDictionary<string, PolicySetting> ByProperty = Settings.ToFrozenDictionary(s => s.Property, StringComparer.Ordinal);
 
-    /// <summary>Leak: training-minus-held-out share gap beyond this many widths W. Default 1.5.</summary>
-    public double LeakWidths { get; init; } = 1.5;
+    private static readonly JsonSerializerOptions Indented = new() { WriteIndented = true };
 
-    /// <summary>Leak: the share gap must also exceed this absolute amount. Default 0.04.</summary>
-    public double LeakMinimumGap { get; init; } = 0.04;
+    /// <summary>The <c>warmupEpochs</c> setting (see <see cref="Settings"/>). Default 1.</summary>
+    public int WarmupEpochs { get; init => field = Check(value, nameof(WarmupEpochs)); } = 1;
 
-    /// <summary>Leak: label-alignment gap (training minus held-out) of a feature that is not identifier-like beyond this many widths W. Default 1.4.</summary>
-    public double LeakAlignmentWidths { get; init; } = 1.4;
+    /// <summary>The <c>patience</c> setting (see <see cref="Settings"/>). Default 2.</summary>
+    public int Patience { get; init => field = Check(value, nameof(Patience)); } = 2;
 
-    /// <summary>Leak: the alignment gap must also exceed this absolute amount. Default 0.6.</summary>
-    public double LeakMinimumAlignmentGap { get; init; } = 0.6;
+    /// <summary>The <c>generalisationLossThreshold</c> setting (see <see cref="Settings"/>). Default 5.</summary>
+    public double GeneralisationLossThreshold { get; init => field = Check(value, nameof(GeneralisationLossThreshold)); } = 5;
 
-    /// <summary>Leak by alignment: the feature's share of training-half attribution must be at least this (the model leans on it). Default 0.1.</summary>
-    public double LeakMinimumShare { get; init; } = 0.1;
+    /// <summary>The <c>leakWidths</c> setting (see <see cref="Settings"/>). Default 1.5.</summary>
+    public double LeakWidths { get; init => field = Check(value, nameof(LeakWidths)); } = 1.5;
 
-    /// <summary>Memorised identifier: label-alignment gap beyond this many widths W. Default 0.75.</summary>
-    public double IdentifierWidths { get; init; } = 0.75;
+    /// <summary>The <c>leakMinimumGap</c> setting (see <see cref="Settings"/>). Default 0.04.</summary>
+    public double LeakMinimumGap { get; init => field = Check(value, nameof(LeakMinimumGap)); } = 0.04;
 
-    /// <summary>Memorised identifier, accumulated: CUSUM allowance K on the alignment gap, in its standard errors. Default 0.5.</summary>
-    public double IdentifierCusumAllowance { get; init; } = 0.5;
+    /// <summary>The <c>leakAlignmentWidths</c> setting (see <see cref="Settings"/>). Default 1.4.</summary>
+    public double LeakAlignmentWidths { get; init => field = Check(value, nameof(LeakAlignmentWidths)); } = 1.4;
 
-    /// <summary>Memorised identifier, accumulated: CUSUM decision interval H on the alignment gap, in its standard errors. Default 5.</summary>
-    public double IdentifierCusumThreshold { get; init; } = 5;
+    /// <summary>The <c>leakMinimumAlignmentGap</c> setting (see <see cref="Settings"/>). Default 0.6.</summary>
+    public double LeakMinimumAlignmentGap { get; init => field = Check(value, nameof(LeakMinimumAlignmentGap)); } = 0.6;
 
-    /// <summary>A categorical is identifier-like when at least this fraction of training rows carry a value seen in at most 3 training rows. Default 0.5.</summary>
-    public double IdentifierRareFraction { get; init; } = 0.5;
+    /// <summary>The <c>leakMinimumShare</c> setting (see <see cref="Settings"/>). Default 0.1.</summary>
+    public double LeakMinimumShare { get; init => field = Check(value, nameof(LeakMinimumShare)); } = 0.1;
 
-    /// <summary>Dominant feature: top-1 minus top-2 share beyond this many widths W on both halves. Default 2.5.</summary>
-    public double DominanceWidths { get; init; } = 2.5;
+    /// <summary>The <c>identifierWidths</c> setting (see <see cref="Settings"/>). Default 0.75.</summary>
+    public double IdentifierWidths { get; init => field = Check(value, nameof(IdentifierWidths)); } = 0.75;
 
-    /// <summary>
-    /// Probable leak: the one-sided 95% Wilson lower bound of how often the dominant categorical's attribution points at the
-    /// true label, over the probe rows of both halves, must be at least this, and so must the plain share on held-out rows.
-    /// Default 0.77.
-    /// </summary>
-    public double PurityLowerBound { get; init; } = 0.77;
+    /// <summary>The <c>identifierCusumAllowance</c> setting (see <see cref="Settings"/>). Default 0.5.</summary>
+    public double IdentifierCusumAllowance { get; init => field = Check(value, nameof(IdentifierCusumAllowance)); } = 0.5;
 
-    /// <summary>Mean convergence delta, as a fraction of mean |F(x) − F(x′)|, beyond which an epoch's path maps are not trusted. Default 0.05.</summary>
-    public double DeltaTolerance { get; init; } = 0.05;
+    /// <summary>The <c>identifierCusumThreshold</c> setting (see <see cref="Settings"/>). Default 5.</summary>
+    public double IdentifierCusumThreshold { get; init => field = Check(value, nameof(IdentifierCusumThreshold)); } = 5;
 
-    /// <summary>Bootstrap resamples for noise floors. Default 200.</summary>
-    public int BootstrapResamples { get; init; } = 200;
+    /// <summary>The <c>identifierRareFraction</c> setting (see <see cref="Settings"/>). Default 0.5.</summary>
+    public double IdentifierRareFraction { get; init => field = Check(value, nameof(IdentifierRareFraction)); } = 0.5;
 
-    /// <summary>Seed of the bootstrap. Default 12345.</summary>
-    public int Seed { get; init; } = 12345;
+    /// <summary>The <c>dominanceWidths</c> setting (see <see cref="Settings"/>). Default 2.5.</summary>
+    public double DominanceWidths { get; init => field = Check(value, nameof(DominanceWidths)); } = 2.5;
 
-    /// <summary>CUSUM allowance K in standard errors of a share. Default 0.5.</summary>
-    public double CusumAllowance { get; init; } = 0.5;
+    /// <summary>The <c>purityLowerBound</c> setting (see <see cref="Settings"/>). Default 0.77.</summary>
+    public double PurityLowerBound { get; init => field = Check(value, nameof(PurityLowerBound)); } = 0.77;
 
-    /// <summary>CUSUM decision interval H in standard errors of a share. Default 5.</summary>
-    public double CusumThreshold { get; init; } = 5;
+    /// <summary>The <c>deltaTolerance</c> setting (see <see cref="Settings"/>). Default 0.05.</summary>
+    public double DeltaTolerance { get; init => field = Check(value, nameof(DeltaTolerance)); } = 0.05;
 
-    /// <summary>Finding kinds that may raise a Halt; the others raise Caution. Default: leak, memorised identifier, probable leak, overfitting.</summary>
-    public ImmutableArray<FindingKind> HaltOn { get; init; } =
+    /// <summary>The <c>bootstrapResamples</c> setting (see <see cref="Settings"/>). Default 200.</summary>
+    public int BootstrapResamples { get; init => field = Check(value, nameof(BootstrapResamples)); } = 200;
+
+    /// <summary>The <c>seed</c> setting (see <see cref="Settings"/>). Default 12345.</summary>
+    public int Seed { get; init => field = Check(value, nameof(Seed)); } = 12345;
+
+    /// <summary>The <c>cusumAllowance</c> setting (see <see cref="Settings"/>). Default 0.5.</summary>
+    public double CusumAllowance { get; init => field = Check(value, nameof(CusumAllowance)); } = 0.5;
+
+    /// <summary>The <c>cusumThreshold</c> setting (see <see cref="Settings"/>). Default 5.</summary>
+    public double CusumThreshold { get; init => field = Check(value, nameof(CusumThreshold)); } = 5;
+
+    /// <summary>The <c>haltOn</c> setting (see <see cref="Settings"/>). Default: leak, memorised identifier, probable leak, overfitting.</summary>
+    public ImmutableArray<FindingKind> HaltOn { get; init => field = ByProperty[nameof(HaltOn)].Check(value); } =
         [FindingKind.Leak, FindingKind.MemorisedIdentifier, FindingKind.ProbableLeak, FindingKind.Overfitting];
 
-    /// <summary>
-    /// Whether a finding that only other methods than the first configured one show may raise a Halt (by its kind, as
-    /// <see cref="HaltOn"/> says). Default false: such a finding asks for Caution at most, since one method's swing can be
-    /// that method's artefact.
-    /// </summary>
+    /// <summary>The <c>singleMethodMayHalt</c> setting (see <see cref="Settings"/>). Default false.</summary>
     public bool SingleMethodMayHalt { get; init; }
 
     /// <summary>The built-in policy.</summary>
     public static GatePolicy Default { get; } = new();
-
-    private static readonly ImmutableDictionary<string, string> Keys = new Dictionary<string, string>
-    {
-        ["warmupEpochs"] = "integer ≥ 0",
-        ["patience"] = "integer ≥ 1",
-        ["generalisationLossThreshold"] = "number > 0 (percent)",
-        ["leakWidths"] = "number > 0",
-        ["leakMinimumGap"] = "number in [0, 1]",
-        ["leakAlignmentWidths"] = "number > 0",
-        ["leakMinimumAlignmentGap"] = "number in [0, 2]",
-        ["leakMinimumShare"] = "number in [0, 1]",
-        ["identifierWidths"] = "number > 0",
-        ["identifierCusumAllowance"] = "number ≥ 0",
-        ["identifierCusumThreshold"] = "number > 0",
-        ["identifierRareFraction"] = "number in (0, 1]",
-        ["dominanceWidths"] = "number > 0",
-        ["purityLowerBound"] = "number in (0, 1]",
-        ["deltaTolerance"] = "number in (0, 1]",
-        ["bootstrapResamples"] = "integer between 20 and 10000",
-        ["seed"] = "integer",
-        ["cusumAllowance"] = "number ≥ 0",
-        ["cusumThreshold"] = "number > 0",
-        ["haltOn"] = "array of " + string.Join(", ", FindingKinds.Names),
-        ["singleMethodMayHalt"] = "true or false",
-    }.ToImmutableDictionary();
 
     /// <summary>Whether a finding of this kind may raise a Halt.</summary>
     public VerdictKind SeverityOf(FindingKind kind) => HaltOn.Contains(kind) ? VerdictKind.Halt : VerdictKind.Caution;
@@ -119,7 +144,7 @@ public sealed record GatePolicy
     public VerdictKind SeverityOfSingleMethod(FindingKind kind) => SingleMethodMayHalt ? SeverityOf(kind) : VerdictKind.Caution;
 
     /// <summary>Reads a policy file; keys left out keep their defaults.</summary>
-    /// <exception cref="DriftWatchException">Missing file, bad JSON, an unknown key or a value out of range; the message names it.</exception>
+    /// <exception cref="DriftWatchException">Missing file, bad JSON, unknown keys or values out of range; the message names every one.</exception>
     public static GatePolicy Load(string path)
     {
         ArgumentException.ThrowIfNullOrWhiteSpace(path);
@@ -129,6 +154,7 @@ public sealed record GatePolicy
     }
 
     /// <summary>Parses policy JSON; <paramref name="source"/> names it in errors.</summary>
+    /// <exception cref="DriftWatchException">Bad JSON, or unknown keys and values out of range: one line naming every problem.</exception>
     public static GatePolicy Parse(string json, string source = "policy")
     {
         ArgumentNullException.ThrowIfNull(json);
@@ -146,99 +172,40 @@ public sealed record GatePolicy
             if (document.RootElement.ValueKind != JsonValueKind.Object)
                 throw new DriftWatchException($"{source}: expected a JSON object of settings, e.g. {{\"patience\": 2}}");
             var policy = Default;
+            var found = new List<string>();
+            var unknown = new List<string>();
+            int unknownAt = 0;
             foreach (var property in document.RootElement.EnumerateObject())
-                policy = Apply(policy, property, source);
+            {
+                if (!ByKey.TryGetValue(property.Name, out var setting))
+                {
+                    if (unknown.Count == 0)
+                        unknownAt = found.Count;
+                    unknown.Add(property.Name);
+                }
+                else if (setting.Read(policy, property.Value) is { } read)
+                {
+                    policy = read;
+                }
+                else
+                {
+                    found.Add(setting.Problem(property.Value.GetRawText()));
+                }
+            }
+            // The unknown keys are one problem, where the first of them stood, listing the allowed keys once.
+            if (unknown.Count > 0)
+                found.Insert(unknownAt, $"unknown key{(unknown.Count == 1 ? "" : "s")} {string.Join(", ", unknown.Select(k => $"'{k}'"))}; allowed keys: {string.Join(", ", ByKey.Keys.Order(StringComparer.Ordinal))}");
+            var problems = new Problems();
+            found.ForEach(problems.Add);
+            problems.ThrowIfAny(source);
             return policy;
         }
     }
 
     /// <summary>The policy as JSON, every key written.</summary>
-    public string ToJson()
-    {
-        var values = new Dictionary<string, object>
-        {
-            ["warmupEpochs"] = WarmupEpochs,
-            ["patience"] = Patience,
-            ["generalisationLossThreshold"] = GeneralisationLossThreshold,
-            ["leakWidths"] = LeakWidths,
-            ["leakMinimumGap"] = LeakMinimumGap,
-            ["leakAlignmentWidths"] = LeakAlignmentWidths,
-            ["leakMinimumAlignmentGap"] = LeakMinimumAlignmentGap,
-            ["leakMinimumShare"] = LeakMinimumShare,
-            ["identifierWidths"] = IdentifierWidths,
-            ["identifierCusumAllowance"] = IdentifierCusumAllowance,
-            ["identifierCusumThreshold"] = IdentifierCusumThreshold,
-            ["identifierRareFraction"] = IdentifierRareFraction,
-            ["dominanceWidths"] = DominanceWidths,
-            ["purityLowerBound"] = PurityLowerBound,
-            ["deltaTolerance"] = DeltaTolerance,
-            ["bootstrapResamples"] = BootstrapResamples,
-            ["seed"] = Seed,
-            ["cusumAllowance"] = CusumAllowance,
-            ["cusumThreshold"] = CusumThreshold,
-            ["haltOn"] = HaltOn.Select(FindingKinds.NameOf).ToArray(),
-            ["singleMethodMayHalt"] = SingleMethodMayHalt,
-        };
-        return JsonSerializer.Serialize(values, new JsonSerializerOptions { WriteIndented = true });
-    }
+    public string ToJson() => JsonSerializer.Serialize(Settings.ToDictionary(s => s.Key, s => s.Value(this)), Indented);
 
-    private static GatePolicy Apply(GatePolicy p, JsonProperty property, string source)
-    {
-        string key = property.Name;
-        if (!Keys.TryGetValue(key, out string? allowed))
-            throw new DriftWatchException($"{source}: unknown key '{key}'; allowed keys: {string.Join(", ", Keys.Keys.Order(StringComparer.Ordinal))}");
-        var value = property.Value;
-        DriftWatchException Bad() => new($"{source}: '{key}' must be {allowed}; got {value.GetRawText()}");
-        double Number(Func<double, bool> ok)
-        {
-            if (value.ValueKind != JsonValueKind.Number || !value.TryGetDouble(out double d) || !double.IsFinite(d) || !ok(d))
-                throw Bad();
-            return d;
-        }
-        int Integer(Func<int, bool> ok)
-        {
-            if (value.ValueKind != JsonValueKind.Number || !value.TryGetInt32(out int i) || !ok(i))
-                throw Bad();
-            return i;
-        }
-        return key switch
-        {
-            "warmupEpochs" => p with { WarmupEpochs = Integer(i => i >= 0) },
-            "patience" => p with { Patience = Integer(i => i >= 1) },
-            "generalisationLossThreshold" => p with { GeneralisationLossThreshold = Number(d => d > 0) },
-            "leakWidths" => p with { LeakWidths = Number(d => d > 0) },
-            "leakMinimumGap" => p with { LeakMinimumGap = Number(d => d is >= 0 and <= 1) },
-            "leakAlignmentWidths" => p with { LeakAlignmentWidths = Number(d => d > 0) },
-            "leakMinimumAlignmentGap" => p with { LeakMinimumAlignmentGap = Number(d => d is >= 0 and <= 2) },
-            "leakMinimumShare" => p with { LeakMinimumShare = Number(d => d is >= 0 and <= 1) },
-            "identifierWidths" => p with { IdentifierWidths = Number(d => d > 0) },
-            "identifierCusumAllowance" => p with { IdentifierCusumAllowance = Number(d => d >= 0) },
-            "identifierCusumThreshold" => p with { IdentifierCusumThreshold = Number(d => d > 0) },
-            "identifierRareFraction" => p with { IdentifierRareFraction = Number(d => d is > 0 and <= 1) },
-            "dominanceWidths" => p with { DominanceWidths = Number(d => d > 0) },
-            "purityLowerBound" => p with { PurityLowerBound = Number(d => d is > 0 and <= 1) },
-            "deltaTolerance" => p with { DeltaTolerance = Number(d => d is > 0 and <= 1) },
-            "bootstrapResamples" => p with { BootstrapResamples = Integer(i => i is >= 20 and <= 10000) },
-            "seed" => p with { Seed = Integer(_ => true) },
-            "cusumAllowance" => p with { CusumAllowance = Number(d => d >= 0) },
-            "cusumThreshold" => p with { CusumThreshold = Number(d => d > 0) },
-            "haltOn" => p with { HaltOn = Kinds(value, Bad) },
-            "singleMethodMayHalt" => p with { SingleMethodMayHalt = value.ValueKind is JsonValueKind.True or JsonValueKind.False ? value.GetBoolean() : throw Bad() },
-            _ => throw Bad(),
-        };
-    }
+    private static int Check(int value, string property) => ByProperty[property].Check(value);
 
-    private static ImmutableArray<FindingKind> Kinds(JsonElement value, Func<DriftWatchException> bad)
-    {
-        if (value.ValueKind != JsonValueKind.Array)
-            throw bad();
-        var kinds = ImmutableArray.CreateBuilder<FindingKind>();
-        foreach (var item in value.EnumerateArray())
-        {
-            if (item.ValueKind != JsonValueKind.String || !FindingKinds.TryParse(item.GetString(), out FindingKind kind))
-                throw bad();
-            kinds.Add(kind);
-        }
-        return kinds.ToImmutable();
-    }
+    private static double Check(double value, string property) => ByProperty[property].Check(value);
 }

@@ -68,7 +68,9 @@ public sealed class MemoryBudgetTests
     {
         using var temp = new TempFolder();
         using var model = WideRows();
-        var options = new MonitorOptions
+
+        // The options refuse it as soon as it is set, before any monitor exists.
+        var error = Assert.Throws<DriftWatchException>(() => new MonitorOptions
         {
             StorePath = temp.File("s.litedb"),
             RunName = "budget",
@@ -76,10 +78,9 @@ public sealed class MemoryBudgetTests
             Probe = TestProbes.Small(),
             Methods = [new IntegratedGradients(8)],
             MemoryBudgetBytes = 0,
-        };
-
-        var error = Assert.Throws<DriftWatchException>(() => new TrainingMonitor(options));
+        });
         Assert.Equal("MemoryBudgetBytes must be at least 1; got 0", error.Message);
+        Assert.False(File.Exists(temp.File("s.litedb")));
     }
 
     [Fact]
