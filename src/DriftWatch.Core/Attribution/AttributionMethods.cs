@@ -11,6 +11,7 @@ public static class AttributionMethods
             new KeyValuePair<string, Func<IReadOnlyDictionary<string, string>, IAttributionMethod>>[]
             {
                 new("integrated-gradients", IntegratedGradientsFromSettings),
+                new("integrated-gradients-adaptive", AdaptiveIntegratedGradientsFromSettings),
                 new("gradient-x-input", s => NoSettings("gradient-x-input", s, new GradientTimesInput())),
                 new("saliency", s => NoSettings("saliency", s, new Saliency())),
                 new("feature-ablation", FeatureAblation.FromSettings),
@@ -41,6 +42,19 @@ public static class AttributionMethods
         int steps = read.Int("steps", 64, 1, 4096);
         read.RejectUnknown();
         return new IntegratedGradients(steps, rule);
+    }
+
+    private static AdaptiveIntegratedGradients AdaptiveIntegratedGradientsFromSettings(IReadOnlyDictionary<string, string> settings)
+    {
+        const string name = "integrated-gradients-adaptive";
+        var read = new MethodSettings(name, settings);
+        int initial = read.Int("initial-steps", 16, 1, 4096);
+        int maximum = read.Int("maximum-steps", 256, 1, 4096);
+        double tolerance = read.Double("tolerance", 0.01, 0, 1);
+        if (read.Enum("quadrature", QuadratureRule.RiemannMidpoint) != QuadratureRule.RiemannMidpoint)
+            throw new DriftWatchException($"{name} refines midpoint steps only; give quadrature {nameof(QuadratureRule.RiemannMidpoint)} or leave it out");
+        read.RejectUnknown();
+        return new AdaptiveIntegratedGradients(initial, maximum, tolerance);
     }
 
     private static IAttributionMethod NoSettings(string name, IReadOnlyDictionary<string, string> settings, IAttributionMethod method)
