@@ -42,6 +42,10 @@ public sealed class DominantFeatureRule : IFindingRule
         EvaluationRole.Advisory,
         a => $"{a.Features} decides on both halves; that may be genuine, but check how it is produced before trusting it.");
 
+    private static string Sentence(string name, double share, double next, int since) =>
+        Format($"'{name}' decides on both halves: {share:P1} of held-out attribution against {next:P1} for the next feature, since epoch {since}; ")
+        + "may be genuine — check how it is produced";
+
     /// <inheritdoc/>
     public FindingKindInfo Info => Kind;
 
@@ -72,7 +76,7 @@ public sealed class DominantFeatureRule : IFindingRule
             return;
         string name = epoch.Run.FeatureName(top);
         findings.Add(new Finding(FindingKind.DominantFeature, Kind.SeverityUnder(epoch.Run.Policy), name, lead, width, new EpochSpan(since, epoch.Epoch),
-            Format($"'{name}' decides on both halves: {s.ShareHeldOut[top]:P1} of held-out attribution against {s.ShareHeldOut[runnerUp]:P1} for the next feature, since epoch {since}; may be genuine — check how it is produced")));
+            Sentence(name, s.ShareHeldOut[top], s.ShareHeldOut[runnerUp], since)));
     }
 
     /// <summary>The feature with the largest share other than <paramref name="skip"/> (ties: the lower index).</summary>

@@ -45,6 +45,16 @@ public sealed class LeakRule : IFindingRule
         EvaluationRole.NamesFault,
         a => $"Check how {a.Features} is produced for training rows and for held-out rows: a value that carries the label only where the model trained is a leak. The divergence chart shows the gap.");
 
+    private static string ShareSentence(string name, EpochStatistics s, int f, int since) =>
+        Format($"'{name}' takes {s.ShareTraining[f]:P1} of attribution on training rows but {s.ShareHeldOut[f]:P1} on held-out rows ")
+        + Format($"(gap {s.ShareGap[f]:+0.000;-0.000}, noise floor {s.ShareGapWidth[f]:0.000}) since epoch {since}: ")
+        + "the model leans on it for rows it trained on only — a leaked or memorised signal";
+
+    private static string AlignmentSentence(string name, EpochStatistics s, int f, int since) =>
+        Format($"'{name}' points at the true label on training rows (alignment {s.AlignmentTraining[f]:+0.00;-0.00}) ")
+        + Format($"but not on held-out rows ({s.AlignmentHeldOut[f]:+0.00;-0.00}; gap noise floor {s.AlignmentGapWidth[f]:0.00}) since epoch {since}, ")
+        + Format($"with {s.ShareTraining[f]:P1} of training attribution: it carries the label only where the model trained — a leaked signal");
+
     /// <inheritdoc/>
     public FindingKindInfo Info => Kind;
 
@@ -69,9 +79,7 @@ public sealed class LeakRule : IFindingRule
             if (_streaks.Observe(f, shareLeak || alignmentLeak, epoch.Epoch) is not int since)
                 continue;
             string name = run.FeatureName(f);
-            string evidence = shareLeak
-                ? Format($"'{name}' takes {s.ShareTraining[f]:P1} of attribution on training rows but {s.ShareHeldOut[f]:P1} on held-out rows (gap {s.ShareGap[f]:+0.000;-0.000}, noise floor {s.ShareGapWidth[f]:0.000}) since epoch {since}: the model leans on it for rows it trained on only — a leaked or memorised signal")
-                : Format($"'{name}' points at the true label on training rows (alignment {s.AlignmentTraining[f]:+0.00;-0.00}) but not on held-out rows ({s.AlignmentHeldOut[f]:+0.00;-0.00}; gap noise floor {s.AlignmentGapWidth[f]:0.00}) since epoch {since}, with {s.ShareTraining[f]:P1} of training attribution: it carries the label only where the model trained — a leaked signal");
+            string evidence = shareLeak ? ShareSentence(name, s, f, since) : AlignmentSentence(name, s, f, since);
             findings.Add(new Finding(FindingKind.Leak, Kind.SeverityUnder(run.Policy), name,
                 shareLeak ? s.ShareGap[f] : s.AlignmentGap[f], shareLeak ? s.ShareGapWidth[f] : s.AlignmentGapWidth[f], new EpochSpan(since, epoch.Epoch), evidence));
         }

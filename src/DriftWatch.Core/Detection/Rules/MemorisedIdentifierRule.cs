@@ -44,6 +44,15 @@ public sealed class MemorisedIdentifierRule : IFindingRule
         EvaluationRole.NamesFault,
         a => $"{a.Features} behaves like an identifier the model memorised: consider dropping it or grouping its rare values. The feature chart shows the rows it separates.");
 
+    private static string Sentence(string name, EpochStatistics s, int f, string how) =>
+        Format($"identifier-like '{name}' agrees with the label on training rows (alignment {s.AlignmentTraining[f]:+0.00;-0.00}) ")
+        + Format($"more than on held-out rows ({s.AlignmentHeldOut[f]:+0.00;-0.00}), ") + how + ": the model is memorising its values";
+
+    private static string BeyondFloor(EpochStatistics s, int f, int start) => Format($"beyond its noise floor ({s.AlignmentGapWidth[f]:0.00}) since epoch {start}");
+
+    private static string Accumulated(int start, double sum, double threshold) =>
+        Format($"by a steady excess over its noise floor accumulated since epoch {start} (CUSUM {sum:0.0} standard errors, threshold {threshold:0.#})");
+
     /// <inheritdoc/>
     public FindingKindInfo Info => Kind;
 
@@ -78,11 +87,9 @@ public sealed class MemorisedIdentifierRule : IFindingRule
                 continue;
             int start = from ?? accumulating;
             string name = run.FeatureName(f);
-            string how = from is not null
-                ? Format($"beyond its noise floor ({s.AlignmentGapWidth[f]:0.00}) since epoch {start}")
-                : Format($"by a steady excess over its noise floor accumulated since epoch {start} (CUSUM {next:0.0} standard errors, threshold {_settings.CusumThreshold:0.#})");
+            string how = from is not null ? BeyondFloor(s, f, start) : Accumulated(start, next, _settings.CusumThreshold);
             findings.Add(new Finding(FindingKind.MemorisedIdentifier, Kind.SeverityUnder(run.Policy), name, s.AlignmentGap[f], s.AlignmentGapWidth[f], new EpochSpan(start, epoch.Epoch),
-                Format($"identifier-like '{name}' agrees with the label on training rows (alignment {s.AlignmentTraining[f]:+0.00;-0.00}) more than on held-out rows ({s.AlignmentHeldOut[f]:+0.00;-0.00}), ") + how + ": the model is memorising its values" + Echoes(run, f, epoch.Map!)));
+                Sentence(name, s, f, how) + Echoes(run, f, epoch.Map!)));
         }
     }
 

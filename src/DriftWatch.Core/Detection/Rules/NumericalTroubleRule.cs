@@ -72,7 +72,8 @@ public sealed class NumericalTroubleRule : IFindingRule
         if (map.RelativeMeanDelta() is double relative && relative > _settings.DeltaTolerance)
         {
             findings.Add(new Finding(FindingKind.NumericalTrouble, severity, "", relative, _settings.DeltaTolerance, EpochSpan.At(epoch.Epoch),
-                Format($"mean convergence delta is {relative:P1} of mean |F(x) − F(x′)| at epoch {epoch.Epoch}, above {_settings.DeltaTolerance:P0}; use more steps — this epoch's maps are not trusted")));
+                Format($"mean convergence delta is {relative:P1} of mean |F(x) − F(x′)| at epoch {epoch.Epoch}, above {_settings.DeltaTolerance:P0}; ")
+                + "use more steps — this epoch's maps are not trusted"));
             epoch.Distrust();
         }
     }

@@ -43,6 +43,12 @@ public sealed class ProbableLeakRule : IFindingRule
         EvaluationRole.NamesFault,
         a => $"Check whether {a.Features} is derived from the label: it nearly fixes the label on held-out rows too, a pipeline fault the validation loss cannot show.");
 
+    private static string Sentence(string name, double share, double next, PurityResult pure) =>
+        Format($"'{name}' decides on both halves ({share:P1} held-out share, next {next:P1}), ")
+        + Format($"and its attribution points at the true label in {pure.Agree} of {pure.Rows} probe rows across {pure.Values} values ")
+        + Format($"({pure.HeldOutAgree} of {pure.HeldOutRows} held-out; one-sided 95% Wilson lower bound {pure.LowerBound:0.00}): ")
+        + "a categorical whose values nearly fix the label suggests a leak present in validation data too, which the loss cannot show";
+
     /// <inheritdoc/>
     public FindingKindInfo Info => Kind;
 
@@ -71,7 +77,7 @@ public sealed class ProbableLeakRule : IFindingRule
         var dominance = findings[at];
         findings.RemoveAt(at);
         findings.Add(new Finding(FindingKind.ProbableLeak, Kind.SeverityUnder(epoch.Run.Policy), name, pure.LowerBound, _settings.PurityLowerBound, dominance.Epochs,
-            Format($"'{name}' decides on both halves ({s.ShareHeldOut[top]:P1} held-out share, next {s.ShareHeldOut[runnerUp]:P1}), and its attribution points at the true label in {pure.Agree} of {pure.Rows} probe rows across {pure.Values} values ({pure.HeldOutAgree} of {pure.HeldOutRows} held-out; one-sided 95% Wilson lower bound {pure.LowerBound:0.00}): a categorical whose values nearly fix the label suggests a leak present in validation data too, which the loss cannot show")));
+            Sentence(name, s.ShareHeldOut[top], s.ShareHeldOut[runnerUp], pure)));
     }
 
     private sealed record PurityResult(int Agree, int Rows, int HeldOutAgree, int HeldOutRows, int Values, double LowerBound)
