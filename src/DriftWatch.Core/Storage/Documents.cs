@@ -205,7 +205,7 @@ public sealed record EpochDocument : IKeyedDocument
     /// <summary>The epoch.</summary>
     public int Epoch { get; set; }
 
-    /// <summary>Metrics the training loop reported (train_loss, validation_loss, others).</summary>
+    /// <summary>Metrics the training loop reported by stored key (<see cref="MetricKeys.TrainLoss"/>, <see cref="MetricKeys.ValidationLoss"/>, others).</summary>
     public Dictionary<string, double> Metrics { get; set; } = [];
 
     /// <summary>File-storage id of the weight snapshot, or null when snapshots are off or failed.</summary>

@@ -1,4 +1,6 @@
 using System.Buffers.Binary;
+using System.Collections.Frozen;
+using System.Collections.Immutable;
 using System.Text;
 using LiteDB;
 
@@ -24,8 +26,24 @@ public sealed class RunStore : IDisposable
     private const int PageSize = 8192;
     private const int LastPageOffset = 64;
 
+    // The document type of every collection the store keeps; the mapper maps these and every stored type nested in them.
+    // Declared before the mapper, since static fields are initialised in textual order.
+    private static readonly ImmutableArray<Type> CollectionTypes =
+    [
+        typeof(RunDocument),
+        typeof(EpochDocument),
+        typeof(MapDocument),
+        typeof(VerdictDocument),
+        typeof(StatisticsDocument),
+        typeof(MapQualityDocument),
+        typeof(ShardDocument),
+        typeof(LayerMapDocument),
+    ];
+
     // LiteDB's global mapper turns "" into null and trims strings; names from users' data must come back exactly as written.
-    private static readonly BsonMapper Mapper = CreateMapper();
+    private static readonly (BsonMapper Mapper, FrozenSet<Type> Types) Mapping = CreateMapper();
+
+    private static BsonMapper Mapper => Mapping.Mapper;
 
     private readonly LiteDatabase _database;
 
@@ -422,11 +440,11 @@ public sealed class RunStore : IDisposable
     // LiteDB's BsonMapper registers a type before filling in its members, so two threads meeting a stored type for the
     // first time at once (two stores opened side by side) could see it half-built: "Member Name not found on BsonMapper".
     // Every stored type is mapped here, once, inside the type initialiser; afterwards the mapper is only read.
-    private static BsonMapper CreateMapper()
+    private static (BsonMapper Mapper, FrozenSet<Type> Types) CreateMapper()
     {
         var mapper = new BsonMapper { EmptyStringToNull = false, TrimWhitespace = false };
         var seen = new HashSet<Type>();
-        var pending = new Stack<Type>([typeof(RunDocument), typeof(EpochDocument), typeof(MapDocument), typeof(VerdictDocument), typeof(StatisticsDocument), typeof(ShardDocument), typeof(LayerMapDocument)]);
+        var pending = new Stack<Type>(CollectionTypes);
         while (pending.TryPop(out var type))
         {
             if (!seen.Add(type))
@@ -438,8 +456,11 @@ public sealed class RunStore : IDisposable
                     pending.Push(nested);
             }
         }
-        return mapper;
+        return (mapper, seen.ToFrozenSet());
     }
+
+    /// <summary>Every type the store's mapper mapped up front: the collections' document types and the stored types nested in them.</summary>
+    internal static FrozenSet<Type> MappedTypes => Mapping.Types;
 
     private static IEnumerable<Type> StoredTypesIn(Type type)
     {
