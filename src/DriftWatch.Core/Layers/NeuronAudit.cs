@@ -1,4 +1,6 @@
+using System.Collections.Immutable;
 using System.Globalization;
+using System.Runtime.InteropServices;
 using DriftWatch.Model;
 using DriftWatch.Storage;
 
@@ -93,7 +95,7 @@ public sealed class NeuronAudit
         Units = units;
         Rows = rows;
         Epochs = epochs;
-        ByEpoch = byEpoch;
+        ByEpoch = [.. byEpoch.Select(ImmutableCollectionsMarshal.AsImmutableArray)];
         Overall = overall;
         Changes = changes;
         Options = options;
@@ -116,7 +118,7 @@ public sealed class NeuronAudit
     public IReadOnlyList<int> Epochs { get; }
 
     /// <summary>Per audited epoch (same order as <see cref="Epochs"/>), every unit's figures.</summary>
-    public IReadOnlyList<UnitFigures[]> ByEpoch { get; }
+    public IReadOnlyList<ImmutableArray<UnitFigures>> ByEpoch { get; }
 
     /// <summary>Every unit's figures over the rows of all audited epochs pooled.</summary>
     public IReadOnlyList<UnitFigures> Overall { get; }
