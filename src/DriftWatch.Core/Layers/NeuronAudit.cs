@@ -153,7 +153,7 @@ public sealed class NeuronAudit
     /// <param name="options">The thresholds.</param>
     /// <param name="rows">The probe rows to audit (indexes into each map), or null for all.</param>
     /// <exception cref="DriftWatchException">No maps, maps of several layers or widths, or a row index out of range.</exception>
-    public static NeuronAudit Run(IReadOnlyList<LayerMapDocument> maps, string target, NeuronAuditOptions options, IReadOnlyList<int>? rows = null)
+    internal static NeuronAudit Run(IReadOnlyList<LayerMapDocument> maps, string target, NeuronAuditOptions options, IReadOnlyList<int>? rows = null)
     {
         ArgumentNullException.ThrowIfNull(maps);
         ArgumentNullException.ThrowIfNull(target);
