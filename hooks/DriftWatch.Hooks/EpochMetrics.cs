@@ -8,10 +8,10 @@ namespace DriftWatch.Hooks;
 public sealed record EpochMetrics(double TrainLoss, double ValidationLoss)
 {
     /// <summary>Stored key of the training loss.</summary>
-    public const string TrainLossKey = "train_loss";
+    public const string TrainLossKey = MetricKeys.TrainLoss;
 
     /// <summary>Stored key of the validation loss.</summary>
-    public const string ValidationLossKey = "validation_loss";
+    public const string ValidationLossKey = MetricKeys.ValidationLoss;
 
     /// <summary>Any other metrics by name (accuracy, AUC…), stored beside the losses.</summary>
     public ImmutableDictionary<string, double> Others { get; init; } = ImmutableDictionary<string, double>.Empty;

@@ -230,8 +230,8 @@ public sealed class RunHistory
             verdicts.TryGetValue(e.Epoch, out var verdict);
             return new EpochRecord(
                 e.Epoch,
-                Metric(e, "train_loss"),
-                Metric(e, "validation_loss"),
+                Metric(e, MetricKeys.TrainLoss),
+                Metric(e, MetricKeys.ValidationLoss),
                 map is null ? [] : [.. map.HeldOut.Share],
                 map is null ? [] : [.. map.Training.Share],
                 verdict is null ? null : ParseVerdict(store, run, verdict),

@@ -19,15 +19,19 @@ internal static class CheckCommand
             HelpName = "FILE",
         };
         var json = new Option<bool>("--json") { Description = "Print the verdict as one JSON object instead of text." };
-        var any = new Option<bool>("--any") { Description = "Exit 1 when any epoch so far was judged Halt, not only the latest." };
+        var any = new Option<bool>("--any") { Description = $"Exit {ExitCodes.Halt} when any epoch so far was judged Halt, not only the latest." };
         var command = new Command(
             "check",
-            "Print the gate's verdict for the latest complete epoch of a run, with its reasons, and exit 1 when it is Halt, "
+            $"Print the gate's verdict for the latest complete epoch of a run, with its reasons, and exit {ExitCodes.Halt} when it is Halt, "
             + "so a scheduler can stop the training. Safe to run while training writes the store. A Halt is advice to a person, not proof.\n"
             + "Examples:\n"
-            + "  driftwatch check night-7 --store /runs/store.litedb; [ $? -eq 1 ] && scancel \"$SLURM_JOB_ID\"\n"
+            + $"  driftwatch check night-7 --store /runs/store.litedb; [ $? -eq {ExitCodes.Halt} ] && scancel \"$SLURM_JOB_ID\"\n"
             + "  driftwatch check night-7 --policy strict.json --json\n"
-            + "Exit codes: 0 Continue or Caution (or no epoch yet); 1 Halt advised; 2 bad input (missing or foreign store, unknown run, bad policy file); 3 internal error.")
+            + ExitCodes.Help(
+                (ExitCodes.Fine, "Continue or Caution (or no epoch yet)"),
+                (ExitCodes.Halt, "Halt advised"),
+                (ExitCodes.BadInput, "bad input (missing or foreign store, unknown run, bad policy file)"),
+                (ExitCodes.InternalError, "internal error")))
         {
             run,
             policy,

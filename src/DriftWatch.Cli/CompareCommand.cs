@@ -2,6 +2,8 @@ using System.CommandLine;
 using System.Globalization;
 using System.Text.Json;
 using DriftWatch.Charts;
+using DriftWatch.Charts.Compare;
+using DriftWatch.Charts.Report;
 
 namespace DriftWatch.Cli;
 

@@ -19,12 +19,26 @@ public static class ExitCodes
     public const int Incomplete = 4;
 
     /// <summary>The exit codes as help text lists them, for commands that never return <see cref="Halt"/>.</summary>
-    public const string ReadingCommandsHelp =
-        "Exit codes: 0 done; 2 bad input (missing or foreign store, unknown run or method, bad option); 3 internal error.";
+    public static readonly string ReadingCommandsHelp = Help(
+        (Fine, "done"),
+        (BadInput, "bad input (missing or foreign store, unknown run or method, bad option)"),
+        (InternalError, "internal error"));
 
     /// <summary>The full list, for the root command's help.</summary>
-    public const string AllHelp =
-        "Exit codes: 0 done; 1 the verdict is Halt (verdict-checking commands only); "
-        + "2 bad input (missing or foreign store, unknown run or method, bad option), nothing written; 3 internal error; "
-        + "4 merged, but shards or epochs are still missing (merge only).";
+    public static readonly string AllHelp = Help(
+        (Fine, "done"),
+        (Halt, "the verdict is Halt (verdict-checking commands only)"),
+        (BadInput, "bad input (missing or foreign store, unknown run or method, bad option), nothing written"),
+        (InternalError, "internal error"),
+        (Incomplete, "merged, but shards or epochs are still missing (merge only)"));
+
+    /// <summary>The help text's line of exit codes: <c>Exit codes: 0 done; 2 bad input; 3 internal error.</c></summary>
+    /// <param name="codes">Each code a command may return, in increasing order, with what it means for that command.</param>
+    public static string Help(params ReadOnlySpan<(int Code, string Meaning)> codes)
+    {
+        var entries = new List<string>(codes.Length);
+        foreach (var (code, meaning) in codes)
+            entries.Add(string.Create(System.Globalization.CultureInfo.InvariantCulture, $"{code} {meaning}"));
+        return "Exit codes: " + string.Join("; ", entries) + ".";
+    }
 }

@@ -26,8 +26,12 @@ internal static class FollowCommand
             + "print the gate's verdict per epoch. Stops when the loop marks the run finished, at the first Halt, or at once with --once. "
             + "Unlike the reading commands, follow creates and writes the store. It executes the TorchScript snapshots in the folder, and "
             + "nothing else it reads. A Halt is advice to a person, not proof.\n"
-            + "Exit codes: 0 the latest verdict is Continue or Caution; 1 Halt advised; 2 bad input (missing or malformed folder, schema, probe or "
-            + "metrics file, a missing epoch, a snapshot that fails to load or rejects the probe rows, a bad policy); nothing of that epoch is stored; 3 internal error.")
+            + ExitCodes.Help(
+                (ExitCodes.Fine, "the latest verdict is Continue or Caution"),
+                (ExitCodes.Halt, "Halt advised"),
+                (ExitCodes.BadInput, "bad input (missing or malformed folder, schema, probe or metrics file, a missing epoch, a snapshot that fails to load "
+                    + "or rejects the probe rows, a bad policy), nothing of that epoch is stored"),
+                (ExitCodes.InternalError, "internal error")))
         {
             folder,
             run,

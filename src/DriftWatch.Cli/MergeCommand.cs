@@ -31,8 +31,11 @@ internal static class MergeCommand
             + "Examples:\n"
             + "  driftwatch reattribute night-7 --store runs.litedb --method shapley-sampling --shard 0/4 --shard-folder shards   # … up to 3/4\n"
             + "  driftwatch merge shards/shard-*-of-4.litedb --into runs.litedb\n"
-            + "Exit codes: 0 merged, every epoch of the job is there; 2 bad input (a missing, foreign or non-shard store, shards of different runs, "
-            + "methods or splits, a target without that run), nothing written; 3 internal error; 4 merged what was given, but shards or epochs are still missing.")
+            + ExitCodes.Help(
+                (ExitCodes.Fine, "merged, every epoch of the job is there"),
+                (ExitCodes.BadInput, "bad input (a missing, foreign or non-shard store, shards of different runs, methods or splits, a target without that run), nothing written"),
+                (ExitCodes.InternalError, "internal error"),
+                (ExitCodes.Incomplete, "merged what was given, but shards or epochs are still missing")))
         {
             shards,
             into,
@@ -96,6 +99,6 @@ internal static class MergeCommand
         if (plan.Complete)
             output.WriteLine($"  complete: every epoch of the job ({Shard.Describe(job.JobEpochs)}) has its map; see them with: driftwatch show {run} --method {DisplayText.Clean(job.StoredName)} --store {DisplayText.Clean(target)}");
         else
-            output.WriteLine("  incomplete: the epochs above have no map yet (exit code 4)");
+            output.WriteLine($"  incomplete: the epochs above have no map yet (exit code {ExitCodes.Incomplete})");
     }
 }

@@ -48,7 +48,10 @@ internal static class PruneCommand
             + "Examples:\n"
             + "  driftwatch prune night-7 --layer _scorer.1 --epoch 6 --data validation.csv\n"
             + "  driftwatch prune night-7 --fraction 0.25 --seeds 10 --threshold 0.4 --json\n"
-            + "Exit codes: 0 done; 2 bad input (missing or foreign store, unknown run, layer or epoch, a model or snapshot that does not fit, a bad data file), nothing changed; 3 internal error.")
+            + ExitCodes.Help(
+                (ExitCodes.Fine, "done"),
+                (ExitCodes.BadInput, "bad input (missing or foreign store, unknown run, layer or epoch, a model or snapshot that does not fit, a bad data file), nothing changed"),
+                (ExitCodes.InternalError, "internal error")))
         {
             run,
             epoch,

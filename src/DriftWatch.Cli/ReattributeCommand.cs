@@ -70,7 +70,10 @@ internal static class ReattributeCommand
             + "With --shard K/N only a slice of the epochs is done and written to a shard store of its own, for many machines at once; 'merge' joins them. "
             + "The model is rebuilt with the factory the run recorded. Progress goes to stderr on a terminal. "
             + "Attributions describe the model, not causes in the data.\n"
-            + "Exit codes: 0 done; 2 bad input (missing or foreign store, unknown run or method, bad setting, a model or snapshot that does not fit), nothing changed; 3 internal error.")
+            + ExitCodes.Help(
+                (ExitCodes.Fine, "done"),
+                (ExitCodes.BadInput, "bad input (missing or foreign store, unknown run or method, bad setting, a model or snapshot that does not fit), nothing changed"),
+                (ExitCodes.InternalError, "internal error")))
         {
             run,
             method,

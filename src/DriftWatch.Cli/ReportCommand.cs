@@ -1,5 +1,6 @@
 using System.CommandLine;
 using DriftWatch.Charts;
+using DriftWatch.Charts.Report;
 
 namespace DriftWatch.Cli;
 

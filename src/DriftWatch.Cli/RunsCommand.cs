@@ -54,8 +54,8 @@ internal static class RunsCommand
                     Formats.Utc(run.CreatedUtc),
                     Formats.Integer(epochs.Count),
                     Formats.Integer(last.Epoch),
-                    Formats.Loss(last.Metrics.TryGetValue("train_loss", out double train) ? train : null),
-                    Formats.Loss(last.Metrics.TryGetValue("validation_loss", out double validation) ? validation : null),
+                    Formats.Loss(last.Metrics.TryGetValue(MetricKeys.TrainLoss, out double train) ? train : null),
+                    Formats.Loss(last.Metrics.TryGetValue(MetricKeys.ValidationLoss, out double validation) ? validation : null),
                     verdicts.Count == 0 ? "no verdict" : verdicts[^1].Kind,
                     Worst(verdicts));
             }
@@ -86,8 +86,8 @@ internal static class RunsCommand
                 ["description"] = run.Description,
                 ["epochs"] = epochs.Count,
                 ["lastEpoch"] = last?.Epoch,
-                ["trainLoss"] = Finite(last, "train_loss"),
-                ["validationLoss"] = Finite(last, "validation_loss"),
+                ["trainLoss"] = Finite(last, MetricKeys.TrainLoss),
+                ["validationLoss"] = Finite(last, MetricKeys.ValidationLoss),
                 ["lastVerdict"] = verdicts.Count == 0 ? null : verdicts[^1].Kind,
                 ["worstVerdict"] = worst.Verdict?.Kind,
                 ["worstVerdictEpoch"] = worst.Verdict?.Epoch,

@@ -1,5 +1,6 @@
 using System.Globalization;
 using DriftWatch.Charts;
+using DriftWatch.Charts.Report;
 using DriftWatch.Detection;
 using DriftWatch.Storage;
 

@@ -45,8 +45,8 @@ public sealed class RunTables
     /// <summary>The metric columns every epoch table has, in order.</summary>
     public static ImmutableArray<string> FixedMetrics { get; } =
     [
-        "train_loss",
-        "validation_loss",
+        MetricKeys.TrainLoss,
+        MetricKeys.ValidationLoss,
         "drift_score",
         "rank_agreement_with_best",
         "jensen_shannon_from_previous",
@@ -98,7 +98,7 @@ public sealed class RunTables
         var epochs = store.Epochs(run.Id);
         var verdicts = store.Verdicts(run.Id).ToDictionary(v => v.Epoch);
         var extra = epochs.SelectMany(e => e.Metrics.Keys)
-            .Where(k => k is not ("train_loss" or "validation_loss"))
+            .Where(k => k is not (MetricKeys.TrainLoss or MetricKeys.ValidationLoss))
             .Distinct(StringComparer.Ordinal)
             .Order(StringComparer.Ordinal)
             .ToList();
@@ -107,8 +107,8 @@ public sealed class RunTables
         {
             var s = statistics.GetValueOrDefault(e.Epoch);
             var values = ImmutableDictionary.CreateBuilder<string, double?>(StringComparer.Ordinal);
-            values["train_loss"] = Metric(e, "train_loss");
-            values["validation_loss"] = Metric(e, "validation_loss");
+            values[MetricKeys.TrainLoss] = Metric(e, MetricKeys.TrainLoss);
+            values[MetricKeys.ValidationLoss] = Metric(e, MetricKeys.ValidationLoss);
             values["drift_score"] = Finite(s?.Drift);
             values["rank_agreement_with_best"] = Finite(s?.RankAgreementWithBest);
             values["jensen_shannon_from_previous"] = Finite(s?.JensenShannonFromPrevious);

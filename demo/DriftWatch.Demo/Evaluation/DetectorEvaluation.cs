@@ -179,7 +179,7 @@ public static class DetectorEvaluation
                 throw new DriftWatchException($"run '{run.Name}' in {storePath} was not written by evaluate (expected a name like validation-leak-seed3-…); pass a store from evaluate --out");
             }
             var scenario = ScenarioBuilder.For(variant).WithSeed(seed).Build();
-            var losses = store.Epochs(run.Id).ToDictionary(e => e.Epoch, e => e.Metrics.GetValueOrDefault("validation_loss", double.NaN));
+            var losses = store.Epochs(run.Id).ToDictionary(e => e.Epoch, e => e.Metrics.GetValueOrDefault(MetricKeys.ValidationLoss, double.NaN));
             var judged = RunReview.Replay(store, run, policy)
                 .Select(a => (a.Statistics.Epoch, losses.GetValueOrDefault(a.Statistics.Epoch, double.NaN), a.Verdict))
                 .ToList();

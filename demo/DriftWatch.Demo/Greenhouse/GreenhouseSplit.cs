@@ -1,3 +1,5 @@
+using System.Collections.Immutable;
+using System.Runtime.InteropServices;
 using DriftWatch.Probing;
 
 namespace DriftWatch.Demo.Greenhouse;
@@ -9,9 +11,9 @@ public sealed class GreenhouseSplit
     {
         Name = name;
         Rows = rows;
-        RawDense = rawDense;
-        PassProbability = passProbability;
-        LabelFlipped = labelFlipped;
+        RawDense = ImmutableCollectionsMarshal.AsImmutableArray(rawDense);
+        PassProbability = ImmutableCollectionsMarshal.AsImmutableArray(passProbability);
+        LabelFlipped = ImmutableCollectionsMarshal.AsImmutableArray(labelFlipped);
     }
 
     /// <summary><c>training</c> or <c>validation</c>.</summary>
@@ -24,16 +26,16 @@ public sealed class GreenhouseSplit
     public int Count => Rows.Count;
 
     /// <summary>The recorded grade per row (1 pass, 0 fail), after any label flips.</summary>
-    public float[] Labels => Rows.Labels!;
+    public ImmutableArray<float> Labels => ImmutableCollectionsMarshal.AsImmutableArray(Rows.Labels!);
 
     /// <summary>Dense values in raw units (°C, %, h/day, ppm, L/m²/day, days, mV), row-major like <see cref="Rows"/>.</summary>
-    public float[] RawDense { get; }
+    public ImmutableArray<float> RawDense { get; }
 
     /// <summary>The grading rule's true probability of a pass per row, before label noise and flips.</summary>
-    public float[] PassProbability { get; }
+    public ImmutableArray<float> PassProbability { get; }
 
     /// <summary>Whether each row's recorded grade was flipped (noisy-labels scenario; training rows only).</summary>
-    public bool[] LabelFlipped { get; }
+    public ImmutableArray<bool> LabelFlipped { get; }
 
     /// <summary>Fraction of rows graded pass.</summary>
     public double PassRate => Labels.Average(l => (double)l);

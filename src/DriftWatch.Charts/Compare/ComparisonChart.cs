@@ -1,6 +1,6 @@
 using ScottPlot;
 
-namespace DriftWatch.Charts;
+namespace DriftWatch.Charts.Compare;
 
 /// <summary>
 /// Two runs on one picture: the held-out share of the top features at matching epochs (run A solid, run B dashed, one

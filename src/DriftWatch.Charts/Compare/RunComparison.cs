@@ -1,7 +1,8 @@
 using System.Collections.Immutable;
+using DriftWatch.Charts.Report;
 using DriftWatch.Detection;
 
-namespace DriftWatch.Charts;
+namespace DriftWatch.Charts.Compare;
 
 /// <summary>Two runs at one epoch both attributed: each common feature's held-out share in each, and how alike their rankings are.</summary>
 /// <param name="Epoch">The epoch.</param>

@@ -2,7 +2,7 @@ using System.Collections.Immutable;
 using DriftWatch.Detection;
 using DriftWatch.Storage;
 
-namespace DriftWatch.Charts;
+namespace DriftWatch.Charts.Report;
 
 /// <summary>How far to trust one method's map at one epoch: its rank agreement with the verdict's method and its quality figures.</summary>
 /// <param name="Epoch">The epoch.</param>

@@ -2,7 +2,7 @@ using System.Globalization;
 using System.Net;
 using System.Text;
 
-namespace DriftWatch.Charts;
+namespace DriftWatch.Charts.Report;
 
 /// <summary>Makes names from users' data safe in the report's HTML and Markdown, and formats its numbers.</summary>
 public static class ReportText

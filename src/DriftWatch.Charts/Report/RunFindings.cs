@@ -1,7 +1,7 @@
 using System.Collections.Immutable;
 using DriftWatch.Detection;
 
-namespace DriftWatch.Charts;
+namespace DriftWatch.Charts.Report;
 
 /// <summary>One finding across a run: a (kind, feature) pair with every epoch whose verdict raised it.</summary>
 /// <param name="Kind">What the finding is about.</param>

@@ -4,7 +4,7 @@ using System.Text;
 using DriftWatch.Detection;
 using DriftWatch.Storage;
 
-namespace DriftWatch.Charts;
+namespace DriftWatch.Charts.Report;
 
 /// <summary>What a report contains and where it goes.</summary>
 /// <remarks>Every setting is checked when it is set (<c>new</c> or <c>with</c>); a bad one throws at once.</remarks>

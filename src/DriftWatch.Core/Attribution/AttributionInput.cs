@@ -28,7 +28,7 @@ public sealed record AttributionInput(Func<Tensor, Tensor> Score, Tensor Inputs,
 
     /// <summary>Per feature-space column, the index of the feature group that owns it (a categorical's embedding columns share one); null when every column is its own group.</summary>
     /// <remarks>Perturbation methods (ablation, Shapley sampling) switch whole groups at once; gradient methods ignore it.</remarks>
-    public int[]? ColumnOwners { get; init; }
+    public IReadOnlyList<int>? ColumnOwners { get; init; }
 
     /// <summary>The hidden layer that layer methods (<see cref="ILayerMethod"/>) and neuron conductance attribute to; null for feature-space methods.</summary>
     public Model.WatchedLayer? Layer { get; init; }
@@ -73,11 +73,11 @@ public sealed record AttributionInput(Func<Tensor, Tensor> Score, Tensor Inputs,
     {
         if (ColumnOwners is null)
             return Enumerable.Range(0, Columns).Select(c => new[] { c }).ToArray();
-        if (ColumnOwners.Length != Columns)
-            throw new DriftWatchException($"column owners name {ColumnOwners.Length} columns but the feature space has {Columns}; pass the schema the model's encode step follows");
-        int groups = ColumnOwners.Length == 0 ? 0 : ColumnOwners.Max() + 1;
+        if (ColumnOwners.Count != Columns)
+            throw new DriftWatchException($"column owners name {ColumnOwners.Count} columns but the feature space has {Columns}; pass the schema the model's encode step follows");
+        int groups = ColumnOwners.Count == 0 ? 0 : ColumnOwners.Max() + 1;
         var columns = Enumerable.Range(0, groups).Select(_ => new List<int>()).ToArray();
-        for (int c = 0; c < ColumnOwners.Length; c++)
+        for (int c = 0; c < ColumnOwners.Count; c++)
         {
             if (ColumnOwners[c] < 0)
                 throw new DriftWatchException($"column {c} has owner {ColumnOwners[c]}; owners are feature indexes from 0");

@@ -51,7 +51,7 @@ public sealed record AttributionProblem(AttributionStep Step, string Where, int 
 /// <param name="Document">The stored form, under the method's own name.</param>
 /// <param name="Map">The map.</param>
 /// <param name="Figures">Its quality figures, when they were asked for and measured.</param>
-public sealed record EpochMap(MapDocument Document, AttributionMap Map, QualityFigures? Figures)
+internal sealed record EpochMap(MapDocument Document, AttributionMap Map, QualityFigures? Figures)
 {
     /// <summary>Its agreement with the epoch's other maps and its quality figures, when either exists; else null.</summary>
     public MapQualityDocument? Quality { get; init; }
@@ -61,7 +61,7 @@ public sealed record EpochMap(MapDocument Document, AttributionMap Map, QualityF
 /// <param name="Maps">The maps, in the order of the methods.</param>
 /// <param name="LayerMaps">The layer maps, watched layer by layer method.</param>
 /// <param name="Problems">The steps that failed, in the order they ran.</param>
-public sealed record EpochMaps(ImmutableArray<EpochMap> Maps, ImmutableArray<LayerMapDocument> LayerMaps, ImmutableArray<AttributionProblem> Problems);
+internal sealed record EpochMaps(ImmutableArray<EpochMap> Maps, ImmutableArray<LayerMapDocument> LayerMaps, ImmutableArray<AttributionProblem> Problems);
 
 /// <summary>
 /// Attributes a snapshot's probe set with the configured methods and returns the epoch's maps, quality figures and
@@ -74,7 +74,7 @@ public sealed record EpochMaps(ImmutableArray<EpochMap> Maps, ImmutableArray<Lay
 /// the watched layers, and compare the maps with each other. Unless <see cref="Strict"/> is on, a failing step becomes
 /// an <see cref="AttributionProblem"/>; a probe that does not fit the schema always throws.
 /// </remarks>
-public sealed class EpochAttribution
+internal sealed class EpochAttribution
 {
     /// <summary>The probe set whose rows are attributed.</summary>
     public required ProbeSet Probe { get; init; }

@@ -1,5 +1,6 @@
 using System.Collections.Immutable;
 using System.Globalization;
+using System.Runtime.InteropServices;
 using TorchSharp;
 using static TorchSharp.torch;
 
@@ -64,8 +65,8 @@ public sealed class IntegratedGradients : IAttributionMethod
         var x = input.Inputs.detach();
         var baseline = input.Baseline.detach();
         var difference = x - baseline; // a shared baseline [columns] broadcasts
-        var nodes = torch.tensor(_quadrature.Nodes, dtype: x.dtype);
-        var weights = torch.tensor(_quadrature.Weights, dtype: x.dtype);
+        var nodes = torch.tensor(ImmutableCollectionsMarshal.AsArray(_quadrature.Nodes)!, dtype: x.dtype);
+        var weights = torch.tensor(ImmutableCollectionsMarshal.AsArray(_quadrature.Weights)!, dtype: x.dtype);
 
         if (input.ChunkRows >= Steps)
         {

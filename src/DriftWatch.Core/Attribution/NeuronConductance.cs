@@ -1,5 +1,6 @@
 using System.Collections.Immutable;
 using System.Globalization;
+using System.Runtime.InteropServices;
 using TorchSharp;
 using static TorchSharp.torch;
 
@@ -59,8 +60,8 @@ public sealed class NeuronConductance : IAttributionMethod
         var x = input.Inputs.detach();
         var baseline = input.BaselineRows().detach();
         var difference = x - baseline;
-        var nodes = torch.tensor(_quadrature.Nodes, dtype: x.dtype);
-        var weights = torch.tensor(_quadrature.Weights, dtype: x.dtype);
+        var nodes = torch.tensor(ImmutableCollectionsMarshal.AsArray(_quadrature.Nodes)!, dtype: x.dtype);
+        var weights = torch.tensor(ImmutableCollectionsMarshal.AsArray(_quadrature.Weights)!, dtype: x.dtype);
         var integral = torch.zeros(rows, columns, dtype: x.dtype);
         long total = (long)rows * Steps;
         for (long start = 0; start < total; start += input.ChunkRows)

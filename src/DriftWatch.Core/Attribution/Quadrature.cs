@@ -1,3 +1,6 @@
+using System.Collections.Immutable;
+using System.Runtime.InteropServices;
+
 namespace DriftWatch.Attribution;
 
 /// <summary>How a path integral over α ∈ [0, 1] is approximated.</summary>
@@ -16,7 +19,7 @@ public enum QuadratureRule
 /// <summary>Nodes and weights of a rule on [0, 1]; the weights sum to 1.</summary>
 /// <param name="Nodes">Points α in [0, 1].</param>
 /// <param name="Weights">Weights, one per node.</param>
-public sealed record Quadrature(double[] Nodes, double[] Weights)
+public sealed record Quadrature(ImmutableArray<double> Nodes, ImmutableArray<double> Weights)
 {
     /// <summary>Builds the <paramref name="rule"/> with <paramref name="points"/> nodes.</summary>
     public static Quadrature Create(QuadratureRule rule, int points)
@@ -42,7 +45,7 @@ public sealed record Quadrature(double[] Nodes, double[] Weights)
             nodes[k] = (k + 0.5) / n;
             weights[k] = 1.0 / n;
         }
-        return new Quadrature(nodes, weights);
+        return new Quadrature(ImmutableCollectionsMarshal.AsImmutableArray(nodes), ImmutableCollectionsMarshal.AsImmutableArray(weights));
     }
 
     private static Quadrature Trapezoid(int n)
@@ -54,7 +57,7 @@ public sealed record Quadrature(double[] Nodes, double[] Weights)
             nodes[k] = (double)k / (n - 1);
             weights[k] = (k == 0 || k == n - 1 ? 0.5 : 1.0) / (n - 1);
         }
-        return new Quadrature(nodes, weights);
+        return new Quadrature(ImmutableCollectionsMarshal.AsImmutableArray(nodes), ImmutableCollectionsMarshal.AsImmutableArray(weights));
     }
 
     // Newton's iteration on the Legendre polynomial P_n from Chebyshev-like starting points, then mapped from
@@ -87,6 +90,6 @@ public sealed record Quadrature(double[] Nodes, double[] Weights)
             nodes[n - 1 - i] = (1 + z) / 2;
             weights[i] = weights[n - 1 - i] = w / 2;
         }
-        return new Quadrature(nodes, weights);
+        return new Quadrature(ImmutableCollectionsMarshal.AsImmutableArray(nodes), ImmutableCollectionsMarshal.AsImmutableArray(weights));
     }
 }

@@ -87,7 +87,7 @@ public sealed class DivergenceDetector
     // Prechelt's GL(t) = 100 (E_va(t) / E_opt(t) − 1), E_opt the lowest validation loss so far (Prechelt 1998).
     private (double Gl, bool NewBest) GeneralisationLoss(IReadOnlyDictionary<string, double> metrics)
     {
-        double validation = metrics.TryGetValue("validation_loss", out double v) ? v : double.NaN;
+        double validation = metrics.TryGetValue(MetricKeys.ValidationLoss, out double v) ? v : double.NaN;
         if (!double.IsFinite(validation))
             return (double.NaN, false);
         bool newBest = validation < _bestValidation;

@@ -30,7 +30,7 @@ public sealed class RunContext
         HeldOutCount = heldOutCount;
         TrainingCount = trainingCount;
         Labels = labels;
-        Categorical = categorical;
+        Categorical = [.. categorical];
         TrainingValueCounts = trainingValueCounts;
         int index = 0;
         CategoricalInput = schema.Features.Select(f => f.Kind == FeatureKind.Categorical ? index++ : -1).ToImmutableArray();
@@ -49,7 +49,7 @@ public sealed class RunContext
     public float[]? Labels { get; }
 
     /// <summary>Row-major categorical ids of every probe row.</summary>
-    public long[] Categorical { get; }
+    public ImmutableArray<long> Categorical { get; }
 
     /// <summary>Training rows per value, per categorical feature name.</summary>
     public IReadOnlyDictionary<string, IReadOnlyDictionary<long, int>> TrainingValueCounts { get; }

@@ -15,7 +15,7 @@ public static class RunReview
     }
 
     /// <summary>An attribution map read back from its stored document.</summary>
-    public static AttributionMap ToMap(MapDocument document)
+    internal static AttributionMap ToMap(MapDocument document)
     {
         ArgumentNullException.ThrowIfNull(document);
         return new AttributionMap(
@@ -27,7 +27,7 @@ public static class RunReview
     }
 
     /// <summary>What the detector reads for a stored epoch: metrics, the primary map and the monitor's recorded problems.</summary>
-    public static EpochEvidence Evidence(EpochDocument epoch, MapDocument? map)
+    internal static EpochEvidence Evidence(EpochDocument epoch, MapDocument? map)
     {
         ArgumentNullException.ThrowIfNull(epoch);
         var failures = epoch.Problems
@@ -58,7 +58,7 @@ public static class RunReview
     }
 
     /// <summary>The stored maps of the given methods, by epoch and then by method.</summary>
-    public static Dictionary<int, Dictionary<string, MapDocument>> MapsByEpoch(RunStore store, int runId, IReadOnlyList<string> methods)
+    internal static Dictionary<int, Dictionary<string, MapDocument>> MapsByEpoch(RunStore store, int runId, IReadOnlyList<string> methods)
     {
         ArgumentNullException.ThrowIfNull(store);
         ArgumentNullException.ThrowIfNull(methods);
@@ -76,7 +76,7 @@ public static class RunReview
     }
 
     /// <summary>Feeds one stored epoch, with its stored maps by method (or null), to a cross-method detector.</summary>
-    public static Assessment Observe(CrossMethodDetector detector, EpochDocument epoch, IReadOnlyDictionary<string, MapDocument>? maps)
+    internal static Assessment Observe(CrossMethodDetector detector, EpochDocument epoch, IReadOnlyDictionary<string, MapDocument>? maps)
     {
         ArgumentNullException.ThrowIfNull(detector);
         ArgumentNullException.ThrowIfNull(epoch);

@@ -7,7 +7,7 @@ namespace DriftWatch.Detection;
 public static class VerdictRecords
 {
     /// <summary>The stored form of a verdict.</summary>
-    public static VerdictDocument ToDocument(Verdict verdict, int runId)
+    internal static VerdictDocument ToDocument(Verdict verdict, int runId)
     {
         ArgumentNullException.ThrowIfNull(verdict);
         return new VerdictDocument
@@ -32,7 +32,7 @@ public static class VerdictRecords
     }
 
     /// <summary>A verdict read back from the store.</summary>
-    public static Verdict FromDocument(VerdictDocument document)
+    internal static Verdict FromDocument(VerdictDocument document)
     {
         ArgumentNullException.ThrowIfNull(document);
         var findings = document.Findings.Select(f => new Finding(

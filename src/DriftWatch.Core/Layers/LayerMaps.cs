@@ -18,7 +18,7 @@ public static class LayerMaps
 
     /// <summary>Runs <paramref name="method"/> on <paramref name="input"/> (whose <see cref="AttributionInput.Layer"/> is set) and returns the document to store.</summary>
     /// <exception cref="DriftWatchException">The method is not a layer method, or the input has no layer.</exception>
-    public static LayerMapDocument Attribute(IAttributionMethod method, AttributionInput input, float[] outputs, int runId, int epoch, string target)
+    internal static LayerMapDocument Attribute(IAttributionMethod method, AttributionInput input, float[] outputs, int runId, int epoch, string target)
     {
         ArgumentNullException.ThrowIfNull(method);
         ArgumentNullException.ThrowIfNull(input);

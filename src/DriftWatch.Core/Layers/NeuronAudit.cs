@@ -1,4 +1,6 @@
+using System.Collections.Immutable;
 using System.Globalization;
+using System.Runtime.InteropServices;
 using DriftWatch.Model;
 using DriftWatch.Storage;
 
@@ -93,7 +95,7 @@ public sealed class NeuronAudit
         Units = units;
         Rows = rows;
         Epochs = epochs;
-        ByEpoch = byEpoch;
+        ByEpoch = [.. byEpoch.Select(ImmutableCollectionsMarshal.AsImmutableArray)];
         Overall = overall;
         Changes = changes;
         Options = options;
@@ -116,7 +118,7 @@ public sealed class NeuronAudit
     public IReadOnlyList<int> Epochs { get; }
 
     /// <summary>Per audited epoch (same order as <see cref="Epochs"/>), every unit's figures.</summary>
-    public IReadOnlyList<UnitFigures[]> ByEpoch { get; }
+    public IReadOnlyList<ImmutableArray<UnitFigures>> ByEpoch { get; }
 
     /// <summary>Every unit's figures over the rows of all audited epochs pooled.</summary>
     public IReadOnlyList<UnitFigures> Overall { get; }
@@ -151,7 +153,7 @@ public sealed class NeuronAudit
     /// <param name="options">The thresholds.</param>
     /// <param name="rows">The probe rows to audit (indexes into each map), or null for all.</param>
     /// <exception cref="DriftWatchException">No maps, maps of several layers or widths, or a row index out of range.</exception>
-    public static NeuronAudit Run(IReadOnlyList<LayerMapDocument> maps, string target, NeuronAuditOptions options, IReadOnlyList<int>? rows = null)
+    internal static NeuronAudit Run(IReadOnlyList<LayerMapDocument> maps, string target, NeuronAuditOptions options, IReadOnlyList<int>? rows = null)
     {
         ArgumentNullException.ThrowIfNull(maps);
         ArgumentNullException.ThrowIfNull(target);

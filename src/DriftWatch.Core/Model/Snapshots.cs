@@ -1,3 +1,4 @@
+using System.Collections.Immutable;
 using System.Runtime.InteropServices;
 using TorchSharp;
 using static TorchSharp.torch;
@@ -8,7 +9,7 @@ namespace DriftWatch.Model;
 /// <param name="Name">The parameter or buffer name, e.g. <c>_scorer.0.weight</c>.</param>
 /// <param name="Type">The element type.</param>
 /// <param name="Shape">The shape.</param>
-public sealed record SnapshotEntry(string Name, ScalarType Type, long[] Shape)
+public sealed record SnapshotEntry(string Name, ScalarType Type, ImmutableArray<long> Shape)
 {
     /// <summary>The shape as text, e.g. <c>[64, 48]</c>.</summary>
     public string ShapeText => "[" + string.Join(", ", Shape) + "]";
@@ -51,7 +52,7 @@ public static class Snapshots
                 {
                     reader.ReadBytes(checked((int)bytes));
                 }
-                entries.Add(new SnapshotEntry(name, type, shape));
+                entries.Add(new SnapshotEntry(name, type, ImmutableCollectionsMarshal.AsImmutableArray(shape)));
             }
         }
         catch (EndOfStreamException e)
@@ -90,7 +91,7 @@ public static class Snapshots
         ArgumentNullException.ThrowIfNull(snapshot);
         var stored = ReadEntries(snapshot);
         var state = module.state_dict();
-        var expected = state.Select(kv => new SnapshotEntry(kv.Key, kv.Value.dtype, kv.Value.shape)).ToList();
+        var expected = state.Select(kv => new SnapshotEntry(kv.Key, kv.Value.dtype, ImmutableCollectionsMarshal.AsImmutableArray(kv.Value.shape))).ToList();
         var byName = stored.ToDictionary(e => e.Name, StringComparer.Ordinal);
         foreach (var wanted in expected)
         {

@@ -23,7 +23,7 @@ public sealed record IncompleteShard(string Path, Shard Shard, IReadOnlyList<int
 /// <param name="MissingShards">Shards of the split that no given store holds.</param>
 /// <param name="IncompleteShards">Given shard stores that lack some of their epochs.</param>
 /// <param name="NoSnapshot">Epochs without a weight snapshot, so no shard could compute them.</param>
-public sealed record MergePlan(
+internal sealed record MergePlan(
     ShardDocument Job,
     RunDocument TargetRun,
     IReadOnlyList<(MapDocument Map, MapQualityDocument? Quality)> Maps,
@@ -50,7 +50,7 @@ public static class ShardMerge
     /// <param name="shards">The shard stores, opened for reading.</param>
     /// <param name="target">The run's store, opened for reading.</param>
     /// <exception cref="DriftWatchException">A store that is not a shard store, shards of different jobs, or a target without the same run.</exception>
-    public static MergePlan Plan(IReadOnlyList<RunStore> shards, RunStore target)
+    internal static MergePlan Plan(IReadOnlyList<RunStore> shards, RunStore target)
     {
         ArgumentNullException.ThrowIfNull(shards);
         ArgumentNullException.ThrowIfNull(target);
@@ -129,7 +129,7 @@ public static class ShardMerge
     /// <summary>Adds the plan's maps to the target in one transaction; does not open anything when there is nothing to add.</summary>
     /// <param name="target">The run's store, opened for writing.</param>
     /// <param name="plan">The plan <see cref="Plan"/> made from the same stores.</param>
-    public static void Apply(RunStore target, MergePlan plan)
+    internal static void Apply(RunStore target, MergePlan plan)
     {
         ArgumentNullException.ThrowIfNull(target);
         ArgumentNullException.ThrowIfNull(plan);

@@ -5,7 +5,7 @@ namespace DriftWatch.Storage;
 #pragma warning disable CA2227 // LiteDB maps documents through settable collection properties.
 
 /// <summary>A stored document with a unique key; writing the same key again replaces it.</summary>
-public interface IKeyedDocument
+internal interface IKeyedDocument
 {
     /// <summary>Store-assigned id.</summary>
     int Id { get; set; }
@@ -134,7 +134,7 @@ public sealed record ImportanceDocument
 }
 
 /// <summary>One attribution map: rows × features for (run, epoch, method, target).</summary>
-public sealed record MapDocument : IKeyedDocument
+internal sealed record MapDocument : IKeyedDocument
 {
     /// <summary>Store-assigned id.</summary>
     [BsonId(autoId: true)]
@@ -205,7 +205,7 @@ public sealed record EpochDocument : IKeyedDocument
     /// <summary>The epoch.</summary>
     public int Epoch { get; set; }
 
-    /// <summary>Metrics the training loop reported (train_loss, validation_loss, others).</summary>
+    /// <summary>Metrics the training loop reported by stored key (<see cref="MetricKeys.TrainLoss"/>, <see cref="MetricKeys.ValidationLoss"/>, others).</summary>
     public Dictionary<string, double> Metrics { get; set; } = [];
 
     /// <summary>File-storage id of the weight snapshot, or null when snapshots are off or failed.</summary>
@@ -225,7 +225,7 @@ public sealed record EpochDocument : IKeyedDocument
 }
 
 /// <summary>One finding as stored.</summary>
-public sealed record FindingDocument
+internal sealed record FindingDocument
 {
     /// <summary>The finding kind.</summary>
     public string Kind { get; set; } = "";
@@ -256,7 +256,7 @@ public sealed record FindingDocument
 }
 
 /// <summary>The gate's verdict at an epoch, with the findings behind it.</summary>
-public sealed record VerdictDocument : IKeyedDocument
+internal sealed record VerdictDocument : IKeyedDocument
 {
     /// <summary>Store-assigned id.</summary>
     [BsonId(autoId: true)]
@@ -281,7 +281,7 @@ public sealed record VerdictDocument : IKeyedDocument
     public List<FindingDocument> Findings { get; set; } = [];
 }
 /// <summary>The detector's statistics of one epoch, stored so charts and reports need not recompute noise floors.</summary>
-public sealed record StatisticsDocument : IKeyedDocument
+internal sealed record StatisticsDocument : IKeyedDocument
 {
     /// <summary>Store-assigned id.</summary>
     [BsonId(autoId: true)]
@@ -301,7 +301,7 @@ public sealed record StatisticsDocument : IKeyedDocument
 }
 
 /// <summary>Spearman's rank correlation between this map's held-out importance and another method's at the same epoch.</summary>
-public sealed record AgreementDocument
+internal sealed record AgreementDocument
 {
     /// <summary>The other method's stored name.</summary>
     public string Method { get; set; } = "";
@@ -311,7 +311,7 @@ public sealed record AgreementDocument
 }
 
 /// <summary>Trust in one map: its agreement with the other methods at that epoch and its quality figures.</summary>
-public sealed record MapQualityDocument : IKeyedDocument
+internal sealed record MapQualityDocument : IKeyedDocument
 {
     /// <summary>Store-assigned id.</summary>
     [BsonId(autoId: true)]
@@ -438,7 +438,7 @@ public sealed record ShardDocument : IKeyedDocument
 #pragma warning restore CA2227
 
 /// <summary>One layer map: probe rows × units of a hidden layer for (run, epoch, layer, method, target).</summary>
-public sealed record LayerMapDocument : IKeyedDocument
+internal sealed record LayerMapDocument : IKeyedDocument
 {
     /// <summary>Store-assigned id.</summary>
     [BsonId(autoId: true)]

@@ -1,6 +1,8 @@
 using System.Buffers.Binary;
+using System.Collections.Frozen;
 using System.Collections.Immutable;
 using System.Text;
+using DriftWatch.Detection;
 using LiteDB;
 
 namespace DriftWatch.Storage;
@@ -25,8 +27,24 @@ public sealed class RunStore : IDisposable
     private const int PageSize = 8192;
     private const int LastPageOffset = 64;
 
+    // The document type of every collection the store keeps; the mapper maps these and every stored type nested in them.
+    // Declared before the mapper, since static fields are initialised in textual order.
+    private static readonly ImmutableArray<Type> CollectionTypes =
+    [
+        typeof(RunDocument),
+        typeof(EpochDocument),
+        typeof(MapDocument),
+        typeof(VerdictDocument),
+        typeof(StatisticsDocument),
+        typeof(MapQualityDocument),
+        typeof(ShardDocument),
+        typeof(LayerMapDocument),
+    ];
+
     // LiteDB's global mapper turns "" into null and trims strings; names from users' data must come back exactly as written.
-    private static readonly BsonMapper Mapper = CreateMapper();
+    private static readonly (BsonMapper Mapper, FrozenSet<Type> Types) Mapping = CreateMapper();
+
+    private static BsonMapper Mapper => Mapping.Mapper;
 
     private readonly LiteDatabase _database;
 
@@ -166,7 +184,7 @@ public sealed class RunStore : IDisposable
     }
 
     /// <summary>Writes a map, replacing any earlier map with the same key (a resumed epoch).</summary>
-    public void WriteMap(MapDocument map)
+    internal void WriteMap(MapDocument map)
     {
         ArgumentNullException.ThrowIfNull(map);
         Guard(() => Upsert(MapsCollection, map with { Key = MapKey(map.RunId, map.Epoch, map.Method, map.Target) }));
@@ -180,21 +198,21 @@ public sealed class RunStore : IDisposable
     }
 
     /// <summary>Writes a verdict, replacing an earlier one for the same epoch.</summary>
-    public void WriteVerdict(VerdictDocument verdict)
+    internal void WriteVerdict(VerdictDocument verdict)
     {
         ArgumentNullException.ThrowIfNull(verdict);
         Guard(() => Upsert(VerdictsCollection, verdict with { Key = EpochKey(verdict.RunId, verdict.Epoch) }));
     }
 
     /// <summary>Writes an epoch's detector statistics, replacing earlier ones for the same epoch.</summary>
-    public void WriteStatistics(StatisticsDocument statistics)
+    internal void WriteStatistics(StatisticsDocument statistics)
     {
         ArgumentNullException.ThrowIfNull(statistics);
         Guard(() => Upsert(StatisticsCollection, statistics with { Key = EpochKey(statistics.RunId, statistics.Epoch) }));
     }
 
     /// <summary>The detector statistics of a run's complete epochs, in epoch order.</summary>
-    public IReadOnlyList<StatisticsDocument> StatisticsOf(int runId)
+    internal IReadOnlyList<StatisticsDocument> StatisticsOf(int runId)
     {
         return Guard(() =>
         {
@@ -204,7 +222,7 @@ public sealed class RunStore : IDisposable
     }
 
     /// <summary>Writes (or replaces) one layer map, keyed by run, epoch, layer, method and target.</summary>
-    public void WriteLayerMap(LayerMapDocument map)
+    internal void WriteLayerMap(LayerMapDocument map)
     {
         ArgumentNullException.ThrowIfNull(map);
         Guard(() => Upsert(LayerMapsCollection, map with { Key = $"{map.RunId}/{map.Epoch:D6}/{map.Layer}/{map.Method}/{map.Target}" }));
@@ -212,7 +230,7 @@ public sealed class RunStore : IDisposable
 
     /// <summary>The layer maps of a run for one layer (and method, when given), of complete epochs only, in epoch order.</summary>
     /// <exception cref="StoreException">A map's arrays do not match its shape (a damaged store).</exception>
-    public IReadOnlyList<LayerMapDocument> LayerMaps(int runId, string layer, string? method = null)
+    internal IReadOnlyList<LayerMapDocument> LayerMaps(int runId, string layer, string? method = null)
     {
         ArgumentNullException.ThrowIfNull(layer);
         return Guard(() =>
@@ -232,14 +250,14 @@ public sealed class RunStore : IDisposable
             .OrderBy(m => m.Layer, StringComparer.Ordinal).ThenBy(m => m.Method, StringComparer.Ordinal).ToList());
 
     /// <summary>Writes a map's agreement and quality figures, replacing an earlier document for the same map key.</summary>
-    public void WriteQuality(MapQualityDocument quality)
+    internal void WriteQuality(MapQualityDocument quality)
     {
         ArgumentNullException.ThrowIfNull(quality);
         Guard(() => Upsert(QualityCollection, quality with { Key = MapKey(quality.RunId, quality.Epoch, quality.Method, quality.Target) }));
     }
 
     /// <summary>The agreement and quality documents of a run's complete epochs, in epoch order; optionally one method only.</summary>
-    public IReadOnlyList<MapQualityDocument> Quality(int runId, string? method = null)
+    internal IReadOnlyList<MapQualityDocument> Quality(int runId, string? method = null)
     {
         return Guard(() =>
         {
@@ -263,7 +281,7 @@ public sealed class RunStore : IDisposable
         Guard(() => _database.CollectionExists("shards") ? ShardsCollection.FindOne(KeyIs("shard")) : null);
 
     /// <summary>The stored map for (run, epoch, method, target), or null.</summary>
-    public MapDocument? FindMap(int runId, int epoch, string method, string target)
+    internal MapDocument? FindMap(int runId, int epoch, string method, string target)
     {
         ArgumentNullException.ThrowIfNull(method);
         ArgumentNullException.ThrowIfNull(target);
@@ -272,7 +290,7 @@ public sealed class RunStore : IDisposable
     }
 
     /// <summary>Every map stored for one epoch of a run (all methods and targets), complete or not.</summary>
-    public IReadOnlyList<MapDocument> MapsAt(int runId, int epoch) =>
+    internal IReadOnlyList<MapDocument> MapsAt(int runId, int epoch) =>
         Guard(() => MapsCollection.Find(m => m.RunId == runId && m.Epoch == epoch).OrderBy(m => m.Method, StringComparer.Ordinal).ToList());
 
     /// <summary>The distinct method names a run has maps under (configured and re-attributed), in ordinal order.</summary>
@@ -318,7 +336,7 @@ public sealed class RunStore : IDisposable
         Guard(() => EpochsCollection.Find(e => e.RunId == runId).Select(e => StoreChecks.Epoch(Path, e)).OrderBy(e => e.Epoch).ToList());
 
     /// <summary>The maps of a run's complete epochs, in epoch order; optionally one method only.</summary>
-    public IReadOnlyList<MapDocument> Maps(int runId, string? method = null)
+    internal IReadOnlyList<MapDocument> Maps(int runId, string? method = null)
     {
         var maps = new List<MapDocument>();
         VisitMaps(runId, method, maps.Add);
@@ -333,7 +351,7 @@ public sealed class RunStore : IDisposable
     /// are null; the per-half aggregates, settings and costs are kept. Each map is checked whole and then let go, so a
     /// run of 500 epochs × 200 features is read in a small fraction of the memory <see cref="Maps"/> needs.
     /// </remarks>
-    public IReadOnlyList<MapDocument> MapAggregates(int runId, string? method = null)
+    internal IReadOnlyList<MapDocument> MapAggregates(int runId, string? method = null)
     {
         var maps = new List<MapDocument>();
         VisitMaps(runId, method, m => maps.Add(m with { Scores = [], Deltas = null, OutputGaps = null }));
@@ -344,7 +362,7 @@ public sealed class RunStore : IDisposable
     /// Hands each checked map of a run's complete epochs to <paramref name="visit"/>, one at a time and in stored order,
     /// without holding them all; optionally one method only.
     /// </summary>
-    public void VisitMaps(int runId, string? method, Action<MapDocument> visit)
+    internal void VisitMaps(int runId, string? method, Action<MapDocument> visit)
     {
         ArgumentNullException.ThrowIfNull(visit);
         Guard(() =>
@@ -363,7 +381,7 @@ public sealed class RunStore : IDisposable
     }
 
     /// <summary>The verdicts of a run's complete epochs, in epoch order.</summary>
-    public IReadOnlyList<VerdictDocument> Verdicts(int runId)
+    internal IReadOnlyList<VerdictDocument> Verdicts(int runId)
     {
         return Guard(() =>
         {
@@ -371,6 +389,24 @@ public sealed class RunStore : IDisposable
             return VerdictsCollection.Find(v => v.RunId == runId).Where(v => complete.Contains(v.Epoch)).Select(v => StoreChecks.Verdict(Path, v)).OrderBy(v => v.Epoch).ToList();
         });
     }
+
+    /// <summary>The gate's verdicts of a run's complete epochs, with their findings, in epoch order.</summary>
+    /// <exception cref="StoreException">A stored verdict names a kind or severity this version does not know.</exception>
+    public IReadOnlyList<Verdict> StoredVerdicts(int runId) => Verdicts(runId).Select(v =>
+    {
+        try
+        {
+            return VerdictRecords.FromDocument(v);
+        }
+        catch (ArgumentException e)
+        {
+            throw new StoreException($"store '{Path}' holds a verdict at epoch {v.Epoch} of run {runId} that this version cannot read ({e.Message}); a severity is Continue, Caution or Halt and a kind is a name of letters and digits");
+        }
+    }).ToList();
+
+    /// <summary>The per-half importance of a run's maps at complete epochs, in epoch then method order; optionally one method only.</summary>
+    public IReadOnlyList<StoredImportance> Importance(int runId, string? method = null) =>
+        MapAggregates(runId, method).Select(StoredImportance.From).ToList();
 
     /// <inheritdoc />
     public void Dispose() => _database.Dispose();
@@ -423,7 +459,7 @@ public sealed class RunStore : IDisposable
     // LiteDB's BsonMapper registers a type before filling in its members, so two threads meeting a stored type for the
     // first time at once (two stores opened side by side) could see it half-built: "Member Name not found on BsonMapper".
     // Every stored type is mapped here, once, inside the type initialiser; afterwards the mapper is only read.
-    private static BsonMapper CreateMapper()
+    private static (BsonMapper Mapper, FrozenSet<Type> Types) CreateMapper()
     {
         var mapper = new BsonMapper { EmptyStringToNull = false, TrimWhitespace = false };
         // Frozen arrays are stored as the plain BSON arrays the mutable ones were, so documents read the same either way.
@@ -434,7 +470,7 @@ public sealed class RunStore : IDisposable
             values => new BsonArray(values.IsDefault ? [] : values.Select(v => new BsonValue(v))),
             bson => bson.IsArray ? [.. bson.AsArray.Select(v => v.AsBoolean)] : ImmutableArray<bool>.Empty);
         var seen = new HashSet<Type>();
-        var pending = new Stack<Type>([typeof(RunDocument), typeof(EpochDocument), typeof(MapDocument), typeof(VerdictDocument), typeof(StatisticsDocument), typeof(ShardDocument), typeof(LayerMapDocument)]);
+        var pending = new Stack<Type>(CollectionTypes);
         while (pending.TryPop(out var type))
         {
             if (!seen.Add(type))
@@ -446,8 +482,11 @@ public sealed class RunStore : IDisposable
                     pending.Push(nested);
             }
         }
-        return mapper;
+        return (mapper, seen.ToFrozenSet());
     }
+
+    /// <summary>Every type the store's mapper mapped up front: the collections' document types and the stored types nested in them.</summary>
+    internal static FrozenSet<Type> MappedTypes => Mapping.Types;
 
     private static IEnumerable<Type> StoredTypesIn(Type type)
     {

@@ -114,7 +114,7 @@ public sealed class ReattributionTests
         var entries = Snapshots.ReadEntries(snapshot);
 
         Assert.Equal(model.state_dict().Keys, entries.Select(e => e.Name));
-        Assert.Equal(model.state_dict().Values.Select(t => t.shape), entries.Select(e => e.Shape));
+        Assert.Equal(model.state_dict().Values.Select(t => t.shape), entries.Select(e => e.Shape.ToArray()));
         Assert.Equal(snapshot.Length, snapshot.Position);
         using var truncated = new MemoryStream(snapshot.ToArray()[..100]);
         Assert.Contains("truncated", Assert.Throws<DriftWatchException>(() => Snapshots.ReadEntries(truncated)).Message);

@@ -1,4 +1,5 @@
 using DriftWatch.Charts;
+using DriftWatch.Charts.Report;
 using Xunit;
 
 namespace DriftWatch.Tests.Charts;

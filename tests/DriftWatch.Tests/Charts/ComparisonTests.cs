@@ -1,4 +1,6 @@
 using DriftWatch.Charts;
+using DriftWatch.Charts.Compare;
+using DriftWatch.Charts.Report;
 using DriftWatch.Detection;
 using DriftWatch.Storage;
 using DriftWatch.Tests.Demo;

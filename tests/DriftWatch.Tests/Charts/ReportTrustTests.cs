@@ -1,5 +1,6 @@
 using AngleSharp.Html.Parser;
 using DriftWatch.Charts;
+using DriftWatch.Charts.Report;
 using DriftWatch.Storage;
 using DriftWatch.Tests.Support;
 using Markdig;

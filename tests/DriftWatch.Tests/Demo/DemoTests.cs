@@ -51,7 +51,7 @@ public sealed class DemoTests : IClassFixture<DemoStoreFixture>
         using var store = RunStore.OpenForReading(_fixture.StorePath);
         var run = store.GetRun(DemoStoreFixture.CleanRun);
         var epochs = store.Epochs(run.Id);
-        var gl = Statistics.GeneralisationLoss(epochs.Select(e => e.Metrics["validation_loss"]).ToArray());
+        var gl = Statistics.GeneralisationLoss(epochs.Select(e => e.Metrics[MetricKeys.ValidationLoss]).ToArray());
         int gl5 = Array.FindIndex(gl, g => g > 5);
         var verdicts = store.Verdicts(run.Id).Select(VerdictRecords.FromDocument).ToList();
 

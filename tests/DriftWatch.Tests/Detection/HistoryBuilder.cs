@@ -134,7 +134,7 @@ internal sealed class HistoryBuilder
             }
         }
         var map = new AttributionMap(Rows, features, scores, null, null);
-        var metrics = new Dictionary<string, double> { ["train_loss"] = 0.4, ["validation_loss"] = validationLoss };
+        var metrics = new Dictionary<string, double> { [MetricKeys.TrainLoss] = 0.4, [MetricKeys.ValidationLoss] = validationLoss };
         return new EpochEvidence(epoch, metrics, map, ImmutableArray<Finding>.Empty);
     }
 

@@ -74,8 +74,8 @@ public sealed class ExportTests : IClassFixture<DemoStoreFixture>
         for (int i = 0; i < documents.Count; i++)
         {
             Assert.Equal(documents[i].Epoch.ToString(CultureInfo.InvariantCulture), epochs[i]["epoch"]);
-            Assert.Equal(documents[i].Metrics["train_loss"], Parse(epochs[i]["train_loss"]));
-            Assert.Equal(documents[i].Metrics["validation_loss"], Parse(epochs[i]["validation_loss"]));
+            Assert.Equal(documents[i].Metrics[MetricKeys.TrainLoss], Parse(epochs[i][MetricKeys.TrainLoss]));
+            Assert.Equal(documents[i].Metrics[MetricKeys.ValidationLoss], Parse(epochs[i][MetricKeys.ValidationLoss]));
             Assert.Equal(verdicts[i].Kind, epochs[i]["verdict"]);
         }
     }
@@ -122,9 +122,9 @@ public sealed class ExportTests : IClassFixture<DemoStoreFixture>
         using var epochGroup = epochs.RowGroup(0);
         int rows = checked((int)epochGroup.MetaData.NumRows);
         Assert.Equal(tables.Epochs.Length, rows);
-        int trainLoss = Enumerable.Range(0, epochs.FileMetaData.NumColumns).Single(c => epochs.FileMetaData.Schema.Column(c).Name == "train_loss");
+        int trainLoss = Enumerable.Range(0, epochs.FileMetaData.NumColumns).Single(c => epochs.FileMetaData.Schema.Column(c).Name == MetricKeys.TrainLoss);
         var losses = epochGroup.Column(trainLoss).LogicalReader<double?>().ReadAll(rows);
-        Assert.Equal(tables.Epochs.Select(e => e.Values["train_loss"]), losses);
+        Assert.Equal(tables.Epochs.Select(e => e.Values[MetricKeys.TrainLoss]), losses);
         var verdicts = epochGroup.Column(2).LogicalReader<string?>().ReadAll(rows);
         Assert.Equal(tables.Epochs.Select(e => e.Verdict), verdicts);
     }

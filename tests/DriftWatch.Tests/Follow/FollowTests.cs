@@ -125,7 +125,7 @@ public sealed class FollowTests : IClassFixture<PythonRunFixture>
         Assert.Equal(4, reading.Verdicts(run.Id).Count);
         Assert.Matches(@"(?m)^epoch 4  (Continue|Caution|Halt)", output);
         // The metrics line's loss is the one the Python loop computed (metrics.jsonl, epoch 1).
-        double trainLoss = reading.Epochs(run.Id)[0].Metrics["train_loss"];
+        double trainLoss = reading.Epochs(run.Id)[0].Metrics[MetricKeys.TrainLoss];
         string firstLine = File.ReadLines(Path.Combine(_run.Folder, "metrics.jsonl")).First();
         Assert.Contains(trainLoss.ToString("R", CultureInfo.InvariantCulture), firstLine);
     }

@@ -193,7 +193,7 @@ public sealed class TrainingMonitorTests
         var verdict = monitor.EndEpoch(model, 0, new EpochMetrics(double.NaN, 0.7));
 
         Assert.Equal(2, verdict.Findings.Count(f => f.Kind == FindingKind.NumericalTrouble));
-        Assert.Contains(verdict.Reasons, r => r.Contains("train_loss", StringComparison.Ordinal));
+        Assert.Contains(verdict.Reasons, r => r.Contains(MetricKeys.TrainLoss, StringComparison.Ordinal));
         Assert.Contains(verdict.Reasons, r => r.Contains("not trusted", StringComparison.Ordinal));
     }
 

@@ -174,7 +174,7 @@ internal sealed class StoreBuilder
             {
                 RunId = run.Id,
                 Epoch = epoch,
-                Metrics = new() { ["train_loss"] = 1.0 / epoch, ["validation_loss"] = 0.6 + 0.02 * epoch * epoch / 4, ["accuracy"] = 0.5 + 0.04 * epoch },
+                Metrics = new() { [MetricKeys.TrainLoss] = 1.0 / epoch, [MetricKeys.ValidationLoss] = 0.6 + 0.02 * epoch * epoch / 4, ["accuracy"] = 0.5 + 0.04 * epoch },
                 RecordedUtc = new DateTime(2026, 1, 2, 4, 0, 0, DateTimeKind.Utc).AddMinutes(epoch),
             });
         }
