@@ -315,8 +315,8 @@ if (Runs("4") || Runs("5"))
                         Scores = FloatBytes.FromFloats(scores),
                         Deltas = FloatBytes.FromFloats(map.Deltas),
                         OutputGaps = FloatBytes.FromFloats(map.OutputGaps),
-                        HeldOut = new ImportanceDocument { MeanAbsolute = heldOut.MeanAbsolute, MeanSigned = heldOut.MeanSigned, Share = heldOut.Share, Alignment = heldOut.Alignment },
-                        Training = new ImportanceDocument { MeanAbsolute = training.MeanAbsolute, MeanSigned = training.MeanSigned, Share = training.Share, Alignment = training.Alignment },
+                        HeldOut = ImportanceDocuments.From(heldOut),
+                        Training = ImportanceDocuments.From(training),
                     });
                     store.WriteStatistics(new StatisticsDocument { RunId = run.Id, Epoch = e, Statistics = assessment.Statistics });
                     store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, run.Id));

@@ -1,3 +1,4 @@
+using System.Collections.Immutable;
 using DriftWatch.Probing;
 
 namespace DriftWatch.Attribution;
@@ -7,16 +8,16 @@ namespace DriftWatch.Attribution;
 public sealed record HalfImportance
 {
     /// <summary>Mean |score| per feature.</summary>
-    public required double[] MeanAbsolute { get; init; }
+    public required ImmutableArray<double> MeanAbsolute { get; init; }
 
     /// <summary>Mean signed score per feature.</summary>
-    public required double[] MeanSigned { get; init; }
+    public required ImmutableArray<double> MeanSigned { get; init; }
 
     /// <summary>Share of the half's total mean |score| per feature; sums to 1 unless every score is 0.</summary>
-    public required double[] Share { get; init; }
+    public required ImmutableArray<double> Share { get; init; }
 
     /// <summary>Label alignment per feature: mean(score × ±1 label) / mean |score|, in [−1, 1]; null without binary labels.</summary>
-    public double[]? Alignment { get; init; }
+    public ImmutableArray<double>? Alignment { get; init; }
 
     /// <summary>Aggregates the rows <paramref name="rows"/> of <paramref name="map"/>.</summary>
     /// <param name="map">The attribution map.</param>
@@ -53,7 +54,7 @@ public sealed record HalfImportance
         }
         var share = abs.Select(a => total > 0 ? a / total : 0).ToArray();
         double[]? alignment = aligned?.Select((a, j) => abs[j] > 0 ? a / n / abs[j] : 0).ToArray();
-        return new HalfImportance { MeanAbsolute = abs, MeanSigned = signed, Share = share, Alignment = alignment };
+        return new HalfImportance { MeanAbsolute = [.. abs], MeanSigned = [.. signed], Share = [.. share], Alignment = alignment is null ? null : [.. alignment] };
     }
 
     /// <summary>Aggregates both halves of a probe set.</summary>

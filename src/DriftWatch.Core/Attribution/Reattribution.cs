@@ -339,10 +339,10 @@ public static class ImportanceDocuments
         ArgumentNullException.ThrowIfNull(half);
         return new ImportanceDocument
         {
-            MeanAbsolute = half.MeanAbsolute,
-            MeanSigned = half.MeanSigned,
-            Share = half.Share,
-            Alignment = half.Alignment,
+            MeanAbsolute = [.. half.MeanAbsolute],
+            MeanSigned = [.. half.MeanSigned],
+            Share = [.. half.Share],
+            Alignment = half.Alignment is { } alignment ? [.. alignment] : null,
         };
     }
 }

@@ -112,9 +112,9 @@ public sealed class DivergenceDetector
         var gap = new double[features];
         for (int f = 0; f < features; f++)
             gap[f] = training.Share[f] - heldOut.Share[f];
-        double[] alignmentGap = heldOut.Alignment is null || training.Alignment is null
+        double[] alignmentGap = heldOut.Alignment is not { } heldOutAlignment || training.Alignment is not { } trainingAlignment
             ? []
-            : Enumerable.Range(0, features).Select(f => training.Alignment[f] - heldOut.Alignment[f]).ToArray();
+            : Enumerable.Range(0, features).Select(f => trainingAlignment[f] - heldOutAlignment[f]).ToArray();
 
         UpdateCusum(heldOut.Share, noise.ShareHeldOutWidth);
         double drift = double.NaN, jsd = double.NaN, jaccard = double.NaN;
@@ -130,14 +130,14 @@ public sealed class DivergenceDetector
         {
             Epoch = epoch,
             Trusted = true,
-            ShareHeldOut = [.. heldOut.Share],
-            ShareTraining = [.. training.Share],
+            ShareHeldOut = heldOut.Share,
+            ShareTraining = training.Share,
             ShareHeldOutWidth = [.. noise.ShareHeldOutWidth],
             ShareTrainingWidth = [.. noise.ShareTrainingWidth],
             ShareGap = [.. gap],
             ShareGapWidth = [.. noise.ShareGapWidth],
-            AlignmentHeldOut = heldOut.Alignment is null ? [] : [.. heldOut.Alignment],
-            AlignmentTraining = training.Alignment is null ? [] : [.. training.Alignment],
+            AlignmentHeldOut = heldOut.Alignment ?? [],
+            AlignmentTraining = training.Alignment ?? [],
             AlignmentGap = [.. alignmentGap],
             AlignmentGapWidth = [.. noise.AlignmentGapWidth],
             LeadWidthHeldOut = noise.DominanceWidthHeldOut,
@@ -151,7 +151,7 @@ public sealed class DivergenceDetector
         };
     }
 
-    private void UpdateCusum(double[] share, double[] width)
+    private void UpdateCusum(ImmutableArray<double> share, double[] width)
     {
         // Descriptive: the first attributed epoch after warm-up is the reference; one standard error ≈ W / 3.29
         // (a 90% normal interval spans ±1.645 σ).

@@ -181,11 +181,5 @@ internal sealed class StoreBuilder
         return run;
     }
 
-    private static ImportanceDocument Document(HalfImportance half) => new()
-    {
-        MeanAbsolute = half.MeanAbsolute,
-        MeanSigned = half.MeanSigned,
-        Share = half.Share,
-        Alignment = half.Alignment,
-    };
+    private static ImportanceDocument Document(HalfImportance half) => ImportanceDocuments.From(half);
 }

@@ -107,11 +107,5 @@ internal sealed class TwoMethodRun
         return run;
     }
 
-    private static ImportanceDocument Document(HalfImportance half) => new()
-    {
-        MeanAbsolute = half.MeanAbsolute,
-        MeanSigned = half.MeanSigned,
-        Share = half.Share,
-        Alignment = half.Alignment,
-    };
+    private static ImportanceDocument Document(HalfImportance half) => ImportanceDocuments.From(half);
 }
