@@ -249,7 +249,7 @@ public sealed class TrainingMonitor : IDisposable
     {
         var primary = attributed.Maps.FirstOrDefault(m => m.Document.Method == _options.Methods[0].Name);
         return _detector.Observe(
-            new EpochEvidence(epoch, values, primary?.Map, [.. failures]),
+            new EpochInput(epoch, values, primary?.Map, [.. failures]),
             attributed.Maps.ToDictionary(m => m.Document.Method, m => m.Map, StringComparer.Ordinal));
     }
 
@@ -272,7 +272,7 @@ public sealed class TrainingMonitor : IDisposable
                     _store.WriteLayerMap(layerMap);
                 string? snapshot = weights is null ? null : _store.SaveSnapshot(_run.Id, epoch, weights);
                 _store.WriteStatistics(new StatisticsDocument { RunId = _run.Id, Epoch = epoch, Statistics = assessment.Statistics });
-                _store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, _run.Id));
+                _store.WriteVerdict(VerdictDocuments.ToDocument(assessment.Verdict, _run.Id));
                 _store.WriteEpoch(new EpochDocument
                 {
                     RunId = _run.Id,

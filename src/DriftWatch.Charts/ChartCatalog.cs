@@ -24,7 +24,7 @@ public enum ChartKind
 
 /// <summary>What to draw beyond the kind: how many features, which feature, which heatmap value.</summary>
 /// <remarks>Every setting is checked when it is set (<c>new</c> or <c>with</c>), with the message the chart itself gives.</remarks>
-public sealed record ChartChoices
+public sealed record ChartOptions
 {
     private static readonly IntegerRange TopFeaturesRange =
         IntegerRange.Between(1, TrendChart.MaximumTopFeatures) with { Rule = $"draws between 1 and {TrendChart.MaximumTopFeatures} features" };
@@ -94,7 +94,7 @@ public static class ChartCatalog
 
     /// <summary>The chart of <paramref name="kind"/> with <paramref name="choices"/>; a feature detail chart gets the chosen or default feature.</summary>
     /// <exception cref="DriftWatchException">A choice is out of range, or a feature chart of a run with no attributed epoch and no feature named.</exception>
-    public static IChart Create(ChartKind kind, RunHistory history, ChartChoices choices)
+    public static IChart Create(ChartKind kind, RunHistory history, ChartOptions choices)
     {
         ArgumentNullException.ThrowIfNull(history);
         ArgumentNullException.ThrowIfNull(choices);
@@ -123,7 +123,7 @@ public static class ChartCatalog
     /// <param name="progress">Called with each chart's kind before it is rendered; may be null.</param>
     /// <exception cref="DriftWatchException">A choice is out of range or a file cannot be written.</exception>
     public static IReadOnlyList<(ChartKind Kind, string Path)> RenderAll(
-        RunStore store, RunHistory history, IReadOnlyList<ChartKind> kinds, ChartChoices choices, string folder, ChartSize size, Action<ChartKind>? progress = null)
+        RunStore store, RunHistory history, IReadOnlyList<ChartKind> kinds, ChartOptions choices, string folder, ChartSize size, Action<ChartKind>? progress = null)
     {
         ArgumentNullException.ThrowIfNull(store);
         ArgumentNullException.ThrowIfNull(history);

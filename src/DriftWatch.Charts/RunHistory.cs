@@ -82,7 +82,7 @@ public sealed class RunHistory
     {
         _run = run;
         PrimaryMethod = RunReview.PrimaryMethod(run);
-        MethodSettings = run.Methods.Select(m => new KeyValuePair<string, ImmutableSortedDictionary<string, string>>(
+        MethodSettingsReader = run.Methods.Select(m => new KeyValuePair<string, ImmutableSortedDictionary<string, string>>(
             m.Name, m.Settings.ToImmutableSortedDictionary(StringComparer.Ordinal))).ToImmutableArray();
         Policy = run.Policy;
         FeatureKinds = run.Features.Select(f => f.Kind).ToImmutableArray();
@@ -141,7 +141,7 @@ public sealed class RunHistory
     public string PrimaryMethod { get; }
 
     /// <summary>Every configured method with its settings, in configuration order.</summary>
-    public ImmutableArray<KeyValuePair<string, ImmutableSortedDictionary<string, string>>> MethodSettings { get; }
+    public ImmutableArray<KeyValuePair<string, ImmutableSortedDictionary<string, string>>> MethodSettingsReader { get; }
 
     /// <summary>The gate policy the monitor used, as stored JSON (empty when none was stored).</summary>
     public string Policy { get; }
@@ -325,7 +325,7 @@ public sealed class RunHistory
     {
         try
         {
-            return VerdictRecords.FromDocument(verdict).Findings;
+            return VerdictDocuments.FromDocument(verdict).Findings;
         }
         catch (ArgumentException e)
         {

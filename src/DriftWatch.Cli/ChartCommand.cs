@@ -69,7 +69,7 @@ internal static class ChartCommand
         command.SetAction(parse =>
         {
             var kinds = ChartCatalog.Parse(parse.GetValue(kind)!);
-            var choices = new ChartChoices
+            var choices = new ChartOptions
             {
                 TopFeatures = parse.GetValue(top),
                 DivergenceFeatures = parse.GetValue(columns),

@@ -49,7 +49,7 @@ internal static class CheckCommand
             {
                 document = runStore.GetRun(parse.GetValue(run)!);
                 verdicts = gate is null
-                    ? runStore.Verdicts(document.Id).Select(VerdictRecords.FromDocument).ToList()
+                    ? runStore.Verdicts(document.Id).Select(VerdictDocuments.FromDocument).ToList()
                     : RunReview.Replay(runStore, document, gate).Select(a => a.Verdict).ToList();
             }
 

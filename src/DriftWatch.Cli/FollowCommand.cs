@@ -120,7 +120,7 @@ internal static class FollowCommand
     private static Verdict? LatestVerdict(string storePath, int runId)
     {
         using var reading = RunStore.OpenForReading(storePath);
-        return reading.Verdicts(runId).Select(VerdictRecords.FromDocument).LastOrDefault();
+        return reading.Verdicts(runId).Select(VerdictDocuments.FromDocument).LastOrDefault();
     }
 
     private static int StoredLastEpoch(string storePath, string name)

@@ -105,7 +105,7 @@ internal static class ReattributeCommand
             RunDocument document;
             IAttributionMethod attribution;
             Type factory;
-            ReattributionRequest request;
+            ReattributionOptions request;
             IWatchedModel model;
             using (var reading = RunStore.OpenForReading(path))
             {
@@ -116,7 +116,7 @@ internal static class ReattributeCommand
                     merged[key] = value;
                 attribution = AttributionMethods.Create(methodName, merged);
                 factory = ModelFactories.Resolve(document.Name, document.ModelFactory, parse.GetValue(assembly));
-                request = new ReattributionRequest
+                request = new ReattributionOptions
                 {
                     Method = attribution,
                     StoredName = parse.GetValue(storedAs),
@@ -176,7 +176,7 @@ internal static class ReattributeCommand
             merged[key] = value;
         var attribution = AttributionMethods.Create(methodName, merged);
         var factory = ModelFactories.Resolve(document.Name, document.ModelFactory, assemblyPath);
-        var request = new ReattributionRequest
+        var request = new ReattributionOptions
         {
             Method = attribution,
             StoredName = storedAs,
@@ -194,7 +194,7 @@ internal static class ReattributeCommand
             if (File.Exists(shardPath))
             {
                 using var existing = RunStore.OpenForReading(shardPath);
-                Reattribution.CheckShardStore(existing, ShardRecords.For(document, request, shard, all, shard.Slice(all), reading.Path));
+                Reattribution.CheckShardStore(existing, ShardDocuments.For(document, request, shard, all, shard.Slice(all), reading.Path));
             }
             using var shardStore = RunStore.OpenForWriting(shardPath);
             results = Reattribution.RunShard(reading, document, model, request, shard, shardStore, terminal ? new TerminalProgress(error) : null);
@@ -219,7 +219,7 @@ internal static class ReattributeCommand
         return ExitCodes.Fine;
     }
 
-    private static void WriteSummary(TextWriter output, RunDocument run, ReattributionRequest request, IAttributionMethod method, Type factory, IReadOnlyList<ReattributedEpoch> results, string store)
+    private static void WriteSummary(TextWriter output, RunDocument run, ReattributionOptions request, IAttributionMethod method, Type factory, IReadOnlyList<ReattributedEpoch> results, string store)
     {
         int stored = results.Count(r => r.Outcome == ReattributionOutcome.Stored);
         string settings = method.Settings.Count == 0 ? "" : " (" + string.Join(", ", method.Settings.Select(s => s.Key + "=" + s.Value)) + ")";

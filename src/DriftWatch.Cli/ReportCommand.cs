@@ -43,7 +43,7 @@ internal static class ReportCommand
             {
                 Method = parse.GetValue(method)!,
                 Size = new ChartSize(parse.GetValue(width), parse.GetValue(height)),
-                Choices = new ChartChoices { Feature = parse.GetValue(feature) },
+                Choices = new ChartOptions { Feature = parse.GetValue(feature) },
             };
             string folder = CommonOptions.Folder(parse.GetValue(output)!);
             ReportFiles files;

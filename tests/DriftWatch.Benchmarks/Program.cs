@@ -299,7 +299,7 @@ if (Runs("4") || Runs("5"))
                 for (int i = 0; i < scores.Length; i++)
                     scores[i] = (float)(random.NextDouble() * 2 - 1) * (1 + i % features / 50f);
                 var map = new AttributionMap(rows, features, scores, new float[rows], new float[rows]);
-                var assessment = detector.Observe(new EpochEvidence(e, new Dictionary<string, double> { [MetricKeys.TrainLoss] = 1.0 / (e + 1), [MetricKeys.ValidationLoss] = 0.5 }, map, []));
+                var assessment = detector.Observe(new EpochInput(e, new Dictionary<string, double> { [MetricKeys.TrainLoss] = 1.0 / (e + 1), [MetricKeys.ValidationLoss] = 0.5 }, map, []));
                 var heldOut = HalfImportance.Compute(map, Enumerable.Range(0, rows / 2).ToArray(), labels);
                 var training = HalfImportance.Compute(map, Enumerable.Range(rows / 2, rows / 2).ToArray(), labels);
                 writeSeconds += Measure.Once(() => store.InOneTransaction(() =>
@@ -319,7 +319,7 @@ if (Runs("4") || Runs("5"))
                         Training = ImportanceDocuments.From(training),
                     });
                     store.WriteStatistics(new StatisticsDocument { RunId = run.Id, Epoch = e, Statistics = assessment.Statistics });
-                    store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, run.Id));
+                    store.WriteVerdict(VerdictDocuments.ToDocument(assessment.Verdict, run.Id));
                     store.WriteEpoch(new EpochDocument { RunId = run.Id, Epoch = e, Metrics = new() { [MetricKeys.TrainLoss] = 1.0 / (e + 1), [MetricKeys.ValidationLoss] = 0.5 } });
                 }));
             }
@@ -381,7 +381,7 @@ if (Runs("6"))
             for (int i = 0; i < scores.Length; i++)
                 scores[i] = (float)(random.NextDouble() * 2 - 1);
             var map = new AttributionMap(rows, features, (float[])scores.Clone(), null, null);
-            times[e] = Measure.Once(() => detector.Observe(new EpochEvidence(e, new Dictionary<string, double> { [MetricKeys.ValidationLoss] = 0.5 }, map, [])));
+            times[e] = Measure.Once(() => detector.Observe(new EpochInput(e, new Dictionary<string, double> { [MetricKeys.ValidationLoss] = 0.5 }, map, [])));
         }
         int window = Math.Max(5, epochs / 10);
         double early = Measure.Median(times.Skip(1).Take(window).ToArray());

@@ -24,7 +24,7 @@ public sealed class ExtensionPointTests
     {
         public string Name => "difference-from-baseline";
 
-        public ImmutableSortedDictionary<string, string> Settings { get; } = MethodSettings.Of(("scale", "1"));
+        public ImmutableSortedDictionary<string, string> Settings { get; } = MethodSettingsReader.Of(("scale", "1"));
 
         public ColumnAttribution Attribute(AttributionInput input)
         {
@@ -103,7 +103,7 @@ public sealed class ExtensionPointTests
             .Where(t => typeof(IChart).IsAssignableFrom(t) && t.IsClass && !t.IsAbstract)
             .ToHashSet();
         var history = DemoHistory();
-        var created = Enum.GetValues<ChartKind>().Select(k => ChartCatalog.Create(k, history, new ChartChoices()).GetType()).ToList();
+        var created = Enum.GetValues<ChartKind>().Select(k => ChartCatalog.Create(k, history, new ChartOptions()).GetType()).ToList();
 
         Assert.Equal(Enum.GetValues<ChartKind>(), ChartCatalog.All);
         // The neuron map is drawn from layer maps by the neurons command, not per run by the catalogue.

@@ -11,7 +11,7 @@ internal static class GreenhouseGenerator
     private const int CategoricalCount = 5;
     private const int Trays = 10;
 
-    public static GreenhouseScenario Generate(ScenarioSettings settings)
+    public static GreenhouseScenario Generate(ScenarioOptions settings)
     {
         var rule = GrowingRule.Create(settings.Seed, settings.CultivarScale);
         var training = Draw(settings, rule, training: true);
@@ -45,7 +45,7 @@ internal static class GreenhouseGenerator
             [.. deviations]);
     }
 
-    private static Drawn Draw(ScenarioSettings settings, GrowingRule rule, bool training)
+    private static Drawn Draw(ScenarioOptions settings, GrowingRule rule, bool training)
     {
         int rows = training ? settings.TrainingRows : settings.ValidationRows;
         int stream = training ? 10 : 20;
@@ -87,7 +87,7 @@ internal static class GreenhouseGenerator
         return drawn;
     }
 
-    private static ImmutableArray<FeatureTruth> Truth(ScenarioSettings settings)
+    private static ImmutableArray<FeatureTruth> Truth(ScenarioOptions settings)
     {
         var trayRole = settings.TrayLeak == TrayLeak.None ? FeatureRole.Noise : FeatureRole.Leaked;
         string trayHow = settings.TrayLeak switch

@@ -8,7 +8,7 @@ namespace DriftWatch.Demo.Greenhouse;
 public sealed class GreenhouseScenario
 {
     internal GreenhouseScenario(
-        ScenarioSettings settings,
+        ScenarioOptions settings,
         GreenhouseSplit training,
         GreenhouseSplit validation,
         ImmutableArray<FeatureTruth> features,
@@ -25,7 +25,7 @@ public sealed class GreenhouseScenario
     }
 
     /// <summary>The settings it was generated from.</summary>
-    public ScenarioSettings Settings { get; }
+    public ScenarioOptions Settings { get; }
 
     /// <summary>The training rows.</summary>
     public GreenhouseSplit Training { get; }

@@ -12,7 +12,7 @@ namespace DriftWatch.Demo.Greenhouse;
 /// </remarks>
 public sealed class ScenarioBuilder
 {
-    private ScenarioSettings _settings = new();
+    private ScenarioOptions _settings = new();
 
     /// <summary>A builder for one of the demo's ready-made variants.</summary>
     public static ScenarioBuilder For(GreenhouseVariant variant) => variant switch
@@ -28,7 +28,7 @@ public sealed class ScenarioBuilder
     };
 
     /// <summary>The settings so far.</summary>
-    public ScenarioSettings Settings => _settings;
+    public ScenarioOptions Settings => _settings;
 
     /// <summary>Sets the seed of every random draw.</summary>
     public ScenarioBuilder WithSeed(int seed) => Set(_settings with { Seed = seed });
@@ -66,7 +66,7 @@ public sealed class ScenarioBuilder
         return GreenhouseGenerator.Generate(_settings);
     }
 
-    private ScenarioBuilder Set(ScenarioSettings settings)
+    private ScenarioBuilder Set(ScenarioOptions settings)
     {
         _settings = settings;
         return this;

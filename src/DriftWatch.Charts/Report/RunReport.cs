@@ -30,7 +30,7 @@ public sealed record ReportOptions
 
     /// <summary>What the charts draw.</summary>
     /// <exception cref="DriftWatchException">Null.</exception>
-    public ChartChoices Choices { get; init => field = value ?? throw new DriftWatchException("report Choices is null; leave it out for the default choices"); } = new();
+    public ChartOptions Choices { get; init => field = value ?? throw new DriftWatchException("report Choices is null; leave it out for the default choices"); } = new();
 
     /// <summary>The charts' size. Default <see cref="ChartSize.Default"/>.</summary>
     /// <exception cref="DriftWatchException">A side outside <see cref="ChartSize.MinimumSide"/>..<see cref="ChartSize.MaximumSide"/> (e.g. <c>default</c>).</exception>
@@ -411,7 +411,7 @@ public static class RunReport
             ("features", $"{ReportText.Integer(history.FeatureNames.Length)}: {string.Join(", ", history.FeatureNames.Select((n, i) => $"{n} ({history.FeatureKinds.ElementAtOrDefault(i)?.ToLowerInvariant() ?? "?"})"))}"),
             ("target and baseline", $"{history.Target}, baseline {history.Baseline}"),
         };
-        foreach (var (method, settings) in history.MethodSettings)
+        foreach (var (method, settings) in history.MethodSettingsReader)
         {
             string text = settings.Count == 0 ? "(no settings)" : string.Join(", ", settings.Select(s => $"{s.Key} {s.Value}"));
             string role = method == history.PrimaryMethod ? "method (read by the detector)" : "method";

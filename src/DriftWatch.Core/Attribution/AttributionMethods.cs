@@ -37,7 +37,7 @@ public static class AttributionMethods
 
     private static IntegratedGradients IntegratedGradientsFromSettings(IReadOnlyDictionary<string, string> settings)
     {
-        var read = new MethodSettings("integrated-gradients", settings);
+        var read = new MethodSettingsReader("integrated-gradients", settings);
         var rule = read.Enum("quadrature", QuadratureRule.RiemannMidpoint);
         int steps = read.Int("steps", 64, 1, 4096);
         read.RejectUnknown();
@@ -47,7 +47,7 @@ public static class AttributionMethods
     private static AdaptiveIntegratedGradients AdaptiveIntegratedGradientsFromSettings(IReadOnlyDictionary<string, string> settings)
     {
         const string name = "integrated-gradients-adaptive";
-        var read = new MethodSettings(name, settings);
+        var read = new MethodSettingsReader(name, settings);
         int initial = read.Int("initial-steps", 16, 1, 4096);
         int maximum = read.Int("maximum-steps", 256, 1, 4096);
         double tolerance = read.Double("tolerance", 0.01, 0, 1);
@@ -59,7 +59,7 @@ public static class AttributionMethods
 
     private static IAttributionMethod NoSettings(string name, IReadOnlyDictionary<string, string> settings, IAttributionMethod method)
     {
-        new MethodSettings(name, settings).RejectUnknown();
+        new MethodSettingsReader(name, settings).RejectUnknown();
         return method;
     }
 }

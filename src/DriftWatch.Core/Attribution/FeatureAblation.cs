@@ -26,7 +26,7 @@ public sealed class FeatureAblation : IAttributionMethod
         if (featuresPerPass < 1 || featuresPerPass > MaximumFeaturesPerPass)
             throw new DriftWatchException($"features per pass must be between 1 and {MaximumFeaturesPerPass}; got {featuresPerPass}");
         FeaturesPerPass = featuresPerPass;
-        Settings = MethodSettings.Of(("features-per-pass", MethodSettings.Text(featuresPerPass)));
+        Settings = MethodSettingsReader.Of(("features-per-pass", MethodSettingsReader.Text(featuresPerPass)));
     }
 
     /// <summary>Features ablated per pass through the model.</summary>
@@ -41,7 +41,7 @@ public sealed class FeatureAblation : IAttributionMethod
     /// <summary>Rebuilds the method from stored settings (<c>features-per-pass</c>).</summary>
     public static FeatureAblation FromSettings(IReadOnlyDictionary<string, string> settings)
     {
-        var read = new MethodSettings("feature-ablation", settings);
+        var read = new MethodSettingsReader("feature-ablation", settings);
         int perPass = read.Int("features-per-pass", 16, 1, MaximumFeaturesPerPass);
         read.RejectUnknown();
         return new FeatureAblation(perPass);

@@ -49,11 +49,11 @@ public sealed record QualityOptions
         problems.ThrowIfAny();
     }
     /// <summary>The settings as stored with the figures (invariant culture).</summary>
-    public ImmutableSortedDictionary<string, string> ToSettings() => MethodSettings.Of(
-        ("sample-rows", MethodSettings.Text(SampleRows)),
-        ("infidelity-perturbations", MethodSettings.Text(InfidelityPerturbations)),
-        ("removal-probability", MethodSettings.Text(RemovalProbability)),
-        ("sensitivity-perturbations", MethodSettings.Text(SensitivityPerturbations)),
-        ("sensitivity-radius", MethodSettings.Text(SensitivityRadius)),
-        ("seed", MethodSettings.Text(Seed)));
+    public ImmutableSortedDictionary<string, string> ToSettings() => MethodSettingsReader.Of(
+        ("sample-rows", MethodSettingsReader.Text(SampleRows)),
+        ("infidelity-perturbations", MethodSettingsReader.Text(InfidelityPerturbations)),
+        ("removal-probability", MethodSettingsReader.Text(RemovalProbability)),
+        ("sensitivity-perturbations", MethodSettingsReader.Text(SensitivityPerturbations)),
+        ("sensitivity-radius", MethodSettingsReader.Text(SensitivityRadius)),
+        ("seed", MethodSettingsReader.Text(Seed)));
 }

@@ -35,7 +35,7 @@ public sealed record ReattributedEpoch(int Epoch, ReattributionOutcome Outcome, 
 }
 
 /// <summary>What to re-attribute: a method, the epochs, the name the maps are stored under.</summary>
-public sealed record ReattributionRequest
+public sealed record ReattributionOptions
 {
     /// <summary>The method to attribute with.</summary>
     public required IAttributionMethod Method { get; init; }
@@ -109,7 +109,7 @@ public static class Reattribution
     /// <param name="progress">Told after each epoch, or null.</param>
     /// <returns>One entry per epoch in the range.</returns>
     /// <exception cref="DriftWatchException">A bad request, a model or snapshot that does not fit, or no epoch in the range.</exception>
-    public static IReadOnlyList<ReattributedEpoch> Run(RunStore store, RunDocument run, IWatchedModel model, ReattributionRequest request, IProgress<ReattributedEpoch>? progress = null)
+    public static IReadOnlyList<ReattributedEpoch> Run(RunStore store, RunDocument run, IWatchedModel model, ReattributionOptions request, IProgress<ReattributedEpoch>? progress = null)
     {
         var epochs = Check(store, run, model, request);
         string label = AttributionTarget.Parse(run.Target).Label;
@@ -138,14 +138,14 @@ public static class Reattribution
     /// <returns>One entry per epoch of the shard (none when the shard's slice is empty).</returns>
     /// <exception cref="DriftWatchException">A bad request, or a shard store holding another shard or job.</exception>
     public static IReadOnlyList<ReattributedEpoch> RunShard(
-        RunStore source, RunDocument run, IWatchedModel model, ReattributionRequest request, Shard shard, RunStore shardStore, IProgress<ReattributedEpoch>? progress = null)
+        RunStore source, RunDocument run, IWatchedModel model, ReattributionOptions request, Shard shard, RunStore shardStore, IProgress<ReattributedEpoch>? progress = null)
     {
         ArgumentNullException.ThrowIfNull(shardStore);
         var all = Check(source, run, model, request);
         var slice = shard.Slice(all);
-        var record = ShardRecords.For(run, request, shard, all, slice, source.Path);
+        var record = ShardDocuments.For(run, request, shard, all, slice, source.Path);
         CheckShardStore(shardStore, record);
-        var copy = ShardRecords.Prepare(shardStore, record, run, slice);
+        var copy = ShardDocuments.Prepare(shardStore, record, run, slice);
         string name = request.Name;
         string label = AttributionTarget.Parse(run.Target).Label;
         var results = Execute(
@@ -179,7 +179,7 @@ public static class Reattribution
                 throw new DriftWatchException($"'{shardStore.Path}' is a store with runs of its own, not a shard store; give the shard a file of its own");
             return;
         }
-        string? difference = ShardRecords.Difference(existing, record);
+        string? difference = ShardDocuments.Difference(existing, record);
         if (difference is null && (existing.Index != record.Index || existing.Count != record.Count))
             difference = $"it is shard {existing.Index}/{existing.Count}, not {record.Index}/{record.Count}";
         if (difference is not null)
@@ -187,7 +187,7 @@ public static class Reattribution
     }
 
     private static IReadOnlyList<ReattributedEpoch> Execute(
-        RunStore source, RunDocument run, IWatchedModel model, ReattributionRequest request, IReadOnlyList<EpochDocument> epochs,
+        RunStore source, RunDocument run, IWatchedModel model, ReattributionOptions request, IReadOnlyList<EpochDocument> epochs,
         IProgress<ReattributedEpoch>? progress, Func<int, bool> alreadyStored, Action<MapDocument, MapQualityDocument> write)
     {
         var attribution = new EpochAttribution
@@ -235,7 +235,7 @@ public static class Reattribution
 
     /// <summary>Checks a request against the store without writing anything, and returns the epochs it covers.</summary>
     /// <exception cref="DriftWatchException">A bad name or range, a model whose schema differs from the run's, or a damaged run record.</exception>
-    public static IReadOnlyList<EpochDocument> Check(RunStore store, RunDocument run, IWatchedModel model, ReattributionRequest request)
+    public static IReadOnlyList<EpochDocument> Check(RunStore store, RunDocument run, IWatchedModel model, ReattributionOptions request)
     {
         ArgumentNullException.ThrowIfNull(store);
         ArgumentNullException.ThrowIfNull(run);
@@ -271,7 +271,7 @@ public static class Reattribution
         return epochs;
     }
 
-    private static void CheckName(RunStore store, RunDocument run, ReattributionRequest request, string name) =>
+    private static void CheckName(RunStore store, RunDocument run, ReattributionOptions request, string name) =>
         CheckStoredName(store, run, name, request.Method.Name, request.Method.Settings);
 
     /// <summary>
@@ -309,7 +309,7 @@ public static class Reattribution
     // at this epoch (originals and other re-attributions alike). A bad entry declaration is reported and the whole model
     // attributed, as the monitor does; any other failure ends the job, since it leaves no map to store.
     private static (MapDocument Map, MapQualityDocument Quality, ImmutableArray<string> Problems) AttributeEpoch(
-        RunStore store, RunDocument run, IWatchedModel model, EpochAttribution attribution, ReattributionRequest request, int epoch)
+        RunStore store, RunDocument run, IWatchedModel model, EpochAttribution attribution, ReattributionOptions request, int epoch)
     {
         var attributed = attribution.Attribute(model, run.Id, epoch);
         if (attributed.Problems.FirstOrDefault(p => p.Step != AttributionStep.EntryCheck) is { } fatal)
@@ -324,7 +324,7 @@ public static class Reattribution
         return (map, attribution.QualityDocument(map, fresh.Figures, agreement), [.. attributed.Problems.Select(p => p.Text)]);
     }
 
-    private static string Range(ReattributionRequest request) =>
+    private static string Range(ReattributionOptions request) =>
         (request.FirstEpoch == int.MinValue ? "" : request.FirstEpoch.ToString(System.Globalization.CultureInfo.InvariantCulture))
         + ".."
         + (request.LastEpoch == int.MaxValue ? "" : request.LastEpoch.ToString(System.Globalization.CultureInfo.InvariantCulture));

@@ -35,10 +35,10 @@ public sealed class ShapleySampling : IAttributionMethod
         Permutations = permutations;
         Antithetic = antithetic;
         Seed = seed;
-        Settings = MethodSettings.Of(
-            ("permutations", MethodSettings.Text(permutations)),
-            ("antithetic", MethodSettings.Text(antithetic)),
-            ("seed", MethodSettings.Text(seed)));
+        Settings = MethodSettingsReader.Of(
+            ("permutations", MethodSettingsReader.Text(permutations)),
+            ("antithetic", MethodSettingsReader.Text(antithetic)),
+            ("seed", MethodSettingsReader.Text(seed)));
     }
 
     /// <summary>Orderings sampled.</summary>
@@ -59,7 +59,7 @@ public sealed class ShapleySampling : IAttributionMethod
     /// <summary>Rebuilds the method from stored settings (<c>permutations</c>, <c>antithetic</c>, <c>seed</c>).</summary>
     public static ShapleySampling FromSettings(IReadOnlyDictionary<string, string> settings)
     {
-        var read = new MethodSettings("shapley-sampling", settings);
+        var read = new MethodSettingsReader("shapley-sampling", settings);
         int permutations = read.Int("permutations", 32, 1, MaximumPermutations);
         bool antithetic = read.Bool("antithetic", true);
         int seed = read.Int("seed", 0, int.MinValue, int.MaxValue);

@@ -47,10 +47,10 @@ public sealed class SmoothGrad : IAttributionMethod
         NoiseFraction = noiseFraction;
         Variant = variant;
         Seed = seed;
-        Settings = MethodSettings.Of(
-            ("samples", MethodSettings.Text(samples)),
-            ("noise", MethodSettings.Text(noiseFraction)),
-            ("seed", MethodSettings.Text(seed)));
+        Settings = MethodSettingsReader.Of(
+            ("samples", MethodSettingsReader.Text(samples)),
+            ("noise", MethodSettingsReader.Text(noiseFraction)),
+            ("seed", MethodSettingsReader.Text(seed)));
     }
 
     /// <summary>Noisy copies per row.</summary>
@@ -75,7 +75,7 @@ public sealed class SmoothGrad : IAttributionMethod
     public static SmoothGrad FromSettings(IReadOnlyDictionary<string, string> settings, SmoothGradVariant variant)
     {
         string name = variant == SmoothGradVariant.Gradient ? "smoothgrad" : "smoothgrad-x-input";
-        var read = new MethodSettings(name, settings);
+        var read = new MethodSettingsReader(name, settings);
         int samples = read.Int("samples", 50, 1, MaximumSamples);
         double noise = read.Double("noise", 0.15, 0, 10);
         int seed = read.Int("seed", 0, int.MinValue, int.MaxValue);

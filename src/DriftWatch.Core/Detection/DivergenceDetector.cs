@@ -49,18 +49,18 @@ public sealed class DivergenceDetector
     public IReadOnlyList<bool> IdentifierLike => _run.IdentifierLike;
 
     /// <summary>Reads the next epoch and returns its statistics and verdict.</summary>
-    public Assessment Observe(EpochEvidence evidence)
+    public Assessment Observe(EpochInput input)
     {
-        ArgumentNullException.ThrowIfNull(evidence);
-        var findings = new List<Finding>(evidence.Reported);
-        var (gl, newBest) = GeneralisationLoss(evidence.Metrics);
-        var view = new EpochView(_run, evidence.Epoch, evidence.Metrics, evidence.Map) { GeneralisationLoss = gl };
+        ArgumentNullException.ThrowIfNull(input);
+        var findings = new List<Finding>(input.Reported);
+        var (gl, newBest) = GeneralisationLoss(input.Metrics);
+        var view = new EpochView(_run, input.Epoch, input.Metrics, input.Map) { GeneralisationLoss = gl };
 
         Run(RuleStage.Health, view, findings);
         if (view.Trusted)
         {
-            view.Statistics = Measure(evidence.Epoch, view.Map!, gl);
-            if (evidence.Epoch >= _policy.WarmupEpochs)
+            view.Statistics = Measure(input.Epoch, view.Map!, gl);
+            if (input.Epoch >= _policy.WarmupEpochs)
                 Run(RuleStage.Attribution, view, findings);
             if (newBest || _bestShare is null)
             {
@@ -71,8 +71,8 @@ public sealed class DivergenceDetector
         view.BestShareGap = _bestGap;
         Run(RuleStage.Loss, view, findings);
 
-        var statistics = view.Trusted ? view.Statistics! : new EpochStatistics { Epoch = evidence.Epoch, Trusted = false, GeneralisationLoss = gl };
-        return new Assessment(statistics, Judge(evidence.Epoch, findings));
+        var statistics = view.Trusted ? view.Statistics! : new EpochStatistics { Epoch = input.Epoch, Trusted = false, GeneralisationLoss = gl };
+        return new Assessment(statistics, Judge(input.Epoch, findings));
     }
 
     private void Run(RuleStage stage, EpochView view, List<Finding> findings)

@@ -8,7 +8,7 @@ namespace DriftWatch.Detection;
 /// <param name="Metrics">Metrics by stored key (<c>train_loss</c>, <c>validation_loss</c>, …).</param>
 /// <param name="Map">The primary method's attribution map, or null when the epoch was not attributed.</param>
 /// <param name="Reported">Findings the monitor already raised for this epoch (failures, numerical trouble).</param>
-public sealed record EpochEvidence(int Epoch, IReadOnlyDictionary<string, double> Metrics, AttributionMap? Map, ImmutableArray<Finding> Reported);
+public sealed record EpochInput(int Epoch, IReadOnlyDictionary<string, double> Metrics, AttributionMap? Map, ImmutableArray<Finding> Reported);
 
 /// <summary>Per-feature and epoch-level statistics of one epoch, with their noise floors; arrays are indexed by feature.</summary>
 public sealed record EpochStatistics

@@ -65,12 +65,12 @@ public sealed class CrossMethodDetector
     /// <summary>The primary method's name.</summary>
     public string PrimaryMethod => _methods[0];
 
-    /// <summary>Reads the next epoch: <paramref name="evidence"/> carries the primary map; <paramref name="maps"/> holds every method's map (missing when not attributed).</summary>
-    public Assessment Observe(EpochEvidence evidence, IReadOnlyDictionary<string, AttributionMap> maps)
+    /// <summary>Reads the next epoch: <paramref name="input"/> carries the primary map; <paramref name="maps"/> holds every method's map (missing when not attributed).</summary>
+    public Assessment Observe(EpochInput input, IReadOnlyDictionary<string, AttributionMap> maps)
     {
-        ArgumentNullException.ThrowIfNull(evidence);
+        ArgumentNullException.ThrowIfNull(input);
         ArgumentNullException.ThrowIfNull(maps);
-        var primary = _detectors[0].Observe(evidence);
+        var primary = _detectors[0].Observe(input);
         if (_methods.Length == 1)
             return primary;
 
@@ -78,15 +78,15 @@ public sealed class CrossMethodDetector
         for (int i = 1; i < _methods.Length; i++)
         {
             var map = maps.GetValueOrDefault(_methods[i]);
-            var assessment = _detectors[i].Observe(new EpochEvidence(evidence.Epoch, evidence.Metrics, map, []));
-            double rho = map is null || evidence.Map is null ? double.NaN : MethodAgreement.Spearman(evidence.Map, map, _heldOutRows);
+            var assessment = _detectors[i].Observe(new EpochInput(input.Epoch, input.Metrics, map, []));
+            double rho = map is null || input.Map is null ? double.NaN : MethodAgreement.Spearman(input.Map, map, _heldOutRows);
             others.Add(new Other(_methods[i], map, assessment.Verdict.Findings, rho));
         }
-        if (evidence.Map is null && others.All(o => o.Map is null))
+        if (input.Map is null && others.All(o => o.Map is null))
             return primary;
 
-        var findings = primary.Verdict.Findings.Select(f => Annotate(f, others, evidence.Map is not null)).ToList();
-        findings.AddRange(SeenByOthersOnly(primary.Verdict.Findings, others, evidence.Map is not null));
+        var findings = primary.Verdict.Findings.Select(f => Annotate(f, others, input.Map is not null)).ToList();
+        findings.AddRange(SeenByOthersOnly(primary.Verdict.Findings, others, input.Map is not null));
         // Severity first, as the primary detector orders them; the sort is stable, so the primary's own order stays.
         var ordered = findings.OrderByDescending(f => f.Severity).ToImmutableArray();
         var kind = ordered.IsEmpty ? VerdictKind.Continue : ordered.Max(f => f.Severity);

@@ -27,13 +27,13 @@ public static class RunReview
     }
 
     /// <summary>What the detector reads for a stored epoch: metrics, the primary map and the monitor's recorded problems.</summary>
-    internal static EpochEvidence Evidence(EpochDocument epoch, MapDocument? map)
+    internal static EpochInput Input(EpochDocument epoch, MapDocument? map)
     {
         ArgumentNullException.ThrowIfNull(epoch);
         var failures = epoch.Problems
             .Select(p => Rules.MonitoringFailureRule.Failure(epoch.Epoch, p))
             .ToImmutableArray();
-        return new EpochEvidence(epoch.Epoch, epoch.Metrics, map is null ? null : ToMap(map), failures);
+        return new EpochInput(epoch.Epoch, epoch.Metrics, map is null ? null : ToMap(map), failures);
     }
 
     /// <summary>Replays every complete epoch of <paramref name="run"/> in order under <paramref name="policy"/>.</summary>
@@ -81,7 +81,7 @@ public static class RunReview
         ArgumentNullException.ThrowIfNull(detector);
         ArgumentNullException.ThrowIfNull(epoch);
         var read = maps?.ToDictionary(kv => kv.Key, kv => ToMap(kv.Value), StringComparer.Ordinal) ?? new Dictionary<string, AttributionMap>(StringComparer.Ordinal);
-        var evidence = Evidence(epoch, null) with { Map = read.GetValueOrDefault(detector.PrimaryMethod) };
-        return detector.Observe(evidence, read);
+        var input = Input(epoch, null) with { Map = read.GetValueOrDefault(detector.PrimaryMethod) };
+        return detector.Observe(input, read);
     }
 }

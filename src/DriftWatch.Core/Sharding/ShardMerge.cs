@@ -61,7 +61,7 @@ public static class ShardMerge
         {
             var record = store.FindShard()
                 ?? throw new DriftWatchException($"'{store.Path}' is not a shard store (it has no shard record); merge takes the files 'reattribute --shard K/N' writes");
-            if (records.Count > 0 && ShardRecords.Difference(records[0], record) is { } difference)
+            if (records.Count > 0 && ShardDocuments.Difference(records[0], record) is { } difference)
                 throw new DriftWatchException($"shard store '{store.Path}' does not belong with '{shards[0].Path}': {difference}; merge the shards of one re-attribution only");
             records.Add(record);
         }
@@ -70,7 +70,7 @@ public static class ShardMerge
             throw new DriftWatchException($"the target '{target.Path}' is itself a shard store; --into names the store the shards were cut from (the one reattribute read)");
         var run = target.FindRun(job.RunName)
             ?? throw new DriftWatchException($"the target store '{target.Path}' has no run named '{job.RunName}'; --into names the store the shards were cut from (the one reattribute read)");
-        if (ShardRecords.RunDifference(job, run) is { } runDifference)
+        if (ShardDocuments.RunDifference(job, run) is { } runDifference)
             throw new DriftWatchException($"the shards were cut from another run than the target's: {runDifference}; --into names the store the shards were cut from");
         var targetEpochs = target.Epochs(run.Id).Select(e => e.Epoch).ToHashSet();
         var absent = job.JobEpochs.Where(e => !targetEpochs.Contains(e)).ToList();

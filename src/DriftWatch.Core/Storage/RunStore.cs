@@ -396,7 +396,7 @@ public sealed class RunStore : IDisposable
     {
         try
         {
-            return VerdictRecords.FromDocument(v);
+            return VerdictDocuments.FromDocument(v);
         }
         catch (ArgumentException e)
         {

@@ -46,7 +46,7 @@ public sealed class EpochAttributionTests
 
         foreach (var method in methods)
         {
-            var results = Reattribution.Run(store, run, rebuilt, new ReattributionRequest { Method = method, Quality = quality });
+            var results = Reattribution.Run(store, run, rebuilt, new ReattributionOptions { Method = method, Quality = quality });
             Assert.All(results, r => Assert.Equal(ReattributionOutcome.Stored, r.Outcome));
             Assert.All(results, r => Assert.Empty(r.Problems));
             var monitored = store.Maps(run.Id, method.Name);

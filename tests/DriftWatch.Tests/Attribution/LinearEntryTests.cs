@@ -206,7 +206,7 @@ public sealed class LinearEntryTests
         using var store = DriftWatch.Storage.RunStore.OpenForWriting(path);
         var run = store.GetRun("skewed");
 
-        var result = Assert.Single(Reattribution.Run(store, run, rebuiltSkewed, new ReattributionRequest { Method = new IntegratedGradients(16) }));
+        var result = Assert.Single(Reattribution.Run(store, run, rebuiltSkewed, new ReattributionOptions { Method = new IntegratedGradients(16) }));
 
         Assert.Equal(ReattributionOutcome.Stored, result.Outcome);
         var problem = Assert.Single(result.Problems);

@@ -41,7 +41,7 @@ public sealed class ReattributionTests
         using var model = (GreenhouseNet)ModelRecipe.Build(typeof(GreenhouseNetFactory), run.ModelSettings);
         var seen = new List<ReattributedEpoch>();
 
-        var results = Reattribution.Run(store, run, model, new ReattributionRequest { Method = method }, new Progress(seen));
+        var results = Reattribution.Run(store, run, model, new ReattributionOptions { Method = method }, new Progress(seen));
 
         Assert.All(results, r => Assert.Equal(ReattributionOutcome.Stored, r.Outcome));
         Assert.Equal(results, seen);
@@ -62,7 +62,7 @@ public sealed class ReattributionTests
         Assert.Equal(originals.Count, after.Count);
         Assert.All(after, m => Assert.True(originals[m.Epoch].Id == m.Id && originals[m.Epoch].Scores.SequenceEqual(m.Scores), $"epoch {m.Epoch}'s original map changed"));
 
-        var twice = Reattribution.Run(store, run, model, new ReattributionRequest { Method = method });
+        var twice = Reattribution.Run(store, run, model, new ReattributionOptions { Method = method });
         Assert.All(twice, r => Assert.Equal(ReattributionOutcome.AlreadyStored, r.Outcome));
     }
 
@@ -78,7 +78,7 @@ public sealed class ReattributionTests
         int before = store.Maps(run.Id).Count;
 
         var error = Assert.Throws<DriftWatchException>(() =>
-            Reattribution.Run(store, run, model, new ReattributionRequest { Method = new GradientTimesInput(), FirstEpoch = 2, LastEpoch = 3 }));
+            Reattribution.Run(store, run, model, new ReattributionOptions { Method = new GradientTimesInput(), FirstEpoch = 2, LastEpoch = 3 }));
 
         Assert.Contains("the snapshot of epoch 2 of run 'leak-test' does not fit the rebuilt model: parameter '_scorer.0.weight' is Float32 [64, 48] in the snapshot but Float32 [32, 48] in the model", error.Message);
         Assert.Equal(before, store.Maps(run.Id).Count);
@@ -93,10 +93,10 @@ public sealed class ReattributionTests
         var run = store.GetRun(DemoStoreFixture.CleanRun);
         using var model = (GreenhouseNet)ModelRecipe.Build(typeof(GreenhouseNetFactory), run.ModelSettings);
 
-        var own = Assert.Throws<DriftWatchException>(() => Reattribution.Check(store, run, model, new ReattributionRequest { Method = new Saliency(), StoredName = "integrated-gradients" }));
-        var range = Assert.Throws<DriftWatchException>(() => Reattribution.Check(store, run, model, new ReattributionRequest { Method = new Saliency(), FirstEpoch = 40, LastEpoch = 50 }));
-        Reattribution.Run(store, run, model, new ReattributionRequest { Method = new SmoothGrad(samples: 2), StoredName = "smooth", FirstEpoch = 1, LastEpoch = 1 });
-        var mixed = Assert.Throws<DriftWatchException>(() => Reattribution.Check(store, run, model, new ReattributionRequest { Method = new SmoothGrad(samples: 3), StoredName = "smooth" }));
+        var own = Assert.Throws<DriftWatchException>(() => Reattribution.Check(store, run, model, new ReattributionOptions { Method = new Saliency(), StoredName = "integrated-gradients" }));
+        var range = Assert.Throws<DriftWatchException>(() => Reattribution.Check(store, run, model, new ReattributionOptions { Method = new Saliency(), FirstEpoch = 40, LastEpoch = 50 }));
+        Reattribution.Run(store, run, model, new ReattributionOptions { Method = new SmoothGrad(samples: 2), StoredName = "smooth", FirstEpoch = 1, LastEpoch = 1 });
+        var mixed = Assert.Throws<DriftWatchException>(() => Reattribution.Check(store, run, model, new ReattributionOptions { Method = new SmoothGrad(samples: 3), StoredName = "smooth" }));
 
         Assert.Contains("is one of run 'clean-test''s own methods", own.Message);
         Assert.Contains("has no complete epoch in 40..50; its epochs run from 1 to", range.Message);

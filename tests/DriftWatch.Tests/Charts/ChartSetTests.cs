@@ -23,7 +23,7 @@ public sealed class ChartSetTests : IClassFixture<DemoStoreFixture>
         using (var store = RunStore.OpenForReading(_fixture.StorePath))
         {
             var history = RunHistory.Load(store, run);
-            written = ChartCatalog.RenderAll(store, history, ChartCatalog.All, new ChartChoices(), folder, new ChartSize(width, height));
+            written = ChartCatalog.RenderAll(store, history, ChartCatalog.All, new ChartOptions(), folder, new ChartSize(width, height));
         }
 
         Assert.Equal(ChartCatalog.All, written.Select(w => w.Kind));
@@ -162,7 +162,7 @@ public sealed class ChartSetTests : IClassFixture<DemoStoreFixture>
         using var store = RunStore.OpenForReading(storePath);
         var history = RunHistory.Load(store, "built-run");
 
-        var written = ChartCatalog.RenderAll(store, history, ChartCatalog.All, new ChartChoices(), folder.Path, ChartSize.Default);
+        var written = ChartCatalog.RenderAll(store, history, ChartCatalog.All, new ChartOptions(), folder.Path, ChartSize.Default);
         foreach (var (_, path) in written)
             PngAssert.IsChart(path, 1200, 700);
     }

@@ -36,7 +36,7 @@ public sealed class DemoTests : IClassFixture<DemoStoreFixture>
     {
         using var store = RunStore.OpenForReading(_fixture.StorePath);
         var run = store.GetRun(DemoStoreFixture.LeakRun);
-        var verdicts = store.Verdicts(run.Id).Select(VerdictRecords.FromDocument).ToList();
+        var verdicts = store.Verdicts(run.Id).Select(VerdictDocuments.FromDocument).ToList();
 
         var halt = verdicts.First(v => v.IsHalt);
         Assert.Contains(halt.Findings, f => f.Kind == FindingKind.Leak && f.Feature == GreenhouseFeatures.InspectionTray);
@@ -53,7 +53,7 @@ public sealed class DemoTests : IClassFixture<DemoStoreFixture>
         var epochs = store.Epochs(run.Id);
         var gl = Statistics.GeneralisationLoss(epochs.Select(e => e.Metrics[MetricKeys.ValidationLoss]).ToArray());
         int gl5 = Array.FindIndex(gl, g => g > 5);
-        var verdicts = store.Verdicts(run.Id).Select(VerdictRecords.FromDocument).ToList();
+        var verdicts = store.Verdicts(run.Id).Select(VerdictDocuments.FromDocument).ToList();
 
         int firstHalt = verdicts.FindIndex(v => v.IsHalt);
         Assert.True(firstHalt < 0 || (gl5 >= 0 && firstHalt >= gl5), $"first Halt at index {firstHalt}, GL5 at {gl5}");

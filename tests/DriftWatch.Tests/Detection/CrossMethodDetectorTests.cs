@@ -6,7 +6,7 @@ namespace DriftWatch.Tests.Detection;
 
 public sealed class CrossMethodDetectorTests
 {
-    private static Dictionary<string, AttributionMap> Maps(params (string Method, EpochEvidence Evidence)[] maps) =>
+    private static Dictionary<string, AttributionMap> Maps(params (string Method, EpochInput Evidence)[] maps) =>
         maps.ToDictionary(m => m.Method, m => m.Evidence.Map!);
 
     [Fact]
@@ -88,7 +88,7 @@ public sealed class CrossMethodDetectorTests
         Assert.Equal(last.Reasons, last.Findings.Select(f => f.Evidence));
 
         // Stored and read back, the mark and the agreement survive.
-        var back = VerdictRecords.FromDocument(VerdictRecords.ToDocument(last, 1));
+        var back = VerdictDocuments.FromDocument(VerdictDocuments.ToDocument(last, 1));
         Assert.Equal(new[] { "smoothgrad" }, Assert.Single(back.Findings).SeenOnlyBy.ToArray());
         Assert.Equal(rho, back.Findings[0].Agreement, 12);
     }

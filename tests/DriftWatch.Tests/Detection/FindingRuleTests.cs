@@ -107,7 +107,7 @@ public sealed class FindingRuleTests
         Assert.Equal(0, showCode);
         Assert.Equal(string.Empty, showError);
         using var reader = RunStore.OpenForReading(store);
-        var verdict = VerdictRecords.FromDocument(reader.Verdicts(reader.Runs().Single().Id).Last());
+        var verdict = VerdictDocuments.FromDocument(reader.Verdicts(reader.Runs().Single().Id).Last());
         Assert.Contains(verdict.Findings, f => f.Kind.Name == "SaltedHash" && !f.Kind.IsKnown);
     }
 

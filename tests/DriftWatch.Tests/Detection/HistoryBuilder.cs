@@ -101,7 +101,7 @@ internal sealed class HistoryBuilder
         return new RunContext(Schema, _perHalf, _perHalf, Labels, Categorical, counts);
     }
 
-    public EpochEvidence Epoch(int epoch, double validationLoss = 0.5)
+    public EpochInput Epoch(int epoch, double validationLoss = 0.5)
     {
         var random = new Random(_seed * 7919 + epoch);
         var labels = Labels;
@@ -135,7 +135,7 @@ internal sealed class HistoryBuilder
         }
         var map = new AttributionMap(Rows, features, scores, null, null);
         var metrics = new Dictionary<string, double> { [MetricKeys.TrainLoss] = 0.4, [MetricKeys.ValidationLoss] = validationLoss };
-        return new EpochEvidence(epoch, metrics, map, ImmutableArray<Finding>.Empty);
+        return new EpochInput(epoch, metrics, map, ImmutableArray<Finding>.Empty);
     }
 
     public List<Assessment> Run(int epochs, GatePolicy? policy = null, Func<int, double>? validation = null)

@@ -95,7 +95,7 @@ internal sealed class TwoMethodRun
                 });
             }
             store.WriteStatistics(new StatisticsDocument { RunId = run.Id, Epoch = epoch, Statistics = assessment.Statistics });
-            store.WriteVerdict(VerdictRecords.ToDocument(assessment.Verdict, run.Id));
+            store.WriteVerdict(VerdictDocuments.ToDocument(assessment.Verdict, run.Id));
             store.WriteEpoch(new EpochDocument
             {
                 RunId = run.Id,

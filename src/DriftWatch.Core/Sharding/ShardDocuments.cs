@@ -4,13 +4,13 @@ using DriftWatch.Storage;
 namespace DriftWatch.Sharding;
 
 /// <summary>Builds, compares and prepares the shard record a re-attribution shard writes into its own store.</summary>
-public static class ShardRecords
+public static class ShardDocuments
 {
     /// <summary>The job name of a re-attribution shard.</summary>
     public const string ReattributeJob = "reattribute";
 
     /// <summary>The shard record of <paramref name="shard"/> of a re-attribution of <paramref name="run"/>.</summary>
-    public static ShardDocument For(RunDocument run, ReattributionRequest request, Shard shard, IReadOnlyList<EpochDocument> jobEpochs, IReadOnlyList<EpochDocument> epochs, string sourceStore)
+    public static ShardDocument For(RunDocument run, ReattributionOptions request, Shard shard, IReadOnlyList<EpochDocument> jobEpochs, IReadOnlyList<EpochDocument> epochs, string sourceStore)
     {
         ArgumentNullException.ThrowIfNull(run);
         ArgumentNullException.ThrowIfNull(request);

@@ -14,7 +14,7 @@ public enum TrayLeak
 }
 
 /// <summary>The frozen settings a <see cref="ScenarioBuilder"/> generates from.</summary>
-public sealed record ScenarioSettings
+public sealed record ScenarioOptions
 {
     /// <summary>Seed of every random draw. Default 1.</summary>
     public int Seed { get; init; } = 1;

@@ -4,13 +4,13 @@ using System.Globalization;
 namespace DriftWatch.Attribution;
 
 /// <summary>Reads a method's stored settings back, naming the method, the key, the value and what would be valid.</summary>
-internal sealed class MethodSettings
+internal sealed class MethodSettingsReader
 {
     private readonly string _method;
     private readonly IReadOnlyDictionary<string, string> _settings;
     private readonly HashSet<string> _read = new(StringComparer.Ordinal);
 
-    public MethodSettings(string method, IReadOnlyDictionary<string, string> settings)
+    public MethodSettingsReader(string method, IReadOnlyDictionary<string, string> settings)
     {
         ArgumentNullException.ThrowIfNull(settings);
         _method = method;

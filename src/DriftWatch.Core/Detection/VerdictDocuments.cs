@@ -4,7 +4,7 @@ using DriftWatch.Storage;
 namespace DriftWatch.Detection;
 
 /// <summary>Converts verdicts and findings to and from their stored documents.</summary>
-public static class VerdictRecords
+public static class VerdictDocuments
 {
     /// <summary>The stored form of a verdict.</summary>
     internal static VerdictDocument ToDocument(Verdict verdict, int runId)
