@@ -51,7 +51,7 @@ internal static class ShowCommand
                 quality = runStore.Quality(document.Id, history.Method);
                 maps = runStore.MapAggregates(document.Id);
                 reattributed = runStore.MapMethods(document.Id).Where(m => !history.Methods.Contains(m)).ToList();
-                trust = RunTrust.Load(runStore, document);
+                trust = RunTrust.Load(runStore, history.RunName);
             }
             if (parse.GetValue(json))
             {

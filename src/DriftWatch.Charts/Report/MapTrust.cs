@@ -53,8 +53,15 @@ public static class RunTrust
 {
     /// <summary>Every stored trust document of the run's complete epochs, in epoch order, then the run's configured methods in their order, then re-attributed maps by name.</summary>
     /// <param name="store">An open store.</param>
-    /// <param name="run">The run.</param>
-    public static ImmutableArray<MapTrust> Load(RunStore store, RunDocument run)
+    /// <param name="runName">The run's name.</param>
+    /// <exception cref="StoreException">No run of that name is in the store.</exception>
+    public static ImmutableArray<MapTrust> Load(RunStore store, string runName)
+    {
+        ArgumentNullException.ThrowIfNull(store);
+        return Load(store, store.GetRun(runName));
+    }
+
+    private static ImmutableArray<MapTrust> Load(RunStore store, RunDocument run)
     {
         ArgumentNullException.ThrowIfNull(store);
         ArgumentNullException.ThrowIfNull(run);

@@ -73,7 +73,7 @@ public static class Reattribution
 
     /// <summary>The probe set a run recorded, checked against its stored hash.</summary>
     /// <exception cref="StoreException">The stored rows do not hash to the run's probe hash.</exception>
-    public static ProbeSet ProbeOf(RunDocument run)
+    internal static ProbeSet ProbeOf(RunDocument run)
     {
         ArgumentNullException.ThrowIfNull(run);
         var labels = run.ProbeLabels is null ? null : FloatBytes.ToFloats(run.ProbeLabels);
@@ -88,7 +88,7 @@ public static class Reattribution
 
     /// <summary>The baseline a run recorded.</summary>
     /// <exception cref="DriftWatchException">A caller-given baseline whose values were not stored.</exception>
-    public static Baseline BaselineOf(RunDocument run)
+    internal static Baseline BaselineOf(RunDocument run)
     {
         ArgumentNullException.ThrowIfNull(run);
         return run.Baseline switch
@@ -109,7 +109,7 @@ public static class Reattribution
     /// <param name="progress">Told after each epoch, or null.</param>
     /// <returns>One entry per epoch in the range.</returns>
     /// <exception cref="DriftWatchException">A bad request, a model or snapshot that does not fit, or no epoch in the range.</exception>
-    public static IReadOnlyList<ReattributedEpoch> Run(RunStore store, RunDocument run, IWatchedModel model, ReattributionOptions request, IProgress<ReattributedEpoch>? progress = null)
+    internal static IReadOnlyList<ReattributedEpoch> Run(RunStore store, RunDocument run, IWatchedModel model, ReattributionOptions request, IProgress<ReattributedEpoch>? progress = null)
     {
         var epochs = Check(store, run, model, request);
         string label = AttributionTarget.Parse(run.Target).Label;
@@ -137,7 +137,7 @@ public static class Reattribution
     /// <param name="progress">Told after each epoch, or null.</param>
     /// <returns>One entry per epoch of the shard (none when the shard's slice is empty).</returns>
     /// <exception cref="DriftWatchException">A bad request, or a shard store holding another shard or job.</exception>
-    public static IReadOnlyList<ReattributedEpoch> RunShard(
+    internal static IReadOnlyList<ReattributedEpoch> RunShard(
         RunStore source, RunDocument run, IWatchedModel model, ReattributionOptions request, Shard shard, RunStore shardStore, IProgress<ReattributedEpoch>? progress = null)
     {
         ArgumentNullException.ThrowIfNull(shardStore);
@@ -168,7 +168,7 @@ public static class Reattribution
 
     /// <summary>Checks, without writing, that <paramref name="shardStore"/> is new or holds this same shard of this same job.</summary>
     /// <exception cref="DriftWatchException">It holds another shard, another job, or runs that are not a shard's.</exception>
-    public static void CheckShardStore(RunStore shardStore, ShardDocument record)
+    internal static void CheckShardStore(RunStore shardStore, ShardDocument record)
     {
         ArgumentNullException.ThrowIfNull(shardStore);
         ArgumentNullException.ThrowIfNull(record);
@@ -235,7 +235,7 @@ public static class Reattribution
 
     /// <summary>Checks a request against the store without writing anything, and returns the epochs it covers.</summary>
     /// <exception cref="DriftWatchException">A bad name or range, a model whose schema differs from the run's, or a damaged run record.</exception>
-    public static IReadOnlyList<EpochDocument> Check(RunStore store, RunDocument run, IWatchedModel model, ReattributionOptions request)
+    internal static IReadOnlyList<EpochDocument> Check(RunStore store, RunDocument run, IWatchedModel model, ReattributionOptions request)
     {
         ArgumentNullException.ThrowIfNull(store);
         ArgumentNullException.ThrowIfNull(run);
@@ -280,7 +280,7 @@ public static class Reattribution
     /// already under that name made by the same method and settings.
     /// </summary>
     /// <exception cref="DriftWatchException">The name is refused, with the reason.</exception>
-    public static void CheckStoredName(RunStore store, RunDocument run, string name, string method, IReadOnlyDictionary<string, string> settings)
+    internal static void CheckStoredName(RunStore store, RunDocument run, string name, string method, IReadOnlyDictionary<string, string> settings)
     {
         ArgumentNullException.ThrowIfNull(store);
         ArgumentNullException.ThrowIfNull(run);
@@ -334,7 +334,7 @@ public static class Reattribution
 public static class ImportanceDocuments
 {
     /// <summary>The stored form of <paramref name="half"/>.</summary>
-    public static ImportanceDocument From(HalfImportance half)
+    internal static ImportanceDocument From(HalfImportance half)
     {
         ArgumentNullException.ThrowIfNull(half);
         return new ImportanceDocument

@@ -78,7 +78,7 @@ public sealed class RunContext
     }
 
     /// <summary>Builds the context from a stored run.</summary>
-    public static RunContext FromRun(RunDocument run)
+    internal static RunContext FromRun(RunDocument run)
     {
         ArgumentNullException.ThrowIfNull(run);
         var schema = FeatureSchema.FromDefinitions(run.Features.Select(f =>

@@ -8,7 +8,7 @@ namespace DriftWatch.Detection;
 public static class RunReview
 {
     /// <summary>The name of the method whose maps the detector reads: the run's first configured method.</summary>
-    public static string PrimaryMethod(RunDocument run)
+    internal static string PrimaryMethod(RunDocument run)
     {
         ArgumentNullException.ThrowIfNull(run);
         return run.Methods.Count > 0 ? run.Methods[0].Name : "integrated-gradients";
@@ -37,7 +37,7 @@ public static class RunReview
     }
 
     /// <summary>Replays every complete epoch of <paramref name="run"/> in order under <paramref name="policy"/>.</summary>
-    public static IReadOnlyList<Assessment> Replay(RunStore store, RunDocument run, GatePolicy policy)
+    internal static IReadOnlyList<Assessment> Replay(RunStore store, RunDocument run, GatePolicy policy)
     {
         ArgumentNullException.ThrowIfNull(store);
         ArgumentNullException.ThrowIfNull(run);
@@ -51,7 +51,7 @@ public static class RunReview
     }
 
     /// <summary>The run's configured methods' names, the primary first.</summary>
-    public static IReadOnlyList<string> ConfiguredMethods(RunDocument run)
+    internal static IReadOnlyList<string> ConfiguredMethods(RunDocument run)
     {
         ArgumentNullException.ThrowIfNull(run);
         return run.Methods.Count > 0 ? run.Methods.Select(m => m.Name).ToList() : [PrimaryMethod(run)];

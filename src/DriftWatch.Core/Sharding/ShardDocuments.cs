@@ -10,7 +10,7 @@ public static class ShardDocuments
     public const string ReattributeJob = "reattribute";
 
     /// <summary>The shard record of <paramref name="shard"/> of a re-attribution of <paramref name="run"/>.</summary>
-    public static ShardDocument For(RunDocument run, ReattributionOptions request, Shard shard, IReadOnlyList<EpochDocument> jobEpochs, IReadOnlyList<EpochDocument> epochs, string sourceStore)
+    internal static ShardDocument For(RunDocument run, ReattributionOptions request, Shard shard, IReadOnlyList<EpochDocument> jobEpochs, IReadOnlyList<EpochDocument> epochs, string sourceStore)
     {
         ArgumentNullException.ThrowIfNull(run);
         ArgumentNullException.ThrowIfNull(request);
@@ -44,7 +44,7 @@ public static class ShardDocuments
     /// a copy of the run (without weight snapshots) and its slice's epoch records, so the shard store can also be read
     /// on its own. Returns the run as the shard store holds it.
     /// </summary>
-    public static RunDocument Prepare(RunStore shardStore, ShardDocument record, RunDocument run, IReadOnlyList<EpochDocument> epochs)
+    internal static RunDocument Prepare(RunStore shardStore, ShardDocument record, RunDocument run, IReadOnlyList<EpochDocument> epochs)
     {
         ArgumentNullException.ThrowIfNull(shardStore);
         ArgumentNullException.ThrowIfNull(record);
@@ -63,7 +63,7 @@ public static class ShardDocuments
 
     /// <summary>How two shard records differ as parts of one job (the run, the method, the split), or null when they belong together.</summary>
     /// <remarks>The shard's own number, its epochs and its progress are not compared.</remarks>
-    public static string? Difference(ShardDocument a, ShardDocument b)
+    internal static string? Difference(ShardDocument a, ShardDocument b)
     {
         ArgumentNullException.ThrowIfNull(a);
         ArgumentNullException.ThrowIfNull(b);
@@ -90,7 +90,7 @@ public static class ShardDocuments
     }
 
     /// <summary>How a run differs from the one a shard was cut from (name, probe hash, schema, model settings, target, baseline), or null.</summary>
-    public static string? RunDifference(ShardDocument shard, RunDocument run)
+    internal static string? RunDifference(ShardDocument shard, RunDocument run)
     {
         ArgumentNullException.ThrowIfNull(shard);
         ArgumentNullException.ThrowIfNull(run);

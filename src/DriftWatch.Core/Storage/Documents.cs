@@ -15,7 +15,7 @@ internal interface IKeyedDocument
 }
 
 /// <summary>One feature of a stored schema.</summary>
-public sealed record FeatureDocument
+internal sealed record FeatureDocument
 {
     /// <summary>Feature name.</summary>
     public string Name { get; set; } = "";
@@ -31,7 +31,7 @@ public sealed record FeatureDocument
 }
 
 /// <summary>One configured attribution method and the settings that shaped its maps.</summary>
-public sealed record MethodDocument
+internal sealed record MethodDocument
 {
     /// <summary>The method's stable name.</summary>
     public string Name { get; set; } = "";
@@ -41,7 +41,7 @@ public sealed record MethodDocument
 }
 
 /// <summary>A training run: its schema, probe set and attribution settings.</summary>
-public sealed record RunDocument
+internal sealed record RunDocument
 {
     /// <summary>Store-assigned id.</summary>
     [BsonId(autoId: true)]
@@ -118,7 +118,7 @@ public sealed record RunDocument
 }
 
 /// <summary>Per-feature aggregates over one half of the probe set.</summary>
-public sealed record ImportanceDocument
+internal sealed record ImportanceDocument
 {
     /// <summary>Mean |score| per feature.</summary>
     public double[] MeanAbsolute { get; set; } = [];
@@ -190,7 +190,7 @@ internal sealed record MapDocument : IKeyedDocument
 }
 
 /// <summary>One finished epoch: its metrics, snapshot and any monitoring problems. Written last, so it marks the epoch complete.</summary>
-public sealed record EpochDocument : IKeyedDocument
+internal sealed record EpochDocument : IKeyedDocument
 {
     /// <summary>Store-assigned id.</summary>
     [BsonId(autoId: true)]
@@ -363,7 +363,7 @@ internal sealed record MapQualityDocument : IKeyedDocument
 /// What a shard store holds: one shard of a re-attribution split over several processes or machines, with everything
 /// <c>merge</c> needs to check that shards belong together (the run's identity, the method and its settings, the split).
 /// </summary>
-public sealed record ShardDocument : IKeyedDocument
+internal sealed record ShardDocument : IKeyedDocument
 {
     /// <summary>Store-assigned id.</summary>
     [BsonId(autoId: true)]

@@ -120,14 +120,14 @@ public sealed class RunStore : IDisposable
     }
 
     /// <summary>All runs, in creation order.</summary>
-    public IReadOnlyList<RunDocument> Runs() => Guard(() => RunsCollection.FindAll().Select(r => StoreChecks.Run(Path, r)).OrderBy(r => r.Id).ToList());
+    internal IReadOnlyList<RunDocument> Runs() => Guard(() => RunsCollection.FindAll().Select(r => StoreChecks.Run(Path, r)).OrderBy(r => r.Id).ToList());
 
     /// <summary>The run with this name, or null.</summary>
-    public RunDocument? FindRun(string name) => Guard(() => RunsCollection.FindOne(r => r.Name == name) is { } run ? StoreChecks.Run(Path, run) : null);
+    internal RunDocument? FindRun(string name) => Guard(() => RunsCollection.FindOne(r => r.Name == name) is { } run ? StoreChecks.Run(Path, run) : null);
 
     /// <summary>The run with this name.</summary>
     /// <exception cref="StoreException">No such run; the message lists the runs there are.</exception>
-    public RunDocument GetRun(string name)
+    internal RunDocument GetRun(string name)
     {
         var run = FindRun(name);
         if (run is not null)
@@ -138,7 +138,7 @@ public sealed class RunStore : IDisposable
     }
 
     /// <summary>Registers a new run and returns it with its id.</summary>
-    public RunDocument AddRun(RunDocument run)
+    internal RunDocument AddRun(RunDocument run)
     {
         ArgumentNullException.ThrowIfNull(run);
         return Guard(() =>
@@ -177,7 +177,7 @@ public sealed class RunStore : IDisposable
     }
 
     /// <summary>Replaces a run's record (same id).</summary>
-    public void UpdateRun(RunDocument run)
+    internal void UpdateRun(RunDocument run)
     {
         ArgumentNullException.ThrowIfNull(run);
         Guard(() => RunsCollection.Update(run));
@@ -191,7 +191,7 @@ public sealed class RunStore : IDisposable
     }
 
     /// <summary>Writes an epoch's document, marking it complete; an earlier document for the same epoch is replaced.</summary>
-    public void WriteEpoch(EpochDocument epoch)
+    internal void WriteEpoch(EpochDocument epoch)
     {
         ArgumentNullException.ThrowIfNull(epoch);
         Guard(() => Upsert(EpochsCollection, epoch with { Key = EpochKey(epoch.RunId, epoch.Epoch) }));
@@ -270,14 +270,14 @@ public sealed class RunStore : IDisposable
     }
 
     /// <summary>Writes the shard record of a shard store, replacing the earlier one.</summary>
-    public void WriteShard(ShardDocument shard)
+    internal void WriteShard(ShardDocument shard)
     {
         ArgumentNullException.ThrowIfNull(shard);
         Guard(() => Upsert(ShardsCollection, shard with { Key = "shard" }));
     }
 
     /// <summary>The shard record when this store is a shard store, else null.</summary>
-    public ShardDocument? FindShard() =>
+    internal ShardDocument? FindShard() =>
         Guard(() => _database.CollectionExists("shards") ? ShardsCollection.FindOne(KeyIs("shard")) : null);
 
     /// <summary>The stored map for (run, epoch, method, target), or null.</summary>
@@ -332,7 +332,7 @@ public sealed class RunStore : IDisposable
     }
 
     /// <summary>The complete epochs of a run, in epoch order.</summary>
-    public IReadOnlyList<EpochDocument> Epochs(int runId) =>
+    internal IReadOnlyList<EpochDocument> Epochs(int runId) =>
         Guard(() => EpochsCollection.Find(e => e.RunId == runId).Select(e => StoreChecks.Epoch(Path, e)).OrderBy(e => e.Epoch).ToList());
 
     /// <summary>The maps of a run's complete epochs, in epoch order; optionally one method only.</summary>
@@ -403,6 +403,13 @@ public sealed class RunStore : IDisposable
             throw new StoreException($"store '{Path}' holds a verdict at epoch {v.Epoch} of run {runId} that this version cannot read ({e.Message}); a severity is Continue, Caution or Halt and a kind is a name of letters and digits");
         }
     }).ToList();
+
+    /// <summary>Every run in the store, in the order they were registered.</summary>
+    public IReadOnlyList<StoredRun> StoredRuns() => [.. Runs().Select(StoredRun.From)];
+
+    /// <summary>The complete epochs of the run named <paramref name="runName"/>, in order.</summary>
+    /// <exception cref="StoreException">No run of that name is in the store.</exception>
+    public IReadOnlyList<StoredEpoch> StoredEpochs(string runName) => [.. Epochs(GetRun(runName).Id).Select(StoredEpoch.From)];
 
     /// <summary>The per-half importance of a run's maps at complete epochs, in epoch then method order; optionally one method only.</summary>
     public IReadOnlyList<StoredImportance> Importance(int runId, string? method = null) =>

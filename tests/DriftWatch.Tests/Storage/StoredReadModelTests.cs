@@ -49,4 +49,28 @@ public sealed class StoredReadModelTests
         }
         Assert.Empty(store.Importance(run.Id, "no-such-method"));
     }
+
+    [Fact]
+    public void StoredRunsAndEpochsNameWhatAProgramNeedsToReadTheRestAndHandOutNothingWritable()
+    {
+        using var folder = new TempFolder();
+        string path = folder.File("runs.litedb");
+        new StoreBuilder().WithRun("first").WithFeatures("alpha", "beta").WithEpochs(3).Build(path);
+        new StoreBuilder().WithRun("second").WithFeatures("alpha", "beta", "gamma").WithEpochs(2).Build(path);
+        using var store = RunStore.OpenForReading(path);
+
+        var runs = store.StoredRuns();
+        var epochs = store.StoredEpochs("second");
+
+        Assert.Equal(["first", "second"], runs.Select(r => r.Name));
+        Assert.Equal(new[] { "alpha", "beta", "gamma" }, runs[1].Features.ToArray());
+        Assert.Equal([1, 2], epochs.Select(e => e.Epoch));
+        Assert.Contains(MetricKeys.ValidationLoss, epochs[0].Metrics.Keys);
+        Assert.Equal(store.StoredVerdicts(runs[1].Id).Count, epochs.Count);
+        var error = Assert.Throws<StoreException>(() => store.StoredEpochs("third"));
+        Assert.Contains("third", error.Message, StringComparison.Ordinal);
+        // Public members of the store take and return read models only; the documents stay inside DriftWatch.
+        var exposed = typeof(RunStore).GetMethods().SelectMany(m => m.GetParameters().Select(p => p.ParameterType).Append(m.ReturnType));
+        Assert.DoesNotContain(exposed, t => t.Namespace == typeof(RunStore).Namespace && t.Name.EndsWith("Document", StringComparison.Ordinal));
+    }
 }
