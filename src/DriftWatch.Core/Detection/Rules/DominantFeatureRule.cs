@@ -19,18 +19,12 @@ public sealed record DominantFeatureSettings(double Widths)
 /// <b>Dominant feature</b>: one feature's share leads the next by more than its widths of the noise floor W on both halves,
 /// the same feature on top of both. A Caution: it may be genuine. <see cref="ProbableLeakRule"/> may upgrade it.
 /// </summary>
-public sealed class DominantFeatureRule : IFindingRule
+/// <param name="settings">What the rule reads from the policy.</param>
+/// <param name="patience">Consecutive flagged epochs before a finding (the policy's patience).</param>
+public sealed class DominantFeatureRule(DominantFeatureSettings settings, int patience) : IFindingRule
 {
-    private readonly DominantFeatureSettings _settings;
-    private readonly Streaks _streaks;
-
-    /// <summary>A dominant-feature rule for one detector.</summary>
-    public DominantFeatureRule(DominantFeatureSettings settings, int patience)
-    {
-        ArgumentNullException.ThrowIfNull(settings);
-        _settings = settings;
-        _streaks = new Streaks(patience);
-    }
+    private readonly DominantFeatureSettings _settings = settings ?? throw new ArgumentNullException(nameof(settings));
+    private readonly Streaks _streaks = new(patience);
 
     /// <summary>The dominant-feature kind's words and advice.</summary>
     public static FindingKindInfo Kind { get; } = new(

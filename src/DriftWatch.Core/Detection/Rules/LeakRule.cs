@@ -22,18 +22,12 @@ public sealed record LeakSettings(double Widths, double MinimumGap, double Align
 /// <b>Leak</b>: the training-minus-held-out share gap beyond its widths of the noise floor W, or the label-alignment gap
 /// beyond its widths of W for a feature that is not identifier-like and takes enough of the training attribution.
 /// </summary>
-public sealed class LeakRule : IFindingRule
+/// <param name="settings">What the rule reads from the policy.</param>
+/// <param name="patience">Consecutive flagged epochs before a finding (the policy's patience).</param>
+public sealed class LeakRule(LeakSettings settings, int patience) : IFindingRule
 {
-    private readonly LeakSettings _settings;
-    private readonly Streaks _streaks;
-
-    /// <summary>A leak rule for one detector.</summary>
-    public LeakRule(LeakSettings settings, int patience)
-    {
-        ArgumentNullException.ThrowIfNull(settings);
-        _settings = settings;
-        _streaks = new Streaks(patience);
-    }
+    private readonly LeakSettings _settings = settings ?? throw new ArgumentNullException(nameof(settings));
+    private readonly Streaks _streaks = new(patience);
 
     /// <summary>The leak kind's words and advice.</summary>
     public static FindingKindInfo Kind { get; } = new(

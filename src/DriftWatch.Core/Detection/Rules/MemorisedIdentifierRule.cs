@@ -20,19 +20,13 @@ public sealed record MemorisedIdentifierSettings(double Widths, double CusumAllo
 /// <b>Memorised identifier</b>: the label-alignment gap of an identifier-like categorical beyond its widths of the noise
 /// floor W, or a one-sided CUSUM of that gap in standard errors beyond the policy's threshold (Page 1954).
 /// </summary>
-public sealed class MemorisedIdentifierRule : IFindingRule
+/// <param name="settings">What the rule reads from the policy.</param>
+/// <param name="patience">Consecutive flagged epochs before a finding (the policy's patience).</param>
+public sealed class MemorisedIdentifierRule(MemorisedIdentifierSettings settings, int patience) : IFindingRule
 {
-    private readonly MemorisedIdentifierSettings _settings;
-    private readonly Streaks _streaks;
+    private readonly MemorisedIdentifierSettings _settings = settings ?? throw new ArgumentNullException(nameof(settings));
+    private readonly Streaks _streaks = new(patience);
     private readonly Dictionary<int, (double Sum, int Since)> _sums = [];
-
-    /// <summary>A memorised-identifier rule for one detector.</summary>
-    public MemorisedIdentifierRule(MemorisedIdentifierSettings settings, int patience)
-    {
-        ArgumentNullException.ThrowIfNull(settings);
-        _settings = settings;
-        _streaks = new Streaks(patience);
-    }
 
     /// <summary>The memorised-identifier kind's words and advice.</summary>
     public static FindingKindInfo Kind { get; } = new(

@@ -18,16 +18,10 @@ public sealed record NumericalTroubleSettings(double DeltaTolerance)
 /// <b>Numerical trouble</b>: a metric that is NaN or infinite; attribution scores that are; or a mean convergence delta
 /// beyond the policy's tolerance. The last two distrust the epoch's map, so no attribution rule reads it.
 /// </summary>
-public sealed class NumericalTroubleRule : IFindingRule
+/// <param name="settings">What the rule reads from the policy.</param>
+public sealed class NumericalTroubleRule(NumericalTroubleSettings settings) : IFindingRule
 {
-    private readonly NumericalTroubleSettings _settings;
-
-    /// <summary>A numerical-trouble rule for one detector.</summary>
-    public NumericalTroubleRule(NumericalTroubleSettings settings)
-    {
-        ArgumentNullException.ThrowIfNull(settings);
-        _settings = settings;
-    }
+    private readonly NumericalTroubleSettings _settings = settings ?? throw new ArgumentNullException(nameof(settings));
 
     /// <summary>The numerical-trouble kind's words and advice.</summary>
     public static FindingKindInfo Kind { get; } = new(

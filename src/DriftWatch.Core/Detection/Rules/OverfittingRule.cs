@@ -18,16 +18,10 @@ public sealed record OverfittingSettings(double GeneralisationLossThreshold)
 /// <b>Overfitting</b>: Prechelt's generalisation loss GL above the policy's threshold (Prechelt 1998), with the features
 /// whose training/held-out share gap widened since the best-validation epoch as the diagnosis.
 /// </summary>
-public sealed class OverfittingRule : IFindingRule
+/// <param name="settings">What the rule reads from the policy.</param>
+public sealed class OverfittingRule(OverfittingSettings settings) : IFindingRule
 {
-    private readonly OverfittingSettings _settings;
-
-    /// <summary>An overfitting rule for one detector.</summary>
-    public OverfittingRule(OverfittingSettings settings)
-    {
-        ArgumentNullException.ThrowIfNull(settings);
-        _settings = settings;
-    }
+    private readonly OverfittingSettings _settings = settings ?? throw new ArgumentNullException(nameof(settings));
 
     /// <summary>The overfitting kind's words and advice.</summary>
     public static FindingKindInfo Kind { get; } = new(

@@ -21,17 +21,11 @@ public sealed record ProbableLeakSettings(double PurityLowerBound)
 /// <b>Probable leak</b>: a dominant categorical (this epoch's <see cref="DominantFeatureRule"/> finding) whose attribution
 /// points at the true label on nearly every probe row, held-out rows included. Replaces that dominant-feature finding.
 /// </summary>
-public sealed class ProbableLeakRule : IFindingRule
+/// <param name="settings">What the rule reads from the policy.</param>
+public sealed class ProbableLeakRule(ProbableLeakSettings settings) : IFindingRule
 {
     private const double OneSided95 = 1.645; // the normal quantile of a one-sided 95% lower bound
-    private readonly ProbableLeakSettings _settings;
-
-    /// <summary>A probable-leak rule for one detector.</summary>
-    public ProbableLeakRule(ProbableLeakSettings settings)
-    {
-        ArgumentNullException.ThrowIfNull(settings);
-        _settings = settings;
-    }
+    private readonly ProbableLeakSettings _settings = settings ?? throw new ArgumentNullException(nameof(settings));
 
     /// <summary>The probable-leak kind's words and advice.</summary>
     public static FindingKindInfo Kind { get; } = new(
