@@ -71,6 +71,7 @@ public static class CliApp
             ExportCommand.Create(store),
             CompareCommand.Create(store),
             MergeCommand.Create(),
+            PolicyCommand.Create(),
             NeuronsCommand.Create(store),
             PruneCommand.Create(store),
         };

@@ -137,6 +137,12 @@ public sealed record GatePolicy
     /// <summary>The built-in policy.</summary>
     public static GatePolicy Default { get; } = new();
 
+    /// <summary>Whether two policies hold the same settings (<see cref="HaltOn"/> compared kind by kind, in order).</summary>
+    public bool Equals(GatePolicy? other) => other is not null && string.Equals(ToJson(), other.ToJson(), StringComparison.Ordinal);
+
+    /// <inheritdoc/>
+    public override int GetHashCode() => StringComparer.Ordinal.GetHashCode(ToJson());
+
     /// <summary>Whether a finding of this kind may raise a Halt.</summary>
     public VerdictKind SeverityOf(FindingKind kind) => HaltOn.Contains(kind) ? VerdictKind.Halt : VerdictKind.Caution;
 
