@@ -153,7 +153,7 @@ internal static class GreenhouseTraining
                 .Append(rows.Labels![r].ToString("R", CultureInfo.InvariantCulture));
             text.AppendJoin(',', cells).Append('\n');
         }
-        File.WriteAllText(path, text.ToString(), new System.Text.UTF8Encoding(false));
+        OutputFile.WriteText(path, text.ToString());
         return path;
     }
 

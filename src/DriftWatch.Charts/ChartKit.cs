@@ -421,16 +421,14 @@ internal static class ChartKit
     public static PixelRect Measure(Legend? legend, PixelSize room, Paint paint) =>
         legend is null || legend.ManualItems.Count == 0 ? new PixelRect(0, 0) : legend.GetLayout(room, paint).LegendRect;
 
-    /// <summary>Writes the surface as a PNG, creating the folder.</summary>
+    /// <summary>Writes the surface as a PNG, creating the folder; the picture appears whole or not at all (<see cref="OutputFile"/>).</summary>
+    /// <exception cref="DriftWatchException">The file cannot be written (full disk, no permission).</exception>
     public static void Save(SKSurface surface, string path)
     {
-        string? folder = Path.GetDirectoryName(Path.GetFullPath(path));
-        if (folder is not null)
-            Directory.CreateDirectory(folder);
+        ArgumentNullException.ThrowIfNull(surface);
         using var image = surface.Snapshot();
         using var png = image.Encode(SKEncodedImageFormat.Png, 100);
-        using var file = File.Create(path);
-        png.SaveTo(file);
+        OutputFile.Write(path, png.SaveTo);
     }
 
     /// <summary>Throws the usual error when a history has no complete epoch.</summary>

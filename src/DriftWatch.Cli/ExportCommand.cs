@@ -29,6 +29,11 @@ internal static class ExportCommand
             if (string.IsNullOrWhiteSpace(result.GetValueOrDefault<string>()))
                 result.AddError("--out must name a file; got an empty path");
         });
+        var exact = new Option<bool>("--exact-names")
+        {
+            Description = "CSV only: write every name exactly as stored, for a program that reads the table back. Default: safe for a spreadsheet — "
+                + "a name starting with =, +, - or @ gets a leading apostrophe (shown as text, never run as a formula) and control characters are left out.",
+        };
         var json = CommonOptions.Json("the files written and their row counts");
         var command = new Command(
             "export",
@@ -47,6 +52,7 @@ internal static class ExportCommand
             run,
             format,
             output,
+            exact,
             json,
         };
         command.SetAction(parse =>
@@ -60,7 +66,7 @@ internal static class ExportCommand
                     return RunTables.Read(runStore, parse.GetValue(run)!);
                 });
             string path = parse.GetValue(output) ?? ChartFiles.SafePart(tables.Run) + "." + exportFormat.ToString().ToLowerInvariant();
-            var files = RunExport.Write(tables, exportFormat, path);
+            var files = RunExport.Write(tables, exportFormat, path, parse.GetValue(exact) ? CsvText.Exact : CsvText.FormulaSafe);
             var writer = parse.InvocationConfiguration.Output;
             if (parse.GetValue(json))
             {

@@ -9,7 +9,10 @@ namespace DriftWatch.Export;
 /// <summary>The file formats of an export.</summary>
 public enum ExportFormat
 {
-    /// <summary>Two RFC 4180 CSV files: the importance table at the path given, the epoch table beside it (<c>NAME-epochs.csv</c>).</summary>
+    /// <summary>
+    /// Two RFC 4180 CSV files: the importance table at the path given, the epoch table beside it (<c>NAME-epochs.csv</c>).
+    /// Made for spreadsheets: see <see cref="CsvText"/> for how names are written.
+    /// </summary>
     Csv,
 
     /// <summary>One JSON document holding both tables (shape: <see cref="RunExport.JsonSchema"/>).</summary>
@@ -26,7 +29,22 @@ public enum ExportFormat
 /// <param name="EpochRows">Rows in the epoch table.</param>
 public sealed record ExportFiles(string Importance, string Epochs, int ImportanceRows, int EpochRows);
 
+/// <summary>How the CSV export writes names (runs, methods, targets, features, metric columns).</summary>
+public enum CsvText
+{
+    /// <summary>
+    /// Safe to open in a spreadsheet (the default): a name starting with <c>=</c>, <c>+</c>, <c>-</c>, <c>@</c>, a tab or a
+    /// carriage return gets a leading apostrophe, so it is shown as text rather than run as a formula, and control characters
+    /// other than tab and line breaks (ESC, NUL, …) are left out. Numbers are never changed.
+    /// </summary>
+    FormulaSafe,
+
+    /// <summary>Every name exactly as stored (only RFC 4180 quoting), for a program that reads the table back.</summary>
+    Exact,
+}
+
 /// <summary>Writes a run's tables as CSV, JSON or Parquet, so pandas, R, DuckDB or Spark read them directly.</summary>
+/// <remarks>Each file is written under a temporary name beside it and renamed into place (<see cref="OutputFile"/>).</remarks>
 public static class RunExport
 {
     /// <summary>The importance table's columns, in order.</summary>
@@ -68,8 +86,12 @@ public static class RunExport
     }
 
     /// <summary>Writes <paramref name="tables"/> in <paramref name="format"/> to <paramref name="path"/> (and the epoch table beside it), replacing files there.</summary>
-    /// <exception cref="DriftWatchException">A file cannot be written.</exception>
-    public static ExportFiles Write(RunTables tables, ExportFormat format, string path)
+    /// <param name="tables">The run's tables.</param>
+    /// <param name="format">The file format.</param>
+    /// <param name="path">The importance table's file (the one JSON file).</param>
+    /// <param name="csvText">How CSV cells hold names; JSON and Parquet always hold them exactly. Default: <see cref="CsvText.FormulaSafe"/>.</param>
+    /// <exception cref="DriftWatchException">A file cannot be written (no file is left half written).</exception>
+    public static ExportFiles Write(RunTables tables, ExportFormat format, string path, CsvText csvText = CsvText.FormulaSafe)
     {
         ArgumentNullException.ThrowIfNull(tables);
         ArgumentException.ThrowIfNullOrWhiteSpace(path);
@@ -83,7 +105,7 @@ public static class RunExport
             switch (format)
             {
                 case ExportFormat.Csv:
-                    WriteCsv(tables, full, epochs);
+                    WriteCsv(tables, full, epochs, csvText);
                     break;
                 case ExportFormat.Json:
                     WriteJson(tables, full);
@@ -104,11 +126,12 @@ public static class RunExport
 
     // RFC 4180: comma-separated, CRLF line ends, a field quoted when it holds a comma, a quote or a line break, quotes doubled.
     // Numbers in invariant culture, round-trip precision; a missing value is an empty field.
-    private static void WriteCsv(RunTables tables, string importancePath, string epochsPath)
+    private static void WriteCsv(RunTables tables, string importancePath, string epochsPath, CsvText csvText)
     {
-        using (var writer = new StreamWriter(importancePath, false, new UTF8Encoding(false)))
+        string Csv(string text) => CsvField(text, csvText);
+        OutputFile.Write(importancePath, stream =>
         {
-            writer.NewLine = "\r\n";
+            using var writer = CsvWriter(stream);
             writer.WriteLine(string.Join(',', ImportanceColumns));
             foreach (var r in tables.Importance)
             {
@@ -116,10 +139,10 @@ public static class RunExport
                     Csv(r.Run), Integer(r.Epoch), Csv(r.Method), Csv(r.Target), Csv(r.Half), Csv(r.Feature),
                     Number(r.Importance), Number(r.Share), Number(r.Lower), Number(r.Upper), Number(r.SignedMean), Number(r.Alignment)));
             }
-        }
-        using (var writer = new StreamWriter(epochsPath, false, new UTF8Encoding(false)))
+        });
+        OutputFile.Write(epochsPath, stream =>
         {
-            writer.NewLine = "\r\n";
+            using var writer = CsvWriter(stream);
             writer.WriteLine(string.Join(',', new[] { "run", "epoch", "verdict", "findings" }.Concat(tables.MetricColumns.Select(Csv))));
             foreach (var e in tables.Epochs)
             {
@@ -127,11 +150,24 @@ public static class RunExport
                     new[] { Csv(e.Run), Integer(e.Epoch), e.Verdict is null ? "" : Csv(e.Verdict), Integer(e.Findings) }
                         .Concat(tables.MetricColumns.Select(c => Number(e.Values.GetValueOrDefault(c))))));
             }
-        }
+        });
     }
 
-    private static string Csv(string text) =>
-        text.AsSpan().IndexOfAny(",\"\r\n") >= 0 ? "\"" + text.Replace("\"", "\"\"", StringComparison.Ordinal) + "\"" : text;
+    private static StreamWriter CsvWriter(Stream stream) => new(stream, new UTF8Encoding(false), leaveOpen: true) { NewLine = "\r\n" };
+
+    /// <summary>One CSV field holding a name: quoted per RFC 4180 when needed and, when <see cref="CsvText.FormulaSafe"/>, safe in a spreadsheet.</summary>
+    public static string CsvField(string text, CsvText csvText = CsvText.FormulaSafe)
+    {
+        ArgumentNullException.ThrowIfNull(text);
+        if (csvText == CsvText.FormulaSafe)
+        {
+            // Spreadsheets run a cell starting with one of these as a formula (common practice: prefix an apostrophe).
+            text = string.Concat(text.Where(c => !char.IsControl(c) || c is '\t' or '\n' or '\r'));
+            if (text.Length > 0 && text[0] is '=' or '+' or '-' or '@' or '\t' or '\r')
+                text = "'" + text;
+        }
+        return text.AsSpan().IndexOfAny(",\"\r\n") >= 0 ? "\"" + text.Replace("\"", "\"\"", StringComparison.Ordinal) + "\"" : text;
+    }
 
     private static string Integer(int value) => value.ToString(CultureInfo.InvariantCulture);
 
@@ -140,7 +176,11 @@ public static class RunExport
     // JSON has no NaN or infinity: such a value is written as null, like a missing one.
     private static void WriteJson(RunTables tables, string path)
     {
-        using var stream = File.Create(path);
+        OutputFile.Write(path, stream => WriteJson(tables, stream));
+    }
+
+    private static void WriteJson(RunTables tables, Stream stream)
+    {
         using var json = new Utf8JsonWriter(stream, new JsonWriterOptions { Indented = false });
         json.WriteStartObject();
         json.WriteString("format", "driftwatch-export/1");
@@ -208,7 +248,7 @@ public static class RunExport
         var upper = new DataField<double?>("upper");
         var signed = new DataField<double>("signed_mean");
         var alignment = new DataField<double?>("alignment");
-        await using (var file = File.Create(importancePath))
+        await OutputFile.WriteAsync(importancePath, async file =>
         {
             await using var writer = await ParquetWriter.CreateAsync(new ParquetSchema(run, epoch, method, target, half, feature, importance, share, lower, upper, signed, alignment), file).ConfigureAwait(false);
             using var group = writer.CreateRowGroup();
@@ -224,7 +264,7 @@ public static class RunExport
             await group.WriteAsync<double>(upper, rows.Select(r => r.Upper).ToArray().AsMemory()).ConfigureAwait(false);
             await group.WriteAsync<double>(signed, rows.Select(r => r.SignedMean).ToArray().AsMemory()).ConfigureAwait(false);
             await group.WriteAsync<double>(alignment, rows.Select(r => r.Alignment).ToArray().AsMemory()).ConfigureAwait(false);
-        }
+        }).ConfigureAwait(false);
 
         var epochs = tables.Epochs;
         var epochRun = new DataField<string>("run");
@@ -232,7 +272,7 @@ public static class RunExport
         var verdict = new DataField<string>("verdict", nullable: true);
         var findings = new DataField<int>("findings");
         var metrics = tables.MetricColumns.Select(c => new DataField<double?>(c)).ToArray();
-        await using (var file = File.Create(epochsPath))
+        await OutputFile.WriteAsync(epochsPath, async file =>
         {
             var fields = new List<Field> { epochRun, epochNumber, verdict, findings };
             fields.AddRange(metrics);
@@ -247,6 +287,6 @@ public static class RunExport
                 string column = tables.MetricColumns[c];
                 await group.WriteAsync<double>(metrics[c], epochs.Select(e => e.Values.GetValueOrDefault(column)).ToArray().AsMemory()).ConfigureAwait(false);
             }
-        }
+        }).ConfigureAwait(false);
     }
 }

@@ -85,8 +85,8 @@ public static class DetectorEvaluation
     internal static void WriteTables(IReadOnlyList<EvaluationRun> runs, string folder, TextWriter output)
     {
         var summary = Summarise(runs);
-        File.WriteAllText(Path.Combine(folder, "runs.csv"), RunsCsv(runs));
-        File.WriteAllText(Path.Combine(folder, "summary.csv"), SummaryCsv(summary));
+        OutputFile.WriteText(Path.Combine(folder, "runs.csv"), RunsCsv(runs));
+        OutputFile.WriteText(Path.Combine(folder, "summary.csv"), SummaryCsv(summary));
         output.WriteLine();
         output.WriteLine(SummaryTable(summary));
         output.WriteLine($"wrote {Path.Combine(folder, "runs.csv")} and summary.csv");

@@ -61,11 +61,10 @@ public static partial class EvaluationShards
         ArgumentNullException.ThrowIfNull(items);
         ArgumentNullException.ThrowIfNull(runs);
         ArgumentNullException.ThrowIfNull(failed);
-        File.WriteAllText(Path.Combine(folder, "runs.csv"), DetectorEvaluation.RunsCsv(runs));
+        OutputFile.WriteText(Path.Combine(folder, "runs.csv"), DetectorEvaluation.RunsCsv(runs));
         var results = new EvaluationShardResults(shard.Index, shard.Count, SettingsOf(options), [.. items.Select(Describe)], [.. runs], [.. failed]);
         string path = Path.Combine(folder, ResultsFile);
-        File.WriteAllText(path + ".partial", JsonSerializer.Serialize(results, Json));
-        File.Move(path + ".partial", path, overwrite: true);
+        OutputFile.WriteText(path, JsonSerializer.Serialize(results, Json));
     }
 
     /// <summary>Joins the finished shard folders in <paramref name="folder"/> into its runs.csv and summary.csv.</summary>

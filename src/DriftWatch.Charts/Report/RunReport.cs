@@ -101,8 +101,8 @@ public static class RunReport
         try
         {
             Directory.CreateDirectory(folder);
-            File.WriteAllText(html, Html(history, findings, trust, charts, store.Path, now), new UTF8Encoding(false));
-            File.WriteAllText(markdown, Markdown(history, findings, trust, charts, folder, store.Path, now), new UTF8Encoding(false));
+            OutputFile.WriteText(html, Html(history, findings, trust, charts, store.Path, now));
+            OutputFile.WriteText(markdown, Markdown(history, findings, trust, charts, folder, store.Path, now));
         }
         catch (Exception e) when (e is IOException or UnauthorizedAccessException)
         {

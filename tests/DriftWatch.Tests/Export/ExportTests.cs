@@ -167,7 +167,7 @@ public sealed class ExportTests : IClassFixture<DemoStoreFixture>
         string storePath = folder.File("names.litedb");
         string[] names = ["a,b", "say \"hi\"", "two\nlines", "=SUM(A1)", "<script>"];
         new StoreBuilder().WithRun("run, \"quoted\"").WithFeatures(names).WithEpochs(2).Build(storePath);
-        var files = RunExport.Write(Tables(storePath, "run, \"quoted\""), ExportFormat.Csv, folder.File("names.csv"));
+        var files = RunExport.Write(Tables(storePath, "run, \"quoted\""), ExportFormat.Csv, folder.File("names.csv"), CsvText.Exact);
 
         var (_, rows) = ReadCsv(files.Importance);
         Assert.Equal(2 * 2 * names.Length, rows.Count);
