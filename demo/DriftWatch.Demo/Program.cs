@@ -30,6 +30,12 @@ catch (DriftWatchException e)
     Console.Error.WriteLine(OneLine(e.Message));
     return 2;
 }
+catch (UnauthorizedAccessException e)
+{
+    // The store (or another file) is one this user may not read or write; .NET's message names the path.
+    Console.Error.WriteLine($"no permission: {OneLine(e.Message)} Give this user read and write permission on it, or pass another --store.");
+    return 2;
+}
 catch (Exception e)
 {
     Console.Error.WriteLine($"internal error: {OneLine(e.GetType().Name + ": " + e.Message)}");

@@ -140,7 +140,22 @@ internal static class CommonOptions
     /// <summary>Opens the store named by <c>--store</c> for reading.</summary>
     /// <exception cref="StoreException">Missing, foreign or damaged file; a folder.</exception>
     public static RunStore OpenStore(ParseResult parse, Option<string> store) =>
-        RunStore.OpenForReading(parse.GetValue(store)!);
+        OpenForReading(parse.GetValue(store)!);
+
+    /// <summary>Opens a store for reading, as <see cref="RunStore.OpenForReading"/>, and names a file this user may not read in one line.</summary>
+    /// <exception cref="StoreException">Missing, unreadable, foreign or damaged file; a folder.</exception>
+    public static RunStore OpenForReading(string path)
+    {
+        try
+        {
+            return RunStore.OpenForReading(path);
+        }
+        catch (UnauthorizedAccessException e)
+        {
+            // The store's own header check opens the file before LiteDB does, outside the store's permission message.
+            throw new StoreException($"no permission to read store '{DisplayText.Clean(System.IO.Path.GetFullPath(path))}' ({e.Message.ReplaceLineEndings(" ")}); give this user read permission on it (e.g. chmod u+r) or pass another --store", e);
+        }
+    }
 
     private static string DefaultStore()
     {

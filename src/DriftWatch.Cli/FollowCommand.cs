@@ -119,7 +119,7 @@ internal static class FollowCommand
     // The monitor keeps its store to itself; the latest stored verdict is read through a store opened for reading.
     private static Verdict? LatestVerdict(string storePath, int runId)
     {
-        using var reading = RunStore.OpenForReading(storePath);
+        using var reading = CommonOptions.OpenForReading(storePath);
         return reading.Verdicts(runId).Select(VerdictDocuments.FromDocument).LastOrDefault();
     }
 
@@ -127,7 +127,7 @@ internal static class FollowCommand
     {
         if (!File.Exists(storePath))
             return -1;
-        using var reading = RunStore.OpenForReading(storePath);
+        using var reading = CommonOptions.OpenForReading(storePath);
         var document = reading.FindRun(name);
         return document is null ? -1 : reading.Epochs(document.Id).Select(e => e.Epoch).DefaultIfEmpty(-1).Max();
     }

@@ -84,6 +84,7 @@ internal sealed partial class RunFolder
         string schemaPath = System.IO.Path.Combine(path, SchemaFile);
         if (!File.Exists(schemaPath))
             throw new DriftWatchException($"run folder '{folder}' has no {SchemaFile}; the Python helper writes it at the first epoch");
+        RequireRegularFile(schemaPath, "the schema");
         var (schema, target, encode, score, entry, counts) = ReadSchema(schemaPath);
         var probe = ReadProbe(System.IO.Path.Combine(path, ProbeFile), schema);
         return new RunFolder(path, schema, probe, target, encode, score, entry, counts);
@@ -103,6 +104,8 @@ internal sealed partial class RunFolder
             var match = SnapshotName().Match(System.IO.Path.GetFileName(file));
             if (match.Success && int.TryParse(match.Groups[1].Value, NumberStyles.None, CultureInfo.InvariantCulture, out int epoch))
             {
+                // Loading a named pipe would wait for a writer for ever; a device or socket is no snapshot either.
+                RequireRegularFile(file, $"epoch {epoch}'s snapshot");
                 if (!snapshots.TryAdd(epoch, file))
                     throw new DriftWatchException($"run folder '{Path}': epoch {epoch} has two snapshots ('{System.IO.Path.GetFileName(snapshots[epoch])}' and '{System.IO.Path.GetFileName(file)}'); keep one");
             }
@@ -114,6 +117,14 @@ internal sealed partial class RunFolder
         foreach (var epoch in snapshots.Keys.Where(e => !metrics.ContainsKey(e) && (finished || e != newestSnapshot)))
             throw new DriftWatchException($"run folder '{Path}': epoch {epoch} is missing its metrics line in {MetricsFile} (its snapshot {SnapshotFile(epoch)} is there); each epoch needs both");
         return snapshots.Where(s => metrics.ContainsKey(s.Key)).Select(s => new FolderEpoch(s.Key, s.Value, metrics[s.Key])).ToList();
+    }
+
+    /// <summary>Refuses a path that is not a regular file (a named pipe, device or socket), before anything opens it.</summary>
+    /// <exception cref="DriftWatchException">The path is another kind of file; the message names the kind.</exception>
+    internal static void RequireRegularFile(string path, string what)
+    {
+        if (FileKinds.Of(path) is { } kind and not FileKinds.Regular)
+            throw new DriftWatchException($"run folder file '{path}' ({what}) is a {FileKinds.Describe(kind)}, not a regular file; only regular files are read — remove it, or let the training loop write the file itself");
     }
 
     /// <summary>The snapshot file name of an epoch, e.g. <c>epoch-0007.pt</c>.</summary>
@@ -208,6 +219,7 @@ internal sealed partial class RunFolder
     {
         if (!File.Exists(path))
             throw new DriftWatchException($"run folder has no {ProbeFile} ('{path}'); the Python helper writes it with the schema at the first epoch");
+        RequireRegularFile(path, "the probe rows");
         var lines = File.ReadAllLines(path, Encoding.UTF8).Where(l => l.Length > 0).ToList();
         var dense = schema.Features.Where(f => f.Kind == FeatureKind.Dense).Select(f => f.Name).ToList();
         var categorical = schema.Features.Where(f => f.Kind == FeatureKind.Categorical).Select(f => f.Name).ToList();
@@ -306,6 +318,7 @@ internal sealed partial class RunFolder
         var metrics = new Dictionary<int, EpochMetrics>();
         if (!File.Exists(path))
             return metrics;
+        RequireRegularFile(path, "the metrics file");
         string text;
         using (var stream = new FileStream(path, FileMode.Open, FileAccess.Read, FileShare.ReadWrite | FileShare.Delete))
         using (var reader = new StreamReader(stream, Encoding.UTF8))

@@ -84,7 +84,8 @@ public sealed class PythonRunFixture : IDisposable
     private static bool PythonHasTorch() =>
         File.Exists(Python) && RunProcess(Python, "-c", "import torch").Code == 0;
 
-    private static (int Code, string Output) RunProcess(string program, params string[] arguments)
+    /// <summary>Runs a program to its end; its exit code and its standard output followed by its standard error.</summary>
+    internal static (int Code, string Output) RunProcess(string program, params string[] arguments)
     {
         var start = new ProcessStartInfo(program) { RedirectStandardOutput = true, RedirectStandardError = true, UseShellExecute = false };
         foreach (string argument in arguments)
