@@ -113,6 +113,28 @@ public sealed class HostileFileTests
         Assert.Contains(",@SUM(A1),", exact);
     }
 
+    [Fact]
+    public void NoTextOutputCarriesAnEscapeOrNulFromAName()
+    {
+        using var temp = new TempFolder();
+        string storePath = temp.File("names.litedb");
+        const string Run = "night\u001B]0;owned\u0007\0";
+        new StoreBuilder().WithRun(Run).WithFeatures("esc\u001B[2Jclear", "nul\0x", "bell\u0007").WithEpochs(2).Build(storePath);
+        var texts = new List<string>();
+        foreach (var args in new[] { ["runs"], ["show", Run], ["check", Run], ["check", Run, "--json"], new[] { "report", Run, "--out", temp.File("report") } })
+        {
+            var (code, output, error) = SampleStore.Cli([.. args, "--store", storePath]);
+            Assert.True(code is ExitCodes.Fine or ExitCodes.Halt, $"{args[0]}: exit {code}: {error}");
+            texts.Add(output + error);
+        }
+        texts.AddRange(Directory.GetFiles(temp.File("report"), "*-report.*").Select(File.ReadAllText));
+
+        // Already so (DisplayText.Clean escapes every control character, JSON escapes them); pinned here with the attack.
+        Assert.Equal(7, texts.Count);
+        Assert.Contains("night\\u001B]0;owned", texts[0]); // the name is shown, escaped
+        Assert.All(texts, t => Assert.DoesNotContain(t, c => c is '\u001B' or '\0' or '\u0007'));
+    }
+
     // Runs dotnet ASSEMBLY args… as this user without the capabilities that let root read any file (CAP_DAC_OVERRIDE,
     // CAP_DAC_READ_SEARCH), so a file without read permission is unreadable even when the tests run as root.
     private static (int Code, string Output) RunWithoutReadOverride(string[] args)
