@@ -83,9 +83,7 @@ public sealed class HostileFileTests
     public void TheCsvExportKeepsFormulasAndControlCharactersOutOfASpreadsheetUnlessAskedForExactNames()
     {
         using var temp = new TempFolder();
-        string storePath = temp.File("names.litedb");
-        string[] names = ["=HYPERLINK(\"http://x\")", "+1", "-2+3", "@SUM(A1)", "esc\u001B[31mred", "nul\0x", "plain"];
-        new StoreBuilder().WithRun("=run").WithFeatures(names).WithEpochs(1).Build(storePath);
+        string storePath = NamedStore(temp, "=run", "=HYPERLINK(\"http://x\")", "+1", "-2+3", "@SUM(A1)", "esc\u001B[31mred", "nul\0x", "plain");
 
         var (safeCode, _, safeError) = SampleStore.Cli("export", "=run", "--store", storePath, "--out", temp.File("safe.csv"));
         var (exactCode, _, exactError) = SampleStore.Cli("export", "=run", "--store", storePath, "--out", temp.File("exact.csv"), "--exact-names");
@@ -117,9 +115,8 @@ public sealed class HostileFileTests
     public void NoTextOutputCarriesAnEscapeOrNulFromAName()
     {
         using var temp = new TempFolder();
-        string storePath = temp.File("names.litedb");
         const string Run = "night\u001B]0;owned\u0007\0";
-        new StoreBuilder().WithRun(Run).WithFeatures("esc\u001B[2Jclear", "nul\0x", "bell\u0007").WithEpochs(2).Build(storePath);
+        string storePath = NamedStore(temp, Run, "esc\u001B[2Jclear", "nul\0x", "bell\u0007");
         var texts = new List<string>();
         foreach (var args in new[] { ["runs"], ["show", Run], ["check", Run], ["check", Run, "--json"], new[] { "report", Run, "--out", temp.File("report") } })
         {
@@ -133,6 +130,14 @@ public sealed class HostileFileTests
         Assert.Equal(7, texts.Count);
         Assert.Contains("night\\u001B]0;owned", texts[0]); // the name is shown, escaped
         Assert.All(texts, t => Assert.DoesNotContain(t, c => c is '\u001B' or '\0' or '\u0007'));
+    }
+
+    // A store with one run of two epochs under hostile names.
+    private static string NamedStore(TempFolder temp, string run, params string[] features)
+    {
+        string path = temp.File("names.litedb");
+        new StoreBuilder().WithRun(run).WithFeatures(features).WithEpochs(2).Build(path);
+        return path;
     }
 
     // Runs dotnet ASSEMBLY args… as this user without the capabilities that let root read any file (CAP_DAC_OVERRIDE,
