@@ -214,4 +214,28 @@ public sealed class RunIdentityTests
         using var reading = RunStore.OpenForReading(store);
         Assert.Equal([SampleStore.Run], reading.StoredRuns().Select(r => r.Name));
     }
+
+    [Fact]
+    public void TheDemoResumingANameThatDiffersInCaseStartsThatRunInsteadOfContinuingTheOther()
+    {
+        using var temp = new TempFolder();
+        string store = temp.File("s.litedb");
+        string[] common = ["--small", "--rows", "100", "--steps", "8", "--store", store, "--epochs", "1"];
+        Demo([.. common, "--run", "Night-7"]);
+
+        string output = Demo([.. common, "--run", "night-7", "--resume"]);
+
+        Assert.Contains("run 'night-7' has no complete epoch yet; it starts at epoch 1", output);
+        using var reading = RunStore.OpenForReading(store);
+        Assert.Equal(["Night-7", "night-7"], reading.StoredRuns().Select(r => r.Name));
+        Assert.Equal([1], reading.StoredEpochs("Night-7").Select(e => e.Epoch));
+        Assert.Equal([1], reading.StoredEpochs("night-7").Select(e => e.Epoch));
+    }
+
+    private static string Demo(string[] args)
+    {
+        var output = new StringWriter();
+        Assert.Equal(0, DriftWatch.Demo.GreenhouseTraining.Run(DriftWatch.Demo.DemoOptions.Parse(args), output));
+        return output.ToString();
+    }
 }
