@@ -136,7 +136,7 @@ public sealed class RunStore : IDisposable
         return Guard(() =>
         {
             var run = NamesAreOrdinal
-                ? RunsCollection.FindOne(r => r.Name == name)
+                ? RunsCollection.FindOne(BsonExpression.Create("$.Name = @0", new BsonValue(name)))
                 : RunsCollection.FindAll().FirstOrDefault(r => string.Equals(r.Name, name, StringComparison.Ordinal));
             return run is not null && string.Equals(run.Name, name, StringComparison.Ordinal) ? StoreChecks.Run(Path, run) : null;
         });

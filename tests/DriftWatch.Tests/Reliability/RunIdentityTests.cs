@@ -19,6 +19,10 @@ public sealed class RunIdentityTests
     // LiteDB 5's header page keeps the collation's compare options at byte 84 (EnginePragmas.P_COLLATION_SORT).
     private const int CollationSortOffset = 84;
 
+    // The culture's LCID sits just before it (EnginePragmas.P_COLLATION_LCID); 1033 is en-US.
+    private const int CollationLcidOffset = 80;
+    private const int EnglishUnitedStatesLcid = 1033;
+
     private readonly ITestOutputHelper _output;
 
     public RunIdentityTests(ITestOutputHelper output) => _output = output;
@@ -184,6 +188,28 @@ public sealed class RunIdentityTests
             _output.WriteLine("  missed " + miss);
         Assert.Empty(missed);
         Assert.Equal(bytes, File.ReadAllBytes(store)); // a reader never writes, not even to mend the index
+    }
+
+    [Fact]
+    public void AStoreCreatedUnderACultureOpensAndFindsItsRunsWithoutBeingChanged()
+    {
+        using var temp = new TempFolder();
+        string store = SampleStore.CopyTo(temp.Path);
+        int epochs;
+        using (var reading = RunStore.OpenForReading(store))
+            epochs = reading.StoredEpochs(SampleStore.Run).Count;
+        // What a training program with ICU and LANG=en_US leaves in the header: LiteDB records its culture's LCID (en-US).
+        var bytes = File.ReadAllBytes(store);
+        Assert.Equal(CultureInfo.InvariantCulture.LCID, BinaryPrimitives.ReadInt32LittleEndian(bytes.AsSpan(CollationLcidOffset)));
+        BinaryPrimitives.WriteInt32LittleEndian(bytes.AsSpan(CollationLcidOffset), EnglishUnitedStatesLcid);
+        File.WriteAllBytes(store, bytes);
+
+        using (var reading = RunStore.OpenForReading(store))
+            Assert.Equal(epochs, reading.StoredEpochs(SampleStore.Run).Count);
+        var (code, _, error) = SampleStore.Cli("check", SampleStore.Run, "--store", store);
+
+        Assert.True(code is ExitCodes.Fine or ExitCodes.Halt, error);
+        Assert.Equal(bytes, File.ReadAllBytes(store));
     }
 
     [Fact]
