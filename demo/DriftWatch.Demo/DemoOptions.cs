@@ -66,8 +66,8 @@ internal sealed record DemoOptions
           --seed N           seed of the data, the weights and the probe set, 0–2147483647 (default: {DefaultSeed})
           --rows N           training rows, 100–100000 (default: {DefaultRows}); validation rows stay 1000
           --steps N          Integrated Gradients steps, 2–1024 (default: {DefaultSteps}; --small: {SmallSteps})
-          --run NAME         run name in the store (default: scenario and seed, e.g. default-seed1, plus
-                             -small, -rowsN or -stepsN when those differ from the defaults)
+          --run NAME         run name in the store, matched exactly: Night-7 and night-7 are two runs (default: scenario
+                             and seed, e.g. default-seed1, plus -small, -rowsN or -stepsN when those differ from the defaults)
           --resume           continue the run named by --run (or the derived name) from the epoch after its last complete
                              one: the weights come from that epoch's snapshot in the store, Adam's state from
                              STORE.training-state/ (fresh when missing); without a stored epoch it starts at epoch 1

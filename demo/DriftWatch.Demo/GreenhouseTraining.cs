@@ -47,12 +47,14 @@ internal static class GreenhouseTraining
                 $"DriftWatch demo, scenario {GreenhouseVariants.NameOf(options.Variant)}: {scenario.Describe()}. Model: embeddings {model.EmbeddingWidth} wide, MLP {model.Hidden}-{model.Hidden} ReLU, one logit; Adam lr {GreenhouseTrainer.LearningRate}, batch {GreenhouseTrainer.BatchSize}."),
         };
 
-        using var monitor = new TrainingMonitor(monitorOptions);
-        if (monitor.LastEpoch >= 0 && !options.Resume)
+        // The monitor refuses a stored run without Resume too; checked here first so the refusal names the demo's option.
+        int lastStored = StoredLastEpoch(monitorOptions.StorePath, options.RunName);
+        if (lastStored >= 0 && !options.Resume)
         {
             throw new DriftWatchException(
-                $"run '{options.RunName}' already has epochs up to {monitor.LastEpoch} in '{monitorOptions.StorePath}'; pass --resume to continue it, --run NAME for a new run, or delete the store file to start over");
+                $"run '{options.RunName}' already has epochs up to {lastStored} in '{monitorOptions.StorePath}'; pass --resume to continue it, --run NAME for a new run, or delete the store file to start over");
         }
+        using var monitor = new TrainingMonitor(monitorOptions with { Resume = options.Resume });
         var optimizerState = new OptimizerStateFiles(monitorOptions.StorePath, options.RunName, output);
         int firstEpoch = 1;
         string? resumed = null;
@@ -125,6 +127,16 @@ internal static class GreenhouseTraining
     }
 
     // The trend chart beside the store: share of importance per feature over the epochs, losses beneath.
+    // The last complete epoch of the run with exactly this name, −1 when the store or the run is not there; reads only.
+    private static int StoredLastEpoch(string storePath, string runName)
+    {
+        if (!File.Exists(storePath))
+            return -1;
+        using var reading = RunStore.OpenForReading(storePath);
+        var run = reading.FindRun(runName);
+        return run is null ? -1 : reading.Epochs(run.Id).Select(e => e.Epoch).DefaultIfEmpty(-1).Max();
+    }
+
     private static string RenderTrend(RunStore store, string runName, string storePath)
     {
         var history = Charts.RunHistory.Load(store, runName);

@@ -25,13 +25,23 @@ public sealed record MonitorOptions
             : throw new DriftWatchException("StorePath is empty; give the monitor a store file path such as 'runs.litedb'");
     }
 
-    /// <summary>The run's name in the store. Reusing a name resumes that run (same schema and probe set required).</summary>
+    /// <summary>
+    /// The run's name in the store, compared exactly (ordinal, case-sensitive): <c>Night-7</c> and <c>night-7</c> are two
+    /// runs. A name already in the store with complete epochs is continued only with <see cref="Resume"/> set.
+    /// </summary>
     /// <exception cref="DriftWatchException">Empty.</exception>
     public required string RunName
     {
         get;
         init => field = !string.IsNullOrWhiteSpace(value) ? value : throw new DriftWatchException("RunName is empty; give the run a name");
     }
+
+    /// <summary>
+    /// Continue the run named <see cref="RunName"/> when the store already holds epochs of it: the loop goes on from
+    /// <see cref="TrainingMonitor.LastEpoch"/> + 1 (same schema, probe set and methods required). Default false: a run
+    /// name with stored epochs is refused when the monitor is built, so a new training never mixes into an earlier one.
+    /// </summary>
+    public bool Resume { get; init; }
 
     /// <summary>The feature schema of the watched model.</summary>
     /// <exception cref="DriftWatchException">Null.</exception>

@@ -55,6 +55,8 @@ public sealed class TrainingMonitor : IDisposable
         {
             var wanted = Describe(options);
             var existing = _store.FindRun(options.RunName);
+            if (existing is not null && !options.Resume)
+                RefuseUnlessNoEpochs(existing);
             _run = existing is null ? _store.AddRun(wanted) : Resume(existing, wanted);
             if (options.WatchedModel is not null)
                 CheckModel(options.WatchedModel); // a run name reused by a different model fails here, before any epoch
@@ -84,7 +86,10 @@ public sealed class TrainingMonitor : IDisposable
 
     /// <summary>Records the epoch: snapshot, attribution maps, metrics, verdict. Call once per epoch, after validation.</summary>
     /// <param name="model">The model being trained, in whatever mode the loop left it (restored afterwards).</param>
-    /// <param name="epoch">The epoch number, increasing; repeating the last epoch replaces it (a resumed run).</param>
+    /// <param name="epoch">
+    /// The epoch number, increasing. A stored epoch is never replaced, except the last one when it was stored
+    /// incomplete (its attribution or snapshot failed): repeating that epoch redoes it.
+    /// </param>
     /// <param name="metrics">The epoch's losses and other metrics.</param>
     /// <returns>
     /// The gate's verdict; stop training on <see cref="VerdictKind.Halt"/> if you wish. With
@@ -200,13 +205,32 @@ public sealed class TrainingMonitor : IDisposable
         ArgumentNullException.ThrowIfNull(model);
         ArgumentNullException.ThrowIfNull(metrics);
         if (epoch < _lastEpoch)
-            throw new DriftWatchException($"epoch {epoch} comes after epoch {_lastEpoch}; epochs must increase (repeat the last one to replace it)");
+            throw new DriftWatchException($"epoch {epoch} comes before epoch {_lastEpoch}, the last stored epoch of run '{_run.Name}'; epochs must increase: pass epoch {_lastEpoch + 1} or later");
         if (epoch == _lastEpoch)
-            _detector = CatchUp(before: epoch); // a repeated epoch: the detector's state must not include its earlier attempt
+        {
+            if (IsComplete(_store.Epochs(_run.Id)[^1]))
+                throw new DriftWatchException($"epoch {epoch} of run '{_run.Name}' is stored complete and is never replaced; pass epoch {epoch + 1} or later");
+            _detector = CatchUp(before: epoch); // an incomplete epoch redone: the detector's state must not include its earlier attempt
+        }
         CheckModel(model);
     }
 
     private bool IsAttributed(int epoch) => epoch % _options.AttributeEvery == 0;
+
+    // A stored epoch is complete unless a step of it failed: the failures are its problems (attribution, snapshot).
+    private static bool IsComplete(EpochDocument stored) => stored.Problems is not { Count: > 0 };
+
+    // A run name with stored epochs is continued only when asked: a new training reusing the name would otherwise mix
+    // into the earlier one's history. Checked before the run's record is touched, so a refusal changes nothing.
+    private void RefuseUnlessNoEpochs(RunDocument existing)
+    {
+        int last = _store.Epochs(existing.Id).Select(e => e.Epoch).DefaultIfEmpty(-1).Max();
+        if (last >= 0)
+        {
+            throw new DriftWatchException(
+                $"run '{existing.Name}' already has epochs up to {last} in '{_store.Path}'; set MonitorOptions.Resume = true to continue it from epoch {last + 1}, or choose a new run name");
+        }
+    }
 
     // The epoch's maps, quality figures and layer maps; a step that failed is one monitoring-failure finding.
     private EpochMaps Attribute(IWatchedModel model, int epoch, List<Finding> failures)

@@ -15,7 +15,8 @@ public static class CliApp
         ArgumentNullException.ThrowIfNull(output);
         ArgumentNullException.ThrowIfNull(error);
         var root = Build();
-        var parse = root.Parse(args);
+        // No response files: a run name starting with '@' ('@SUM(1+1)', '@night') is a run name, not a file to read arguments from.
+        var parse = root.Parse(args, new ParserConfiguration { ResponseFileTokenReplacer = null });
         if (parse.Errors.Count > 0 && parse.Action is not HelpAction)
         {
             error.WriteLine($"error: {ParseProblem(root, parse)} (see '{CommandPath(parse)} --help')");

@@ -135,7 +135,7 @@ internal static class CommonOptions
     public static Option<bool> Json(string what) => new("--json") { Description = $"Print {what} as JSON instead of text, for scripts." };
 
     /// <summary>The <c>run</c> argument: a run's name as stored.</summary>
-    public static Argument<string> Run() => new("run") { Description = "The run's name, as 'driftwatch runs' lists it." };
+    public static Argument<string> Run() => new("run") { Description = "The run's name, exactly as 'driftwatch runs' lists it (case matters)." };
 
     /// <summary>Opens the store named by <c>--store</c> for reading.</summary>
     /// <exception cref="StoreException">Missing, foreign or damaged file; a folder.</exception>

@@ -78,6 +78,8 @@ internal static class FollowCommand
                 // The snapshots stay in the run folder as TorchScript files; the store keeps their folder in the description.
                 SaveSnapshots = false,
                 Strict = true,
+                // follow continues its own run: epochs already stored are skipped, the folder's later ones appended.
+                Resume = true,
                 Description = $"followed from {runFolder.Path} (TorchScript snapshots stay there)",
             };
             using var monitor = new TrainingMonitor(options);

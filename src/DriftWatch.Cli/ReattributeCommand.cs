@@ -225,12 +225,12 @@ internal static class ReattributeCommand
         string settings = method.Settings.Count == 0 ? "" : " (" + string.Join(", ", method.Settings.Select(s => s.Key + "=" + s.Value)) + ")";
         output.WriteLine($"run {DisplayText.Clean(run.Name)}: {Formats.Integer(stored)} of {Formats.Integer(results.Count)} epochs re-attributed with {method.Name}{DisplayText.Clean(settings)}, stored as '{DisplayText.Clean(request.Name)}'");
         output.WriteLine($"  model rebuilt by {DisplayText.Clean(factory.FullName ?? factory.Name)} from the run's settings; {results.Sum(r => r.Seconds).ToString("0.0", CultureInfo.InvariantCulture)} s");
-        var already = results.Where(r => r.Outcome == ReattributionOutcome.AlreadyStored).Select(r => Formats.Integer(r.Epoch)).ToList();
+        var already = results.Where(r => r.Outcome == ReattributionOutcome.AlreadyStored).Select(r => r.Epoch).ToList();
         if (already.Count > 0)
-            output.WriteLine($"  already stored under that name, left as they were: epochs {string.Join(", ", already)}");
-        var missing = results.Where(r => r.Outcome == ReattributionOutcome.NoSnapshot).Select(r => Formats.Integer(r.Epoch)).ToList();
+            output.WriteLine($"  already stored under that name, left as they were: epochs {Shard.Describe(already)}");
+        var missing = results.Where(r => r.Outcome == ReattributionOutcome.NoSnapshot).Select(r => r.Epoch).ToList();
         if (missing.Count > 0)
-            output.WriteLine($"  no weight snapshot, skipped: epochs {string.Join(", ", missing)}");
+            output.WriteLine($"  no weight snapshot, skipped: epochs {Shard.Describe(missing)}");
         WriteProblems(output, results);
         output.WriteLine($"  see them with: driftwatch show {Quote(run.Name)} --method {Quote(request.Name)} --store {Quote(store)}");
         output.WriteLine("  Attributions describe the model, not causes in the data.");

@@ -47,6 +47,7 @@ public sealed class RunStore : IDisposable
     private static BsonMapper Mapper => Mapping.Mapper;
 
     private readonly LiteDatabase _database;
+    private bool? _namesAreOrdinal;
 
     private RunStore(LiteDatabase database, string path)
     {
@@ -122,8 +123,28 @@ public sealed class RunStore : IDisposable
     /// <summary>All runs, in creation order.</summary>
     internal IReadOnlyList<RunDocument> Runs() => Guard(() => RunsCollection.FindAll().Select(r => StoreChecks.Run(Path, r)).OrderBy(r => r.Id).ToList());
 
-    /// <summary>The run with this name, or null.</summary>
-    internal RunDocument? FindRun(string name) => Guard(() => RunsCollection.FindOne(r => r.Name == name) is { } run ? StoreChecks.Run(Path, run) : null);
+    /// <summary>The run with exactly this name (ordinal, case-sensitive), or null.</summary>
+    /// <remarks>
+    /// In a store created with ordinal names the name index finds it. An older store's index compares names by the culture
+    /// of the process that wrote it, ignoring case, in an order this process may not reproduce (ICU against invariant
+    /// mode), so a lookup through it can miss a name that is there or find another that differs in case: such a store's
+    /// runs are scanned instead, which reads every run record and writes nothing.
+    /// </remarks>
+    internal RunDocument? FindRun(string name)
+    {
+        ArgumentNullException.ThrowIfNull(name);
+        return Guard(() =>
+        {
+            var run = NamesAreOrdinal
+                ? RunsCollection.FindOne(BsonExpression.Create("$.Name = @0", new BsonValue(name)))
+                : RunsCollection.FindAll().FirstOrDefault(r => string.Equals(r.Name, name, StringComparison.Ordinal));
+            return run is not null && string.Equals(run.Name, name, StringComparison.Ordinal) ? StoreChecks.Run(Path, run) : null;
+        });
+    }
+
+    // Whether the file's collation compares strings ordinally (every store this version creates), read once from its header.
+    private bool NamesAreOrdinal => _namesAreOrdinal ??= Guard(() =>
+        _database.Pragma("COLLATION").AsString.EndsWith("/" + nameof(System.Globalization.CompareOptions.Ordinal), StringComparison.Ordinal));
 
     /// <summary>The run with this name.</summary>
     /// <exception cref="StoreException">No such run; the message lists the runs there are.</exception>
@@ -145,6 +166,12 @@ public sealed class RunStore : IDisposable
         {
             if (FindRun(run.Name) is not null)
                 throw new StoreException($"a run named '{run.Name}' already exists in '{Path}'");
+            // An older store's unique name index ignores case: the insert would fail with LiteDB's duplicate-key message.
+            if (!NamesAreOrdinal && Runs().FirstOrDefault(r => string.Equals(r.Name, run.Name, StringComparison.OrdinalIgnoreCase)) is { } other)
+            {
+                throw new StoreException(
+                    $"store '{Path}' was created by an older DriftWatch whose run names ignore case, so run '{run.Name}' cannot be stored beside run '{other.Name}'; choose a name that differs in more than case, or use a new store file");
+            }
             var copy = run with { Id = 0 };
             RunsCollection.Insert(copy);
             return copy;

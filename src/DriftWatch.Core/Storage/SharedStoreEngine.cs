@@ -24,9 +24,16 @@ internal sealed class SharedStoreEngine : ILiteEngine
 
     public SharedStoreEngine(string fullPath, bool readOnly)
     {
-        _settings = new EngineSettings { Filename = fullPath, ReadOnly = readOnly };
+        // A new file compares strings ordinally (names, keys, every query): LiteDB's default is the writing process's
+        // culture, ignoring case, which made Night-7 and night-7 one run and ordered the name index by whatever culture
+        // library (ICU or none) that process had. The collation is fixed when the file is created; an existing file keeps
+        // its own (LiteDB refuses to open a file whose collation differs from one given in the settings).
+        _settings = new EngineSettings { Filename = fullPath, ReadOnly = readOnly, Collation = File.Exists(fullPath) ? null : OrdinalCollation };
         _mutex = new Mutex(initiallyOwned: false, MutexName(fullPath));
     }
+
+    /// <summary>The collation of every store file this version creates: ordinal, case-sensitive, the same under any culture.</summary>
+    internal static Collation OrdinalCollation { get; } = new(System.Globalization.CultureInfo.InvariantCulture.LCID, System.Globalization.CompareOptions.Ordinal);
 
     /// <summary>The name LiteDB 5's shared mode gives the mutex of a file: its full path, lower case, SHA-1 in upper-case hex.</summary>
     internal static string MutexName(string fullPath) =>

@@ -45,6 +45,8 @@ public sealed class ReattributeCommandTests
         Assert.Contains("already stored under that name, left as they were: epochs 3", from.Output); // factory found without --model-assembly: already loaded
         Assert.Contains("1 of 1 epochs re-attributed with saliency", upTo.Output);
         Assert.DoesNotContain("already stored", upTo.Output);
+        var again = Run("reattribute", DemoStoreFixture.CleanRun, "--store", store, "--method", "smoothgrad", "--setting", "samples=4", "--epochs", "2..");
+        Assert.Matches(@"already stored under that name, left as they were: epochs 2\.\.\d+\r?$", again.Output.Split('\n').First(l => l.Contains("already stored", StringComparison.Ordinal)));
 
         var show = Run("show", DemoStoreFixture.CleanRun, "--store", store, "--method", "re-smoothgrad");
         Assert.Equal(ExitCodes.Fine, show.Code);

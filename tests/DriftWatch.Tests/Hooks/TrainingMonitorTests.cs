@@ -222,14 +222,15 @@ public sealed class TrainingMonitorTests
             first.EndEpoch(model, 1, new EpochMetrics(0.6, 0.7));
         }
 
-        using var resumed = new TrainingMonitor(Options(temp.File("s.litedb"), model));
+        using var resumed = new TrainingMonitor(Options(temp.File("s.litedb"), model) with { Resume = true });
         Assert.Equal(1, resumed.LastEpoch);
-        resumed.EndEpoch(model, 1, new EpochMetrics(0.55, 0.7)); // the interrupted epoch again
+        var repeated = resumed.EndEpoch(model, 1, new EpochMetrics(0.55, 0.7)); // a complete epoch again: refused, kept as stored
         resumed.EndEpoch(model, 2, new EpochMetrics(0.5, 0.7));
 
+        Assert.Contains("is stored complete and is never replaced", Assert.Single(repeated.Reasons));
         Assert.Single(resumed.Store.Runs());
         Assert.Equal([0, 1, 2], resumed.Store.Epochs(resumed.Run.Id).Select(e => e.Epoch));
-        Assert.Equal(0.55, resumed.Store.Epochs(resumed.Run.Id)[1].Metrics[EpochMetrics.TrainLossKey]);
+        Assert.Equal(0.6, resumed.Store.Epochs(resumed.Run.Id)[1].Metrics[EpochMetrics.TrainLossKey]);
         Assert.Equal(3, resumed.Store.Maps(resumed.Run.Id).Count);
     }
 
@@ -241,7 +242,7 @@ public sealed class TrainingMonitorTests
         using (var first = new TrainingMonitor(Options(temp.File("s.litedb"), model)))
             first.EndEpoch(model, 0, new EpochMetrics(0.7, 0.7));
 
-        var e = Assert.Throws<DriftWatchException>(() => new TrainingMonitor(Options(temp.File("s.litedb"), model) with { Probe = Probe(perHalf: 10) }));
+        var e = Assert.Throws<DriftWatchException>(() => new TrainingMonitor(Options(temp.File("s.litedb"), model) with { Probe = Probe(perHalf: 10), Resume = true }));
 
         Assert.Contains("different probe set", e.Message);
     }

@@ -91,13 +91,13 @@ public sealed class LayerMonitorTests
             monitor.EndEpoch(model, 1, new EpochMetrics(0.5, 0.6));
 
         // The same layers in another order resume; another set of layers or other layer settings is refused, unchanged.
-        using (var monitor = new TrainingMonitor(Options(path, model) with { WatchedLayers = ["_body.3", "_body.1"] }))
+        using (var monitor = new TrainingMonitor(Options(path, model) with { WatchedLayers = ["_body.3", "_body.1"], Resume = true }))
             monitor.EndEpoch(model, 2, new EpochMetrics(0.5, 0.6));
-        var fewer = Assert.Throws<DriftWatchException>(() => new TrainingMonitor(Options(path, model) with { WatchedLayers = ["_body.1"] }));
+        var fewer = Assert.Throws<DriftWatchException>(() => new TrainingMonitor(Options(path, model) with { WatchedLayers = ["_body.1"], Resume = true }));
         Assert.Contains("different set of watched layers (_body.1, _body.3 stored, _body.1 given)", fewer.Message, StringComparison.Ordinal);
-        var none = Assert.Throws<DriftWatchException>(() => new TrainingMonitor(Options(path, model) with { WatchedLayers = [] }));
+        var none = Assert.Throws<DriftWatchException>(() => new TrainingMonitor(Options(path, model) with { WatchedLayers = [], Resume = true }));
         Assert.Contains("(_body.1, _body.3 stored, none given)", none.Message, StringComparison.Ordinal);
-        var settings = Assert.Throws<DriftWatchException>(() => new TrainingMonitor(Options(path, model) with { LayerMethods = [new LayerConductance(32), new LayerActivation()] }));
+        var settings = Assert.Throws<DriftWatchException>(() => new TrainingMonitor(Options(path, model) with { LayerMethods = [new LayerConductance(32), new LayerActivation()], Resume = true }));
         Assert.Contains("different set of layer method settings", settings.Message, StringComparison.Ordinal);
 
         using var store = RunStore.OpenForReading(path);
@@ -124,7 +124,7 @@ public sealed class LayerMonitorTests
             store.UpdateRun(run);
         }
 
-        using (var monitor = new TrainingMonitor(Options(path, model)))
+        using (var monitor = new TrainingMonitor(Options(path, model) with { Resume = true }))
             monitor.EndEpoch(model, 2, new EpochMetrics(0.5, 0.6));
 
         using var reader = RunStore.OpenForReading(path);

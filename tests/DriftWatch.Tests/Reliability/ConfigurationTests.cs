@@ -30,6 +30,7 @@ public sealed class ConfigurationTests
         Probe = Probe(),
         Methods = [new IntegratedGradients(8)],
         WatchedModel = model,
+        Resume = true, // the cases below reopen the run: what they change is refused, not the reopening itself
     };
 
     [Fact]
@@ -47,6 +48,7 @@ public sealed class ConfigurationTests
 
         var cases = new (string What, Func<object?> Act, string Expected)[]
         {
+            ("run name with stored epochs, without Resume", () => new TrainingMonitor(Options(store, model) with { Resume = false }), "set MonitorOptions.Resume = true to continue it from epoch 1"),
             ("run name used by a different model", () => new TrainingMonitor(Options(store, wider)), "model of another shape"),
             ("model whose schema is not the options' schema", () => new TrainingMonitor(Options(store, model) with { WatchedModel = other }), "WatchedModel's schema differs"),
             ("probe wider than the schema", () => new TrainingMonitor(Options(store, model) with { Probe = new ProbeSet(wide, wide) }), "4 dense"),
@@ -90,7 +92,7 @@ public sealed class ConfigurationTests
 
         var e = Assert.Throws<DriftWatchException>(() => monitor.EndEpoch(model, 2, new EpochMetrics(0.6, 0.7)));
 
-        Assert.Contains("epoch 2 comes after epoch 4", e.Message);
+        Assert.Contains("epoch 2 comes before epoch 4, the last stored epoch of run 'night-1'; epochs must increase: pass epoch 5 or later", e.Message);
         Assert.Equal(before, File.ReadAllBytes(store));
         Assert.Equal(4, monitor.LastEpoch);
     }

@@ -91,7 +91,7 @@ public sealed class ResumeTests
             });
         }
 
-        using var resumed = new TrainingMonitor(options);
+        using var resumed = new TrainingMonitor(options with { Resume = true });
         var verdict = resumed.EndEpoch(model, 1, new EpochMetrics(0.6, 0.7));
 
         Assert.DoesNotContain(verdict.Findings, f => f.Kind == DriftWatch.Detection.FindingKind.MonitoringFailure);
