@@ -546,10 +546,16 @@ public sealed class RunStore : IDisposable
         var header = new byte[LastPageOffset + 4];
         int read;
         long length;
-        using (var stream = new FileStream(full, FileMode.Open, FileAccess.Read, FileShare.ReadWrite | FileShare.Delete))
+        try
         {
+            using var stream = new FileStream(full, FileMode.Open, FileAccess.Read, FileShare.ReadWrite | FileShare.Delete);
             read = stream.ReadAtLeast(header, header.Length, throwOnEndOfStream: false);
             length = stream.Length; // after the header: a writer only ever lengthens the file, so this is at least the header's length unless it was cut
+        }
+        catch (UnauthorizedAccessException e)
+        {
+            // Every command that opens a store gets this one line, not only those that go through the CLI's common option.
+            throw new StoreException($"no permission to read store '{full}' ({e.Message.ReplaceLineEndings(" ")}); give this user read permission on it (e.g. chmod u+r) or pass another --store", e);
         }
         if (read < 32 + LiteDbSignature.Length || !header.AsSpan(32, LiteDbSignature.Length).SequenceEqual(LiteDbSignature))
             throw new StoreException($"'{full}' is not a DriftWatch store (not a LiteDB file); pass the .litedb file a monitored run wrote");
