@@ -1,4 +1,3 @@
-using System.Collections.Immutable;
 using System.Globalization;
 using ScottPlot;
 using ScottPlot.TickGenerators;
@@ -100,24 +99,25 @@ public sealed class HeatmapChart : IChart
         }
         else
         {
-            // One column per stored epoch: a run whose epoch numbers jump (a loop passing its global step) costs its
-            // epoch count, not its epoch range. Consecutive numbers keep x = epoch; otherwise x is the column's position.
+            // Epoch numbers far apart (a loop passing its step count) get one column per stored epoch, not per number.
             var epochs = history.Epochs;
-            int columns = epochs.Length;
-            bool byNumber = (long)last - first + 1 == columns;
-            double X(int column) => byNumber ? epochs[column].Epoch : column;
+            var layout = EpochColumns.Of(epochs.Select(e => e.Epoch));
+            int columns = layout.Count;
             var cells = new double[rows.Count, columns];
             for (int r = 0; r < rows.Count; r++)
             {
                 for (int c = 0; c < columns; c++)
-                    cells[r, c] = epochs[c].IsAttributed ? rows[r].Sum(f => CellValue(epochs[c], f)) : double.NaN;
+                {
+                    int position = layout.Position(c);
+                    cells[r, c] = position >= 0 && epochs[position].IsAttributed ? rows[r].Sum(f => CellValue(epochs[position], f)) : double.NaN;
+                }
             }
 
             var finite = cells.Cast<double>().Where(double.IsFinite).ToList();
             double top = finite.Count == 0 ? 1 : finite.Select(Math.Abs).Max();
             if (top <= 0)
                 top = 1;
-            var map = ChartKit.CellGrid(plot, cells, X(0), X(columns - 1));
+            var map = ChartKit.CellGrid(plot, cells, layout.First, layout.Last);
             map.NaNCellColor = Colors.White;
             map.Colormap = Value == HeatmapValue.Share ? new SequentialColormap() : new DivergingColormap();
             map.ManualRange = Value == HeatmapValue.Share ? new ScottPlot.Range(0, top) : new ScottPlot.Range(-top, top);
@@ -152,11 +152,11 @@ public sealed class HeatmapChart : IChart
                 if (rows[r].Length != 1)
                     continue;
                 string name = history.FeatureNames[rows[r][0]];
-                for (int c = 0; c < columns; c++)
+                for (int position = 0; position < epochs.Length; position++)
                 {
-                    if (!epochs[c].Findings.Any(f => f.Feature == name))
+                    if (!epochs[position].Findings.Any(f => f.Feature == name))
                         continue;
-                    flaggedXs.Add(X(c));
+                    flaggedXs.Add(layout.XOfPosition(position));
                     flaggedYs.Add(rows.Count - 1 - r);
                 }
             }
@@ -168,28 +168,17 @@ public sealed class HeatmapChart : IChart
             }
             if (cells.Cast<double>().Any(double.IsNaN))
                 key.Legend.ManualItems.Add(ChartKit.FillItem("not attributed", Colors.White));
-            plot.Axes.SetLimitsX(X(0) - 0.5, X(columns - 1) + 0.5);
+            plot.Axes.SetLimitsX(layout.First - 0.5, layout.Last + 0.5);
             plot.Axes.SetLimitsY(-0.5, rows.Count - 0.5);
-            if (!byNumber)
+            if (layout.Ticks(size.Width) is { } epochTicks)
             {
-                plot.Axes.Bottom.TickGenerator = StoredEpochTicks(epochs, size.Width);
-                title[1] += "; one column per stored epoch, in order (epoch numbers jump)";
+                plot.Axes.Bottom.TickGenerator = epochTicks;
+                title[1] += "; " + layout.Note;
             }
         }
         plot.XLabel("epoch", scale.AxisLabel);
 
         ChartKit.Compose(path, size, scale, title, [new PanelRow([plot], key, 1, ShowsXLabel: true)], left: Math.Max(left, 60), right: rows.Count == 0 ? 14 : 120);
-    }
-
-    // Ticks at stored positions, labelled with their epoch numbers: the first and last, and evenly spaced ones between
-    // as the width allows.
-    private static NumericManual StoredEpochTicks(ImmutableArray<EpochRecord> epochs, int width)
-    {
-        int room = Math.Max(2, Math.Min(epochs.Length, width / 110));
-        var ticks = new NumericManual();
-        foreach (int c in Enumerable.Range(0, room).Select(i => (int)Math.Round(i * (epochs.Length - 1) / (double)Math.Max(1, room - 1))).Distinct())
-            ticks.AddMajor(c, ChartKit.Integer(epochs[c].Epoch));
-        return ticks;
     }
 
     private string Describe() => Value switch

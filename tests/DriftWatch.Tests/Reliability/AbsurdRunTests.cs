@@ -3,6 +3,7 @@ using DriftWatch.Charts;
 using DriftWatch.Cli;
 using DriftWatch.Detection;
 using DriftWatch.Hooks;
+using DriftWatch.Layers;
 using DriftWatch.Storage;
 using DriftWatch.Tests.Charts;
 using DriftWatch.Tests.Support;
@@ -40,6 +41,58 @@ public sealed class AbsurdRunTests
         using var reader = RunStore.OpenForReading(store);
         var history = RunHistory.Load(reader, "far");
         Assert.Equal(FarApart, history.Epochs.Select(e => e.Epoch));
+    }
+
+    [Fact]
+    public void ANeuronMapOfEpochsFarApartIsDrawnOneColumnPerAuditedEpoch()
+    {
+        using var temp = new TempFolder();
+        var maps = FarApart.Select((epoch, i) => new LayerMapDocument
+        {
+            RunId = 1,
+            Epoch = epoch,
+            Layer = "hidden",
+            Method = "layer-conductance",
+            Target = "regression",
+            Rows = 2,
+            Units = 3,
+            Scores = FloatBytes.FromFloats([.. Enumerable.Range(0, 6).Select(u => (float)((u % 3) - 1 + 0.1 * i))]),
+            Outputs = FloatBytes.FromFloats([0f, 0f]),
+        }).ToList();
+        var audit = NeuronAudit.Run(maps, "regression", new NeuronAuditOptions());
+        string path = temp.File("neurons.png");
+
+        // Before, one column per epoch number: 2^31 columns, an OutOfMemoryException.
+        new NeuronMapChart().Render(audit, "far", path, ChartSize.Default);
+
+        PngAssert.IsChart(path, 1200, 700);
+    }
+
+    [Fact]
+    public void AnEpochGridLaysOutNumbersWhileTheyFitAndStoredEpochsBeyond()
+    {
+        // A resumed run with a gap keeps its empty column at the missing epoch, as before.
+        var gap = EpochColumns.Of([1, 2, 4]);
+        Assert.True(gap.ByNumber);
+        Assert.Equal(4, gap.Count);
+        Assert.Equal([0, 1, -1, 2], Enumerable.Range(0, 4).Select(gap.Position));
+        Assert.Equal((1.0, 4.0), (gap.First, gap.Last));
+        Assert.Null(gap.Ticks(1200));
+        Assert.Empty(gap.TickLabels(1200));
+        Assert.Null(gap.Note);
+
+        var far = EpochColumns.Of(FarApart);
+        Assert.False(far.ByNumber);
+        Assert.Equal(4, far.Count);
+        Assert.Equal([0, 1, 2, 3], Enumerable.Range(0, 4).Select(far.Position));
+        Assert.Equal((0.0, 3.0), (far.First, far.Last));
+        Assert.NotNull(far.Ticks(1200));
+        Assert.Equal([(0.0, "1"), (1.0, "2"), (2.0, "100000000"), (3.0, "2147483647")], far.TickLabels(1200));
+        Assert.NotNull(far.Note);
+
+        // The widest span still laid out by number, and one more.
+        Assert.True(EpochColumns.Of([1, EpochColumns.MaximumByNumber]).ByNumber);
+        Assert.False(EpochColumns.Of([1, EpochColumns.MaximumByNumber + 1]).ByNumber);
     }
 
     [Fact]
