@@ -24,6 +24,9 @@ namespace DriftWatch.Hooks;
 /// </remarks>
 public sealed class TrainingMonitor : IDisposable
 {
+    /// <summary>The largest epoch number <see cref="EndEpoch"/> takes: 1,000,000. A larger one is refused as a monitoring failure (thrown with <see cref="MonitorOptions.Strict"/>) and not stored.</summary>
+    public const int MaximumEpoch = 1_000_000;
+
     private readonly MonitorOptions _options;
     private readonly RunStore _store;
     private readonly RunDocument _run;
@@ -87,8 +90,8 @@ public sealed class TrainingMonitor : IDisposable
     /// <summary>Records the epoch: snapshot, attribution maps, metrics, verdict. Call once per epoch, after validation.</summary>
     /// <param name="model">The model being trained, in whatever mode the loop left it (restored afterwards).</param>
     /// <param name="epoch">
-    /// The epoch number, increasing. A stored epoch is never replaced, except the last one when it was stored
-    /// incomplete (its attribution or snapshot failed): repeating that epoch redoes it.
+    /// The epoch number, increasing and at most <see cref="MaximumEpoch"/>. A stored epoch is never replaced, except the
+    /// last one when it was stored incomplete (its attribution or snapshot failed): repeating that epoch redoes it.
     /// </param>
     /// <param name="metrics">The epoch's losses and other metrics.</param>
     /// <returns>
@@ -105,6 +108,7 @@ public sealed class TrainingMonitor : IDisposable
         var failures = new List<Finding>();
         try
         {
+            CheckEpochNumber(epoch);
             Admit(model, epoch, metrics);
             var attributed = IsAttributed(epoch) ? Attribute(model, epoch, failures) : NoMaps;
             using var weights = _options.SaveSnapshots ? Snapshot(model, epoch, failures) : null;
@@ -144,6 +148,7 @@ public sealed class TrainingMonitor : IDisposable
         MemoryStream? weights = null;
         try
         {
+            CheckEpochNumber(epoch);
             Admit(model, epoch, metrics);
             weights = Snapshot(model, epoch, failures);
         }
@@ -197,6 +202,14 @@ public sealed class TrainingMonitor : IDisposable
             failures.Add(Failure(epoch, "loading the epoch's weights into the background copy of the model", e));
             return false;
         }
+    }
+
+    // An epoch number past the limit is a loop passing its step count: stored, it would stretch every chart's epoch axis
+    // and stand before every later real epoch of the run, so it is refused before it is stored.
+    private static void CheckEpochNumber(int epoch)
+    {
+        if (epoch > MaximumEpoch)
+            throw new DriftWatchException(string.Create(CultureInfo.InvariantCulture, $"epoch {epoch} is above the largest epoch number the monitor takes, {MaximumEpoch}; pass the epoch count, not the step count"));
     }
 
     // Checks the call before any work: arguments, epoch order, the model's schema and shape.

@@ -168,7 +168,8 @@ internal static class ChartKit
 
     /// <summary>
     /// Consecutive points of a series. A missing value (null) is skipped and the line goes on; a NaN or infinite
-    /// value breaks the line, so a bad epoch shows as a gap instead of a straight line across it.
+    /// value, or one beyond ±<see cref="LargestDrawn"/>, breaks the line, so a bad epoch shows as a gap instead of a
+    /// straight line across it.
     /// </summary>
     public static List<(double[] Xs, double[] Ys)> Segments(IEnumerable<EpochRecord> epochs, Func<EpochRecord, double?> value)
     {
@@ -186,7 +187,7 @@ internal static class ChartKit
         {
             if (value(epoch) is not double y)
                 continue;
-            if (!double.IsFinite(y))
+            if (!IsDrawn(y))
             {
                 Close();
                 continue;
@@ -244,6 +245,22 @@ internal static class ChartKit
         Close();
         return drawn;
     }
+
+    /// <summary>
+    /// The largest magnitude a line is drawn to: 1e300. A value beyond it (a loss that overflowed) is left out like a
+    /// NaN, so an axis never has to span more than a double holds.
+    /// </summary>
+    public const double LargestDrawn = 1e300;
+
+    /// <summary>Whether a line point at <paramref name="value"/> is drawn: finite and within ±<see cref="LargestDrawn"/>.</summary>
+    public static bool IsDrawn(double value) => double.IsFinite(value) && Math.Abs(value) <= LargestDrawn;
+
+    /// <summary>How many of <paramref name="values"/> are finite but beyond ±<see cref="LargestDrawn"/>, so <see cref="Segments"/> leaves them out.</summary>
+    public static int Undrawn(IEnumerable<double?> values) => values.Count(v => v is double y && double.IsFinite(y) && !IsDrawn(y));
+
+    /// <summary>A title line saying that <paramref name="count"/> <paramref name="what"/> are not drawn, e.g. <c>2 losses beyond ±1e300 are not drawn</c>; null when the count is 0.</summary>
+    public static string? UndrawnNote(int count, string what) =>
+        count == 0 ? null : $"{Integer(count)} {what} beyond ±1e300 {(count == 1 ? "is" : "are")} not drawn";
 
     /// <summary>Sets y limits around <paramref name="values"/> with a margin; a flat or empty series gets a sensible range.</summary>
     public static void FitY(Plot plot, IEnumerable<double> values, double? floor = null, double? ceiling = null, bool includeZero = false)
@@ -444,7 +461,7 @@ internal static class ChartKit
     /// the centres of the outer cells on the extent's edges, so the extent runs from the first column to the last and from
     /// row 0 to the last row; a single column or row is doubled so it still has two centres.
     /// </summary>
-    internal static ScottPlot.Plottables.Heatmap CellGrid(Plot plot, double[,] cells, int first, int last)
+    internal static ScottPlot.Plottables.Heatmap CellGrid(Plot plot, double[,] cells, double first, double last)
     {
         int rows = cells.GetLength(0), columns = cells.GetLength(1);
         if (columns == 1)

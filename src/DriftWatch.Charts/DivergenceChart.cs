@@ -94,7 +94,7 @@ public sealed class DivergenceChart : IChart
         {
             var empty = ChartKit.NewPlot(scale);
             ChartKit.EpochAxis(empty, history);
-            ChartKit.Note(empty, (history.Epochs[0].Epoch + history.Epochs[^1].Epoch) / 2.0, $"no attribution maps stored for method {DisplayText.Clean(history.Method, 40)}", scale);
+            ChartKit.Note(empty, (history.Epochs[0].Epoch + (double)history.Epochs[^1].Epoch) / 2, $"no attribution maps stored for method {DisplayText.Clean(history.Method, 40)}", scale);
             shareRow.Add(empty);
             var emptyBelow = ChartKit.NewPlot(scale);
             ChartKit.EpochAxis(emptyBelow, history);
@@ -134,7 +134,7 @@ public sealed class DivergenceChart : IChart
             var aligned = attributed.Where(e => e.HeldOutAlignment.Length > f && e.TrainingAlignment.Length > f).ToList();
             if (aligned.Count == 0)
             {
-                ChartKit.Note(alignment, (history.Epochs[0].Epoch + history.Epochs[^1].Epoch) / 2.0, "no label alignment (labels not binary)", scale);
+                ChartKit.Note(alignment, (history.Epochs[0].Epoch + (double)history.Epochs[^1].Epoch) / 2, "no label alignment (labels not binary)", scale);
             }
             else
             {

@@ -23,7 +23,7 @@ public sealed class DriftChart : IChart
         var scale = new TextScale(size);
         float width = 2.2f * scale.Factor;
         float marker = history.Epochs.Length <= 60 ? 6 * scale.Factor : 0;
-        double middle = (history.Epochs[0].Epoch + history.Epochs[^1].Epoch) / 2.0;
+        double middle = (history.Epochs[0].Epoch + (double)history.Epochs[^1].Epoch) / 2;
 
         var verdicts = ChartKit.NewPlot(scale);
         var verdictKey = ChartKit.NewKey(scale);
@@ -101,6 +101,10 @@ public sealed class DriftChart : IChart
             $"{ChartKit.RunTitle(history)}: drift of the importance picture and generalisation",
             $"ranks of held-out shares ({DisplayText.Clean(history.PrimaryMethod, 40)}); generalisation loss GL(t) = 100 · (validation loss / lowest so far − 1), Prechelt 1998",
         ];
+        // A gap of two finite losses can still overflow (1e308 − (−1e308)); it is left out like a value beyond the range.
+        int overflowed = history.Epochs.Count(e => e.TrainLoss is double t && e.ValidationLoss is double v && double.IsFinite(t) && double.IsFinite(v) && !ChartKit.IsDrawn(v - t));
+        if (ChartKit.UndrawnNote(overflowed, "loss gaps") is { } undrawn)
+            title = [.. title, undrawn];
         ChartKit.Compose(path, size, scale, title,
         [
             new PanelRow([verdicts], verdictKey, 0.45f, ShowsXLabel: false),

@@ -65,7 +65,7 @@ public sealed class FeatureDetailChart : IChart
         var values = new List<double>();
         if (epochs.Count == 0)
         {
-            ChartKit.Note(plot, (history.Epochs[0].Epoch + history.Epochs[^1].Epoch) / 2.0, $"no attribution maps stored for method {DisplayText.Clean(history.Method, 40)}", scale);
+            ChartKit.Note(plot, (history.Epochs[0].Epoch + (double)history.Epochs[^1].Epoch) / 2, $"no attribution maps stored for method {DisplayText.Clean(history.Method, 40)}", scale);
         }
         else
         {

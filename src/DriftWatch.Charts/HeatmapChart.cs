@@ -95,24 +95,29 @@ public sealed class HeatmapChart : IChart
         if (rows.Count == 0)
         {
             ChartKit.EpochAxis(plot, history);
-            ChartKit.Note(plot, (first + last) / 2.0, $"no attribution maps stored for method {DisplayText.Clean(history.Method, 40)}", scale);
+            ChartKit.Note(plot, (first + (double)last) / 2, $"no attribution maps stored for method {DisplayText.Clean(history.Method, 40)}", scale);
         }
         else
         {
-            int columns = last - first + 1;
-            var byEpoch = history.Epochs.Where(e => e.IsAttributed).ToDictionary(e => e.Epoch);
+            // Epoch numbers far apart (a loop passing its step count) get one column per stored epoch, not per number.
+            var epochs = history.Epochs;
+            var layout = EpochColumns.Of(epochs.Select(e => e.Epoch));
+            int columns = layout.Count;
             var cells = new double[rows.Count, columns];
             for (int r = 0; r < rows.Count; r++)
             {
                 for (int c = 0; c < columns; c++)
-                    cells[r, c] = byEpoch.TryGetValue(first + c, out var epoch) ? rows[r].Sum(f => CellValue(epoch, f)) : double.NaN;
+                {
+                    int position = layout.Position(c);
+                    cells[r, c] = position >= 0 && epochs[position].IsAttributed ? rows[r].Sum(f => CellValue(epochs[position], f)) : double.NaN;
+                }
             }
 
             var finite = cells.Cast<double>().Where(double.IsFinite).ToList();
             double top = finite.Count == 0 ? 1 : finite.Select(Math.Abs).Max();
             if (top <= 0)
                 top = 1;
-            var map = ChartKit.CellGrid(plot, cells, first, last);
+            var map = ChartKit.CellGrid(plot, cells, layout.First, layout.Last);
             map.NaNCellColor = Colors.White;
             map.Colormap = Value == HeatmapValue.Share ? new SequentialColormap() : new DivergingColormap();
             map.ManualRange = Value == HeatmapValue.Share ? new ScottPlot.Range(0, top) : new ScottPlot.Range(-top, top);
@@ -147,9 +152,11 @@ public sealed class HeatmapChart : IChart
                 if (rows[r].Length != 1)
                     continue;
                 string name = history.FeatureNames[rows[r][0]];
-                foreach (var epoch in history.Epochs.Where(e => e.Findings.Any(f => f.Feature == name)))
+                for (int position = 0; position < epochs.Length; position++)
                 {
-                    flaggedXs.Add(epoch.Epoch);
+                    if (!epochs[position].Findings.Any(f => f.Feature == name))
+                        continue;
+                    flaggedXs.Add(layout.XOfPosition(position));
                     flaggedYs.Add(rows.Count - 1 - r);
                 }
             }
@@ -161,8 +168,13 @@ public sealed class HeatmapChart : IChart
             }
             if (cells.Cast<double>().Any(double.IsNaN))
                 key.Legend.ManualItems.Add(ChartKit.FillItem("not attributed", Colors.White));
-            plot.Axes.SetLimitsX(first - 0.5, last + 0.5);
+            plot.Axes.SetLimitsX(layout.First - 0.5, layout.Last + 0.5);
             plot.Axes.SetLimitsY(-0.5, rows.Count - 0.5);
+            if (layout.Ticks(size.Width) is { } epochTicks)
+            {
+                plot.Axes.Bottom.TickGenerator = epochTicks;
+                title[1] += "; " + layout.Note;
+            }
         }
         plot.XLabel("epoch", scale.AxisLabel);
 

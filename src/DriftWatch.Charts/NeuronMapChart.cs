@@ -63,25 +63,26 @@ public sealed class NeuronMapChart
         var scale = new TextScale(size);
         var plot = ChartKit.NewPlot(scale);
         var key = ChartKit.NewKey(scale);
-        int first = audit.Epochs[0], last = audit.Epochs[^1];
-        int columns = last - first + 1;
+        // Epoch numbers far apart get one column per audited epoch, not per number.
+        var layout = EpochColumns.Of(audit.Epochs);
+        int columns = layout.Count;
         var order = Order(audit);
         int units = order.Length;
-        var index = audit.Epochs.Select((epoch, i) => (epoch, i)).ToDictionary(p => p.epoch, p => p.i);
 
         var cells = new double[units, columns];
         for (int r = 0; r < units; r++)
         {
             for (int c = 0; c < columns; c++)
             {
-                cells[r, c] = !index.TryGetValue(first + c, out int e)
+                int e = layout.Position(c);
+                cells[r, c] = e < 0
                     ? double.NaN
                     : Value == NeuronMapValue.Class
                         ? Array.IndexOf(ClassOrder, audit.ByEpoch[e][order[r]].Class)
                         : audit.ByEpoch[e][order[r]].MeanConductance;
             }
         }
-        var map = ChartKit.CellGrid(plot, cells, first, last);
+        var map = ChartKit.CellGrid(plot, cells, layout.First, layout.Last);
         map.NaNCellColor = Colors.White;
         float right = 14;
         if (Value == NeuronMapValue.Class)
@@ -119,8 +120,10 @@ public sealed class NeuronMapChart
         plot.Axes.Left.TickGenerator = ticks;
         plot.Axes.Left.TickLabelStyle.FontSize = fontSize;
         plot.Axes.Left.MajorTickStyle.Length = 3;
-        plot.Axes.SetLimitsX(first - 0.5, last + 0.5);
+        plot.Axes.SetLimitsX(layout.First - 0.5, layout.Last + 0.5);
         plot.Axes.SetLimitsY(-0.5, units - 0.5);
+        if (layout.Ticks(size.Width) is { } epochTicks)
+            plot.Axes.Bottom.TickGenerator = epochTicks;
         plot.XLabel("epoch", scale.AxisLabel);
 
         string layer = DisplayText.Clean(audit.Layer, 40);
@@ -129,7 +132,8 @@ public sealed class NeuronMapChart
             $"Run “{DisplayText.Clean(runName, 60)}”: neuron map of layer “{layer}” ({DisplayText.Clean(audit.Method, 40)})",
             (Value == NeuronMapValue.Class ? "each unit's class at each epoch" : "each unit's mean conductance at each epoch")
                 + $", over {ChartKit.Integer(audit.Rows)} probe rows; {ChartKit.Integer(units)} units grouped by their class over all epochs"
-                + (audit.Oriented ? "; signs are toward the class the model predicts for each row" : ""),
+                + (audit.Oriented ? "; signs are toward the class the model predicts for each row" : "")
+                + (layout.Note is { } note ? "; " + note : ""),
         ];
         ChartKit.Compose(path, size, scale, title, [new PanelRow([plot], key, 1, ShowsXLabel: true)], left: 100, right: right);
     }

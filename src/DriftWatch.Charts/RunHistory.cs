@@ -159,7 +159,8 @@ public sealed class RunHistory
         ArgumentNullException.ThrowIfNull(store);
         ArgumentNullException.ThrowIfNull(features);
         var indexes = FeatureIndexes(_run, FeatureNames, features);
-        var (_, columns) = FirstMapPerEpoch(store, _run, Method, FeatureNames.Length, indexes);
+        // The epochs this history holds, not those committed since it was read.
+        var (_, columns) = FirstMapPerEpoch(store, _run, Method, FeatureNames.Length, indexes, [.. Epochs.Select(e => e.Epoch)]);
         return new RunHistory(_run, Method, FeatureNames, Epochs, [.. indexes.Select((f, i) => RowsOf(columns, i, f, FeatureNames[f]))]);
     }
 
@@ -184,7 +185,11 @@ public sealed class RunHistory
     /// </param>
     /// <exception cref="StoreException">No such run (the message lists the runs there are), or stored data that does not fit together.</exception>
     /// <exception cref="DriftWatchException">The run was not attributed with <paramref name="method"/>, or a feature in <paramref name="rowsOf"/> is not in the run.</exception>
-    public static RunHistory Load(RunStore store, string runName, string method = DefaultMethod, IReadOnlyCollection<string>? rowsOf = null, bool rowsOfFlagged = false)
+    public static RunHistory Load(RunStore store, string runName, string method = DefaultMethod, IReadOnlyCollection<string>? rowsOf = null, bool rowsOfFlagged = false) =>
+        Read(store, runName, method, rowsOf, rowsOfFlagged, betweenReads: null);
+
+    // betweenReads runs after the first of the store reads: a test commits a writer's epoch there, deterministically.
+    internal static RunHistory Read(RunStore store, string runName, string method, IReadOnlyCollection<string>? rowsOf, bool rowsOfFlagged, Action? betweenReads)
     {
         ArgumentNullException.ThrowIfNull(store);
         ArgumentNullException.ThrowIfNull(runName);
@@ -203,7 +208,12 @@ public sealed class RunHistory
         }
 
         var features = run.Features.Select(f => f.Name).ToImmutableArray();
-        var verdicts = store.Verdicts(run.Id).ToDictionary(v => v.Epoch);
+        // The epoch list first: an epoch's document is written last in its transaction (the commit marker), so every part
+        // of an epoch listed here is stored before the reads below. Parts of epochs a writer commits meanwhile are left out.
+        var stored = store.Epochs(run.Id);
+        betweenReads?.Invoke();
+        var complete = stored.Select(e => e.Epoch).ToHashSet();
+        var verdicts = store.Verdicts(run.Id).Where(v => complete.Contains(v.Epoch)).ToDictionary(v => v.Epoch);
         var asked = (rowsOf ?? []).ToList();
         if (rowsOfFlagged)
         {
@@ -213,18 +223,18 @@ public sealed class RunHistory
                 .Where(name => name.Length > 0 && features.Contains(name, StringComparer.Ordinal))
                 .ToList();
             // With nothing flagged the feature chart shows the top feature of the last attributed epoch: one map tells.
-            if (flagged.Count == 0 && LastMap(store, run, method) is { } last && last.HeldOut.Share.Length == features.Length)
+            if (flagged.Count == 0 && LastMap(store, run, method, stored) is { } last && last.HeldOut.Share.Length == features.Length)
                 flagged.AddRange(EpochRecord.ByShare(last.HeldOut.Share).Take(1).Select(f => features[f]));
             asked.AddRange(flagged);
         }
         var rowFeatures = FeatureIndexes(run, features, asked);
-        var (maps, columns) = FirstMapPerEpoch(store, run, method, features.Length, rowFeatures);
+        var (maps, columns) = FirstMapPerEpoch(store, run, method, features.Length, rowFeatures, complete);
         // Statistics come from the detector, which reads the primary method's maps only.
         var statistics = method == RunReview.PrimaryMethod(run)
-            ? store.StatisticsOf(run.Id).Where(s => s.Statistics is not null && s.Statistics.ShareHeldOut.Length == features.Length).ToDictionary(s => s.Epoch, s => s.Statistics!)
+            ? store.StatisticsOf(run.Id).Where(s => complete.Contains(s.Epoch) && s.Statistics is not null && s.Statistics.ShareHeldOut.Length == features.Length).ToDictionary(s => s.Epoch, s => s.Statistics!)
             : [];
 
-        var epochs = store.Epochs(run.Id).Select(e =>
+        var epochs = stored.Select(e =>
         {
             maps.TryGetValue(e.Epoch, out var map);
             verdicts.TryGetValue(e.Epoch, out var verdict);
@@ -252,17 +262,17 @@ public sealed class RunHistory
         return new RunHistory(run, method, features, epochs, rows);
     }
 
-    // The first stored map of each epoch, read one at a time and kept without its per-row scores; only the columns of
-    // the features in rowFeatures are copied out, split into the halves (held-out rows are stored first).
+    // The first stored map of each epoch in `complete`, read one at a time and kept without its per-row scores; only the
+    // columns of the features in rowFeatures are copied out, split into the halves (held-out rows are stored first).
     private static (Dictionary<int, MapDocument> Maps, SortedDictionary<int, (float[] HeldOut, float[] Training)[]> Columns) FirstMapPerEpoch(
-        RunStore store, RunDocument run, string method, int features, int[] rowFeatures)
+        RunStore store, RunDocument run, string method, int features, int[] rowFeatures, HashSet<int> complete)
     {
         var maps = new Dictionary<int, MapDocument>();
         var columns = new SortedDictionary<int, (float[] HeldOut, float[] Training)[]>();
         store.VisitMaps(run.Id, method, map =>
         {
             // One target per run today; should a run hold several, the first stored one is read.
-            if (maps.ContainsKey(map.Epoch))
+            if (maps.ContainsKey(map.Epoch) || !complete.Contains(map.Epoch))
                 return;
             CheckWidth(store, run, map.Epoch, "held-out", map.HeldOut.Share, features);
             CheckWidth(store, run, map.Epoch, "training", map.Training.Share, features);
@@ -276,8 +286,8 @@ public sealed class RunHistory
     }
 
     // The first stored map of the last complete epoch that has one for the method (as FirstMapPerEpoch would keep it).
-    private static MapDocument? LastMap(RunStore store, RunDocument run, string method) =>
-        store.Epochs(run.Id).Reverse()
+    private static MapDocument? LastMap(RunStore store, RunDocument run, string method, IReadOnlyList<EpochDocument> complete) =>
+        complete.Reverse()
             .Select(e => store.MapsAt(run.Id, e.Epoch).Where(m => m.Method == method).MinBy(m => m.Id))
             .FirstOrDefault(m => m is not null);
 

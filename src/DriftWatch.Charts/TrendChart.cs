@@ -79,7 +79,8 @@ public sealed class TrendChart : IChart
             : drawn == history.FeatureNames.Length
                 ? $"all {drawn} features, ranked by held-out share at epoch {last.Epoch.ToString(CultureInfo.InvariantCulture)}"
                 : $"top {drawn} of {history.FeatureNames.Length} features, ranked by held-out share at epoch {last.Epoch.ToString(CultureInfo.InvariantCulture)}";
-        return [head, detail];
+        string? undrawn = ChartKit.UndrawnNote(ChartKit.Undrawn(history.Epochs.SelectMany(e => new[] { e.TrainLoss, e.ValidationLoss })), "losses");
+        return undrawn is null ? [head, detail] : [head, detail, undrawn];
     }
 
     private static void DrawShares(Plot plot, Legend legend, RunHistory history, IReadOnlyList<int> ranked, TextScale scale)
@@ -87,7 +88,7 @@ public sealed class TrendChart : IChart
         var attributed = history.Epochs.Where(e => e.IsAttributed).ToList();
         if (attributed.Count == 0)
         {
-            ChartKit.Note(plot, (history.Epochs[0].Epoch + history.Epochs[^1].Epoch) / 2.0, $"no attribution maps stored for method {DisplayText.Clean(history.Method, 40)}", scale);
+            ChartKit.Note(plot, (history.Epochs[0].Epoch + (double)history.Epochs[^1].Epoch) / 2, $"no attribution maps stored for method {DisplayText.Clean(history.Method, 40)}", scale);
             return;
         }
 
@@ -174,7 +175,8 @@ public sealed class TrendChart : IChart
         var all = train.Concat(validation).SelectMany(p => p.Ys).ToList();
         if (all.Count == 0)
         {
-            ChartKit.Note(plot, (history.Epochs[0].Epoch + history.Epochs[^1].Epoch) / 2.0, "no losses recorded for this run", scale);
+            bool recorded = history.Epochs.Any(e => e.TrainLoss is not null || e.ValidationLoss is not null);
+            ChartKit.Note(plot, (history.Epochs[0].Epoch + (double)history.Epochs[^1].Epoch) / 2, recorded ? "no loss that can be drawn (see the title)" : "no losses recorded for this run", scale);
             return;
         }
         float markerSize = history.Epochs.Length <= MarkEveryPointUpTo ? 6 * scale.Factor : 0;

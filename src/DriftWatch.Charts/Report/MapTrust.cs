@@ -61,6 +61,19 @@ public static class RunTrust
         return Load(store, store.GetRun(runName));
     }
 
+    /// <summary>The trust documents of the epochs <paramref name="history"/> holds, ordered as <see cref="Load(RunStore, string)"/> orders them.</summary>
+    /// <remarks>Read after the history, the store may hold epochs a writer committed since; their documents are left out, so trust and history describe the same epochs.</remarks>
+    /// <param name="store">The open store the history came from.</param>
+    /// <param name="history">The run's history.</param>
+    /// <exception cref="StoreException">No run of that name is in the store.</exception>
+    public static ImmutableArray<MapTrust> Load(RunStore store, RunHistory history)
+    {
+        ArgumentNullException.ThrowIfNull(store);
+        ArgumentNullException.ThrowIfNull(history);
+        var epochs = history.Epochs.Select(e => e.Epoch).ToHashSet();
+        return [.. Load(store, history.RunName).Where(t => epochs.Contains(t.Epoch))];
+    }
+
     private static ImmutableArray<MapTrust> Load(RunStore store, RunDocument run)
     {
         ArgumentNullException.ThrowIfNull(store);

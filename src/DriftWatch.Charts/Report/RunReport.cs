@@ -93,7 +93,7 @@ public static class RunReport
 
         progress?.Invoke("writing the report");
         var findings = RunFindings.Summarise(history);
-        var trust = RunTrust.Load(store, history.RunName);
+        var trust = RunTrust.Load(store, history);
         var now = options.Clock.GetUtcNow();
         string stem = ChartFiles.SafePart(history.RunName) + "-report";
         string html = Path.Combine(folder, stem + ".html");

@@ -19,6 +19,10 @@ internal sealed class StoreBuilder
     private int _flagged = -1;
     private int _haltFrom = int.MaxValue;
     private bool _statistics = true;
+    private int[]? _epochNumbers;
+    private double[]? _losses;
+    private double[]? _validationLosses;
+    private bool _lastUncommitted;
 
     public StoreBuilder WithRun(string name)
     {
@@ -58,6 +62,34 @@ internal sealed class StoreBuilder
         return this;
     }
 
+    /// <summary>The run's epochs carry these numbers, in this order, instead of 1 to the epoch count.</summary>
+    public StoreBuilder WithEpochNumbers(params int[] epochs)
+    {
+        _epochNumbers = epochs;
+        return this;
+    }
+
+    /// <summary>The training and validation loss of the epoch at each position, instead of the invented curves.</summary>
+    public StoreBuilder WithLosses(params double[] losses)
+    {
+        _losses = losses;
+        return this;
+    }
+
+    /// <summary>The validation loss of the epoch at each position, when it should differ from the training loss of <see cref="WithLosses"/>.</summary>
+    public StoreBuilder WithValidationLosses(params double[] losses)
+    {
+        _validationLosses = losses;
+        return this;
+    }
+
+    /// <summary>The last epoch's map, statistics and verdict are written but not its epoch document: a writer stopped before its commit marker.</summary>
+    public StoreBuilder WithLastEpochUncommitted()
+    {
+        _lastUncommitted = true;
+        return this;
+    }
+
     public StoreBuilder WithoutStatistics()
     {
         _statistics = false;
@@ -93,8 +125,10 @@ internal sealed class StoreBuilder
         });
         int[] heldOut = [.. Enumerable.Range(0, _rowsPerHalf)];
         int[] training = [.. Enumerable.Range(_rowsPerHalf, _rowsPerHalf)];
-        for (int epoch = 1; epoch <= _epochs; epoch++)
+        int[] numbers = _epochNumbers ?? [.. Enumerable.Range(1, _epochs)];
+        for (int position = 0; position < numbers.Length; position++)
         {
+            int epoch = numbers[position];
             var scores = new float[rows * features];
             for (int r = 0; r < rows; r++)
             {
@@ -140,13 +174,13 @@ internal sealed class StoreBuilder
                         AlignmentTraining = [.. t.Alignment ?? []],
                         AlignmentGap = [.. (t.Alignment ?? []).Zip(h.Alignment ?? [], (a, b) => a - b)],
                         AlignmentGapWidth = [.. (h.Alignment ?? []).Select(_ => 0.2)],
-                        Drift = epoch == 1 ? double.NaN : 0.1 / epoch,
+                        Drift = position == 0 ? double.NaN : 0.1 / epoch,
                         RankAgreementWithBest = Math.Max(-1, 1 - 0.05 * epoch),
                         GeneralisationLoss = Math.Max(0, (epoch - 3) * 4.0),
                     },
                 });
             }
-            bool halt = epoch >= _haltFrom;
+            bool halt = _flagged >= 0 && epoch >= _haltFrom;
             var findings = halt
                 ? new List<FindingDocument>
                 {
@@ -170,12 +204,16 @@ internal sealed class StoreBuilder
                 Reasons = [.. findings.Select(f => f.Evidence)],
                 Findings = findings,
             });
+            if (_lastUncommitted && position == numbers.Length - 1)
+                break;
             store.WriteEpoch(new EpochDocument
             {
                 RunId = run.Id,
                 Epoch = epoch,
-                Metrics = new() { [MetricKeys.TrainLoss] = 1.0 / epoch, [MetricKeys.ValidationLoss] = 0.6 + 0.02 * epoch * epoch / 4, ["accuracy"] = 0.5 + 0.04 * epoch },
-                RecordedUtc = new DateTime(2026, 1, 2, 4, 0, 0, DateTimeKind.Utc).AddMinutes(epoch),
+                Metrics = _losses is null
+                    ? new() { [MetricKeys.TrainLoss] = 1.0 / epoch, [MetricKeys.ValidationLoss] = 0.6 + 0.02 * epoch * epoch / 4, ["accuracy"] = 0.5 + 0.04 * epoch }
+                    : new() { [MetricKeys.TrainLoss] = _losses[position], [MetricKeys.ValidationLoss] = (_validationLosses ?? _losses)[position] },
+                RecordedUtc = new DateTime(2026, 1, 2, 4, 0, 0, DateTimeKind.Utc).AddMinutes(position + 1),
             });
         }
         return run;
