@@ -42,7 +42,7 @@ internal static class RunsCommand
             foreach (var run in runs)
             {
                 var epochs = runStore.Epochs(run.Id);
-                var verdicts = runStore.Verdicts(run.Id);
+                var verdicts = WholeEpochs(runStore.Verdicts(run.Id), epochs);
                 if (epochs.Count == 0)
                 {
                     table.Add(run.Name, Formats.Utc(run.CreatedUtc), "0", "-", "-", "-", "no epochs", "-");
@@ -67,12 +67,20 @@ internal static class RunsCommand
         return command;
     }
 
+    // Verdicts of the epochs listed only: the epoch document is written last, so a verdict read after the epoch list may
+    // belong to an epoch a writer committed in between.
+    private static List<VerdictDocument> WholeEpochs(IReadOnlyList<VerdictDocument> verdicts, IReadOnlyList<EpochDocument> epochs)
+    {
+        var listed = epochs.Select(e => e.Epoch).ToHashSet();
+        return [.. verdicts.Where(v => listed.Contains(v.Epoch))];
+    }
+
     private static void WriteJson(TextWriter output, RunStore runStore, IReadOnlyList<RunDocument> runs)
     {
         var list = runs.Select(run =>
         {
             var epochs = runStore.Epochs(run.Id);
-            var verdicts = runStore.Verdicts(run.Id);
+            var verdicts = WholeEpochs(runStore.Verdicts(run.Id), epochs);
             var last = epochs.Count == 0 ? null : epochs[^1];
             var worst = verdicts
                 .Select(v => (Verdict: v, Kind: Enum.TryParse<VerdictKind>(v.Kind, out var kind) ? kind : VerdictKind.Continue))

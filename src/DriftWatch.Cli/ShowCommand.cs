@@ -48,10 +48,12 @@ internal static class ShowCommand
                 history = RunHistory.Load(runStore, parse.GetValue(run)!, parse.GetValue(method)!);
                 path = runStore.Path;
                 var document = runStore.GetRun(history.RunName);
-                quality = runStore.Quality(document.Id, history.Method);
-                maps = runStore.MapAggregates(document.Id);
+                // Only the epochs the history read whole: a writer may have committed another since (the epoch list is the marker).
+                var whole = history.Epochs.Select(e => e.Epoch).ToHashSet();
+                quality = [.. runStore.Quality(document.Id, history.Method).Where(q => whole.Contains(q.Epoch))];
+                maps = [.. runStore.MapAggregates(document.Id).Where(m => whole.Contains(m.Epoch))];
                 reattributed = runStore.MapMethods(document.Id).Where(m => !history.Methods.Contains(m)).ToList();
-                trust = RunTrust.Load(runStore, history.RunName);
+                trust = RunTrust.Load(runStore, history);
             }
             if (parse.GetValue(json))
             {

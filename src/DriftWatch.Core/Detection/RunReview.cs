@@ -44,8 +44,10 @@ public static class RunReview
         ArgumentNullException.ThrowIfNull(policy);
         var methods = ConfiguredMethods(run);
         var detector = new CrossMethodDetector(RunContext.FromRun(run), policy, methods);
+        // The epoch list first: an epoch document is written last, so every epoch listed has its maps by then.
+        var epochs = store.Epochs(run.Id);
         var maps = MapsByEpoch(store, run.Id, methods);
-        return store.Epochs(run.Id)
+        return epochs
             .Select(e => Observe(detector, e, maps.GetValueOrDefault(e.Epoch)))
             .ToList();
     }
