@@ -28,10 +28,13 @@ public readonly record struct FindingKind : IComparable<FindingKind>
     public FindingKind(string name)
     {
         ArgumentException.ThrowIfNullOrEmpty(name);
-        if (!name.All(char.IsAsciiLetterOrDigit))
+        if (!IsName(name))
             throw new ArgumentException($"a finding kind's name is letters and digits; got '{name}'", nameof(name));
         Name = name;
     }
+
+    /// <summary>Whether <paramref name="name"/> can name a kind (any version's): ASCII letters and digits, not empty.</summary>
+    public static bool IsName(string? name) => !string.IsNullOrEmpty(name) && name.All(char.IsAsciiLetterOrDigit);
 
     /// <summary>The stored name, e.g. <c>MemorisedIdentifier</c>.</summary>
     public string Name => field ?? "";

@@ -79,16 +79,14 @@ internal static class StoreChecks
 
     public static VerdictDocument Verdict(string path, VerdictDocument verdict)
     {
+        // A kind is kept by name: one this version does not know (a newer version wrote it) is shown as such, not
+        // refused; only a name no version could write marks the document damaged.
         Require(path, Present(verdict.Reasons, verdict.Findings) && verdict.Reasons.All(r => Present(r)) && Known<VerdictKind>(verdict.Kind)
-            && verdict.Findings.All(f => Present(f, f?.Epochs, f?.Feature, f?.Evidence) && KindName(f!.Kind) && f.Epochs.Length > 0 && Known<VerdictKind>(f.Severity)
+            && verdict.Findings.All(f => Present(f, f?.Epochs, f?.Feature, f?.Evidence) && FindingKind.IsName(f!.Kind) && f.Epochs.Length > 0 && Known<VerdictKind>(f.Severity)
                 && (f.SeenOnlyBy is null || f.SeenOnlyBy.All(m => m is not null))),
             $"the verdict of epoch {verdict.Epoch} is damaged (an unreadable kind or a missing field)");
         return verdict;
     }
-
-    // A finding kind is kept by name: one this version does not know (a newer version wrote it) is shown as such, not
-    // refused; only a name no version could write (empty, or not letters and digits) marks the document damaged.
-    private static bool KindName(string? name) => !string.IsNullOrEmpty(name) && name.All(char.IsAsciiLetterOrDigit);
 
     // LiteDB fills properties from whatever the file holds, so a damaged document can carry nulls the types do not admit.
     private static bool Present(params object?[] values) => values.All(v => v is not null);
