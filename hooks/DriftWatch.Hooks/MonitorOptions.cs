@@ -132,7 +132,7 @@ public sealed record MonitorOptions
     /// <see cref="TrainingMonitor.EndEpoch"/> then snapshots the weights, waits for the previous epoch's work, starts this
     /// epoch's and returns the previous epoch's verdict (one epoch late); <see cref="TrainingMonitor.WaitForPendingEpoch"/>
     /// gives the last one. A kill loses at most the epoch being worked on: the store holds every epoch before it, and a
-    /// resumed run redoes it. See the README's performance section for what it buys on two cores.
+    /// resumed run redoes it. See docs/performance.md for what it buys on two cores.
     /// </remarks>
     public bool BackgroundAttribution { get; init; }
 

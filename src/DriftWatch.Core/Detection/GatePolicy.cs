@@ -8,7 +8,7 @@ namespace DriftWatch.Detection;
 /// <summary>The gate's thresholds, warm-up and patience; read from a small JSON file or taken as built in.</summary>
 /// <remarks>
 /// Widths are multiples of a statistic's noise floor W, the 90% width of its row bootstrap. Defaults come from
-/// prototype measurements on invented greenhouse-like data (see the README's evaluation section) and are starting
+/// prototype measurements on invented greenhouse-like data (see docs/evaluation.md) and are starting
 /// points, not universal constants. Every setting is declared once, in <see cref="Settings"/> (key, values accepted,
 /// meaning) and by its property (type and default); a value out of range is refused when it is set, by <c>new</c>,
 /// <c>with</c> or <see cref="Parse"/> alike, with the message a policy file gets.
