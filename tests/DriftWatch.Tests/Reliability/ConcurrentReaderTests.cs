@@ -16,7 +16,9 @@ namespace DriftWatch.Tests.Reliability;
 /// </summary>
 public sealed partial class ConcurrentReaderTests
 {
-    private const int Epochs = 16;
+    // Enough epochs, each with enough attribution work, that the readers meet the writer on an idle machine too: at 16
+    // epochs of 64 steps the writer once finished a fifth of a second after the quiet epochs, before any reader ran.
+    private const int Epochs = 40;
     private const int QuietEpochs = 5;
 
     private readonly ITestOutputHelper _output;
@@ -32,7 +34,7 @@ public sealed partial class ConcurrentReaderTests
         using var demo = ChildProcess.Start(
             ChildProcess.DemoDll,
             "--small", "--store", store, "--run", run, "--epochs", Epochs.ToString(CultureInfo.InvariantCulture),
-            "--rows", "400", "--steps", "64", "--keep-training");
+            "--rows", "400", "--steps", "256", "--keep-training");
 
         // The first epochs without readers give the writer's own pace; then two readers run until training ends.
         Assert.True(demo.WaitForLine(l => EpochLine().IsMatch(l), QuietEpochs), demo.Error);
