@@ -1,5 +1,5 @@
-using Xunit;
 using DriftWatch.Probing;
+using Xunit;
 
 namespace DriftWatch.Tests.Probing;
 
