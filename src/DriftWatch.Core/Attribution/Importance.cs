@@ -22,19 +22,25 @@ public sealed record HalfImportance
     /// <summary>Aggregates the rows <paramref name="rows"/> of <paramref name="map"/>.</summary>
     /// <param name="map">The attribution map.</param>
     /// <param name="rows">The rows of the half.</param>
-    /// <param name="labels">Labels of every probe row (0/1 for binary); alignment is computed only when every label in the half is 0 or 1.</param>
-    public static HalfImportance Compute(AttributionMap map, IReadOnlyList<int> rows, float[]? labels)
+    /// <param name="labels">Labels of every probe row; alignment is computed only when they are binary (0/1 or ±1, <see cref="LabelKinds"/>).</param>
+    public static HalfImportance Compute(AttributionMap map, IReadOnlyList<int> rows, float[]? labels) =>
+        WithSigns(map, rows, LabelKinds.AlignmentSigns(labels));
+
+    /// <summary>Aggregates the rows <paramref name="rows"/> of <paramref name="map"/>, aligning each row's scores with its sign.</summary>
+    /// <param name="map">The attribution map.</param>
+    /// <param name="rows">The rows of the half.</param>
+    /// <param name="signs">The direction each probe row's label points a score (see <see cref="LabelKinds.AlignmentSigns"/>), or null for no alignment.</param>
+    public static HalfImportance WithSigns(AttributionMap map, IReadOnlyList<int> rows, IReadOnlyList<double>? signs)
     {
         ArgumentNullException.ThrowIfNull(map);
         ArgumentNullException.ThrowIfNull(rows);
         int f = map.Features;
         var abs = new double[f];
         var signed = new double[f];
-        bool binary = labels is not null && rows.All(r => labels[r] is 0f or 1f);
-        double[]? aligned = binary ? new double[f] : null;
+        double[]? aligned = signs is null ? null : new double[f];
         foreach (int r in rows)
         {
-            double sign = binary ? 2 * labels![r] - 1 : 0;
+            double sign = signs is null ? 0 : signs[r];
             for (int j = 0; j < f; j++)
             {
                 double v = map[r, j];

@@ -105,8 +105,8 @@ public sealed class DivergenceDetector
     private EpochStatistics Measure(int epoch, AttributionMap map, double gl)
     {
         int features = map.Features;
-        var heldOut = HalfImportance.Compute(map, _heldOutRows, _context.Labels);
-        var training = HalfImportance.Compute(map, _trainingRows, _context.Labels);
+        var heldOut = HalfImportance.WithSigns(map, _heldOutRows, _context.AlignmentSigns);
+        var training = HalfImportance.WithSigns(map, _trainingRows, _context.AlignmentSigns);
         var noise = Bootstrap(map, epoch);
 
         var gap = new double[features];
@@ -177,7 +177,7 @@ public sealed class DivergenceDetector
     {
         int features = map.Features, b = _policy.BootstrapResamples;
         var random = new Random(unchecked(_policy.Seed * 1_000_003 + epoch));
-        bool aligned = _context.HasBinaryLabels;
+        bool aligned = _context.AlignmentSigns is not null;
         var shareH = new double[b, features];
         var shareT = new double[b, features];
         var alignH = aligned ? new double[b, features] : null;
@@ -229,11 +229,11 @@ public sealed class DivergenceDetector
         int features = map.Features;
         Array.Clear(absSum);
         Array.Clear(alignSum);
-        var labels = _context.Labels;
+        var signs = _context.AlignmentSigns;
         for (int i = 0; i < rows.Length; i++)
         {
             int row = rows[random.Next(rows.Length)];
-            double sign = align is null ? 0 : 2 * labels![row] - 1;
+            double sign = align is null ? 0 : signs!.Value[row];
             int offset = row * features;
             for (int f = 0; f < features; f++)
             {

@@ -1,6 +1,7 @@
 using System.Collections.Immutable;
 using System.Globalization;
 using DriftWatch.Model;
+using DriftWatch.Probing;
 using DriftWatch.Storage;
 
 namespace DriftWatch.Detection;
@@ -30,6 +31,9 @@ public sealed class RunContext
         HeldOutCount = heldOutCount;
         TrainingCount = trainingCount;
         Labels = labels;
+        LabelKind = LabelKinds.Of(labels);
+        var signs = LabelKinds.AlignmentSigns(labels);
+        AlignmentSigns = signs is null ? null : [.. signs];
         Categorical = [.. categorical];
         TrainingValueCounts = trainingValueCounts;
         int index = 0;
@@ -57,8 +61,14 @@ public sealed class RunContext
     /// <summary>Per feature, its index among the raw categorical inputs, or −1 for dense features.</summary>
     public ImmutableArray<int> CategoricalInput { get; }
 
-    /// <summary>Whether every label is 0 or 1 (label alignment needs a binary label).</summary>
-    public bool HasBinaryLabels => Labels is not null && Labels.All(l => l is 0f or 1f);
+    /// <summary>What kind of target the labels are.</summary>
+    public LabelKind LabelKind { get; }
+
+    /// <summary>Per probe row, the direction its label points a score for label alignment; null when alignment cannot be computed for these labels.</summary>
+    public ImmutableArray<double>? AlignmentSigns { get; }
+
+    /// <summary>Whether the labels are binary (0/1 or ±1).</summary>
+    public bool HasBinaryLabels => LabelKind == LabelKind.Binary;
 
     /// <summary>The categorical id of probe row <paramref name="row"/> for feature <paramref name="feature"/>.</summary>
     public long IdOf(int row, int feature) => Categorical[row * Schema.CategoricalCount + CategoricalInput[feature]];

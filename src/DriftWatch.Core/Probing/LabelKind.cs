@@ -53,4 +53,11 @@ public static class LabelKinds
 
     /// <summary>Whether a binary label marks the positive class (1 in 0/1, +1 in ±1).</summary>
     public static bool IsPositive(float label) => label > 0;
+
+    /// <summary>
+    /// The direction each row's label points a score, for label alignment (mean of score × sign over mean |score|): +1 for a
+    /// binary row's positive class, −1 for its negative class; null when the labels are not binary.
+    /// </summary>
+    public static double[]? AlignmentSigns(IReadOnlyList<float>? labels) =>
+        Of(labels) == LabelKind.Binary ? [.. labels!.Select(l => IsPositive(l) ? 1.0 : -1.0)] : null;
 }

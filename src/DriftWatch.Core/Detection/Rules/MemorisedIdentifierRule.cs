@@ -100,7 +100,7 @@ public sealed class MemorisedIdentifierRule(MemorisedIdentifierSettings settings
         foreach (int row in run.TrainingRows)
         {
             long id = context.IdOf(row, feature);
-            trainingVotes[id] = trainingVotes.GetValueOrDefault(id) + (context.Labels![row] > 0.5f ? 1 : -1);
+            trainingVotes[id] = trainingVotes.GetValueOrDefault(id) + (int)context.AlignmentSigns!.Value[row];
         }
         int shared = 0, echoed = 0, differing = 0, echoedDiffering = 0;
         foreach (int row in run.HeldOutRows)
@@ -112,7 +112,7 @@ public sealed class MemorisedIdentifierRule(MemorisedIdentifierSettings settings
             shared++;
             if (towardsTraining)
                 echoed++;
-            if ((context.Labels![row] > 0.5f ? 1 : -1) * votes < 0)
+            if ((int)context.AlignmentSigns!.Value[row] * votes < 0)
             {
                 differing++;
                 if (towardsTraining)

@@ -97,7 +97,7 @@ public sealed class ProbableLeakRule(ProbableLeakSettings settings) : IFindingRu
             foreach (int row in rows)
             {
                 values.Add(context.IdOf(row, feature));
-                if (map[row, feature] * (2 * context.Labels![row] - 1) > 0)
+                if (map[row, feature] * context.AlignmentSigns!.Value[row] > 0)
                     agree++;
             }
             return agree;
