@@ -587,14 +587,17 @@ public sealed class RunStore : IDisposable
     {
         Guard(() =>
         {
-            var meta = _database.GetCollection(MetaCollection);
-            var format = meta.FindById("format");
-            if (format is null)
+            // Looked for and written in one transaction, which holds the file: two processes creating one new store at once
+            // take turns, and the second finds the first one's record (and its collections) instead of inserting its own.
+            InOneTransaction(() =>
             {
+                var meta = _database.GetCollection(MetaCollection);
+                if (meta.FindById("format") is not null)
+                    return;
                 if (HasForeignCollections())
                     throw new StoreException($"'{Path}' is a LiteDB file of another program, not a DriftWatch store; pass another --store");
                 meta.Insert(new BsonDocument { ["_id"] = "format", ["version"] = FormatVersion });
-            }
+            });
             CheckFormat();
             RunsCollection.EnsureIndex(r => r.Name, unique: true);
             EpochsCollection.EnsureIndex(e => e.Key, unique: true);
