@@ -431,6 +431,39 @@ public sealed class RunStore : IDisposable
         }
     }).ToList();
 
+    /// <summary>
+    /// Checks the whole store for damage every reader would otherwise take for a healthy store, and returns one line per
+    /// problem found (none for a sound store).
+    /// </summary>
+    /// <remarks>
+    /// Finds a collection a writer always makes (runs, epochs, maps, verdicts, statistics; layers for a run that watches
+    /// layers) gone, an epoch without its verdict or detector statistics, and an epoch, verdict, statistics, map or layer
+    /// record whose run id or key was changed (it names no run, or its key does not match its run and epoch), and reads
+    /// every run record and epoch record through the same checks as the readers. A damaged format record is refused
+    /// when the store is opened. Reads only; safe while a monitor writes the store. LiteDB keeps no checksums, so damage
+    /// inside a stored number cannot be found.
+    /// </remarks>
+    public IReadOnlyList<string> Verify() => Guard(() =>
+    {
+        var problems = StoreAudit.Problems(_database);
+        foreach (var run in RunsCollection.FindAll().ToList())
+        {
+            try
+            {
+                StoreChecks.Run(Path, run);
+                foreach (var epoch in EpochsCollection.Find(e => e.RunId == run.Id))
+                    StoreChecks.Epoch(Path, epoch);
+                foreach (var verdict in VerdictsCollection.Find(v => v.RunId == run.Id))
+                    StoreChecks.Verdict(Path, verdict);
+            }
+            catch (StoreException e)
+            {
+                problems.Add(e.Message);
+            }
+        }
+        return (IReadOnlyList<string>)problems;
+    });
+
     /// <summary>Every run in the store, in the order they were registered.</summary>
     public IReadOnlyList<StoredRun> StoredRuns() => [.. Runs().Select(StoredRun.From)];
 
@@ -627,7 +660,12 @@ public sealed class RunStore : IDisposable
                 return;
             if (format is null)
                 throw new StoreException($"'{Path}' is a LiteDB file but not a DriftWatch store (no format record); pass the file a monitored run wrote");
-            int version = format["version"].AsInt32;
+            // A missing, null or negative version once read as format 1 (LiteDB reads a missing number as 0): such a record
+            // was damaged or written by hand, and nothing in the file can then be trusted to be what a format means.
+            var stored = format["version"];
+            if (!stored.IsInt32 || stored.AsInt32 < 1)
+                throw new StoreException($"store '{Path}' has a damaged format record (version {(stored.IsNull ? "missing or null" : stored.ToString())}, not a format number of 1 or more); use an intact copy");
+            int version = stored.AsInt32;
             if (version > FormatVersion)
                 throw new StoreException($"store '{Path}' has format {version}, written by a newer DriftWatch; this version reads format {FormatVersion} and older — upgrade DriftWatch");
         });
