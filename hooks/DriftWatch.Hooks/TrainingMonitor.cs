@@ -53,10 +53,13 @@ public sealed class TrainingMonitor : IDisposable
         options.CheckModelRecipe();
         _options = options;
         _attribution = AttributionOf(options);
+        // Measured before the store is opened: a record the store cannot hold leaves no file behind.
+        var wanted = Describe(options);
+        if (RunStore.TooLarge(wanted) is { } tooLarge)
+            throw new DriftWatchException(tooLarge);
         _store = RunStore.OpenForWriting(options.StorePath);
         try
         {
-            var wanted = Describe(options);
             var existing = _store.FindRun(options.RunName);
             if (existing is not null && !options.Resume)
                 RefuseUnlessNoEpochs(existing);

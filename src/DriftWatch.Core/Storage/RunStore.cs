@@ -20,6 +20,35 @@ public sealed class RunStore : IDisposable
     /// <summary>The store format this version writes and reads.</summary>
     public const int FormatVersion = 1;
 
+    /// <summary>
+    /// The longest run name a store takes, in UTF-8 bytes: 512. The unique name index keeps each name whole, and LiteDB
+    /// refuses index keys of 1,023 bytes or more; 512 leaves room for the key's own encoding.
+    /// </summary>
+    public const int MaximumRunNameBytes = 512;
+
+    /// <summary>
+    /// The most features a run takes: 20,000. Each epoch stores its per-feature figures (a map's per-half aggregates, the
+    /// detector's statistics) in single LiteDB documents, which LiteDB limits to 16 MiB.
+    /// </summary>
+    public const int MaximumFeatures = 20_000;
+
+    /// <summary>
+    /// The most bytes an epoch's attribution map may take: 15,000,000. A map is one LiteDB document (LiteDB limits
+    /// documents to 16 MiB) of 4 bytes per probe row and feature, 8 bytes per row (convergence delta and output gap)
+    /// and about 140 bytes per feature (the per-half aggregates); <see cref="MapBytes"/> measures it. With 13 features
+    /// that is at most about 250,000 probe rows.
+    /// </summary>
+    public const long MaximumMapBytes = 15_000_000;
+
+    /// <summary>
+    /// The most bytes the probe rows may take in the run's record: 12,000,000 (4 bytes per dense input, 8 per categorical
+    /// input and 4 per label, per row). The run's record holds them whole, beside the feature schema, in one document.
+    /// </summary>
+    public const long MaximumProbeBytes = 12_000_000;
+
+    // LiteDB 5 refuses documents over 16,683,050 bytes; the run's record is measured against a round bound below it.
+    private const int MaximumDocumentBytes = 16_000_000;
+
     private const string MetaCollection = "driftwatch";
     private static readonly byte[] LiteDbSignature = Encoding.ASCII.GetBytes("** This is a LiteDB file **");
 
@@ -158,10 +187,35 @@ public sealed class RunStore : IDisposable
         throw new StoreException($"no run named '{name}' in '{Path}'; {known}");
     }
 
+    /// <summary>
+    /// The bytes an epoch's map of <paramref name="rows"/> probe rows × <paramref name="features"/> features takes as a
+    /// store document, at most: the scores, the per-row deltas and output gaps, and the per-half aggregates (four arrays
+    /// of doubles per half, each element of a BSON array 1 type byte, up to 7 bytes of its index as a key, 8 of value).
+    /// </summary>
+    public static long MapBytes(long rows, long features) => (4 * rows * features) + (2 * 4 * rows) + (2 * 4 * 16 * features) + 4096;
+
+    /// <summary>
+    /// The problem with storing <paramref name="run"/>'s record, measured before any store is opened, or null when it fits:
+    /// a name over <see cref="MaximumRunNameBytes"/> or a record over LiteDB's document limit.
+    /// </summary>
+    internal static string? TooLarge(RunDocument run)
+    {
+        ArgumentNullException.ThrowIfNull(run);
+        int nameBytes = Encoding.UTF8.GetByteCount(run.Name);
+        if (nameBytes > MaximumRunNameBytes)
+            return string.Create(System.Globalization.CultureInfo.InvariantCulture, $"run name is {nameBytes:N0} bytes in UTF-8; a store takes names of at most {MaximumRunNameBytes} bytes (its name index keeps each name whole); choose a shorter name");
+        int bytes = BsonSerializer.Serialize(Mapper.ToDocument(run)).Length;
+        if (bytes > MaximumDocumentBytes)
+            return string.Create(System.Globalization.CultureInfo.InvariantCulture, $"the run's record (schema, probe rows, value counts) would take {bytes:N0} bytes; a store keeps it in one document of at most {MaximumDocumentBytes:N0} bytes; use fewer probe rows, shorter feature names or fewer counted categorical values");
+        return null;
+    }
+
     /// <summary>Registers a new run and returns it with its id.</summary>
     internal RunDocument AddRun(RunDocument run)
     {
         ArgumentNullException.ThrowIfNull(run);
+        if (TooLarge(run) is { } problem)
+            throw new StoreException(problem);
         return Guard(() =>
         {
             if (FindRun(run.Name) is not null)
