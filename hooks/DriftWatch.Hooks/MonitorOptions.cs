@@ -116,6 +116,24 @@ public sealed record MonitorOptions
     public TimeProvider Time { get; init; } = TimeProvider.System;
 
     /// <summary>
+    /// How long the run's writer on another host may go without a heartbeat before this monitor takes the run over, as
+    /// after a crash. Default <see cref="RunStore.DefaultStaleWriterAfter"/> (1 hour); set it above your longest epoch.
+    /// </summary>
+    /// <remarks>
+    /// The monitor marks its run with its process id, host name and start time, and refreshes a heartbeat with each stored
+    /// epoch. A second monitor of the same run (for instance <see cref="Resume"/> while the first still trains) is refused
+    /// when it is built, with one line naming the first; once the first is gone — its process no longer runs on this host,
+    /// or on another host its heartbeat is older than this — it is taken over, and <see cref="TrainingMonitor.TookOver"/>
+    /// says so. A monitor whose run was taken over stores no more epochs (each is a monitoring failure).
+    /// </remarks>
+    /// <exception cref="DriftWatchException">Zero or negative.</exception>
+    public TimeSpan StaleWriterAfter
+    {
+        get;
+        init => field = value > TimeSpan.Zero ? value : throw new DriftWatchException($"StaleWriterAfter is {value}; give a positive time such as 1 hour");
+    } = RunStore.DefaultStaleWriterAfter;
+
+    /// <summary>
     /// The watched model, optional. When given, the monitor checks its schema and weight shapes when it is built, so a run
     /// name already used by a different model is refused at configuration time instead of failing every epoch.
     /// </summary>

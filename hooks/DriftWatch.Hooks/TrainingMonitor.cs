@@ -63,7 +63,10 @@ public sealed class TrainingMonitor : IDisposable
             var existing = _store.FindRun(options.RunName);
             if (existing is not null && !options.Resume)
                 RefuseUnlessNoEpochs(existing);
-            _run = existing is null ? _store.AddRun(wanted) : Resume(existing, wanted);
+            // The run's one live writer is marked before its record is touched: a second writer is refused with nothing changed.
+            var claimed = existing ?? _store.AddRun(wanted);
+            TookOver = _store.ClaimWriter(claimed, "monitor", options.Time.GetUtcNow().UtcDateTime, options.StaleWriterAfter);
+            _run = existing is null ? claimed : Resume(existing, wanted);
             if (options.WatchedModel is not null)
                 CheckModel(options.WatchedModel); // a run name reused by a different model fails here, before any epoch
             _lastEpoch = _store.Epochs(_run.Id).Select(e => e.Epoch).DefaultIfEmpty(-1).Max();
@@ -73,10 +76,16 @@ public sealed class TrainingMonitor : IDisposable
         }
         catch
         {
-            _store.Dispose();
+            _store.Dispose(); // lets go of the run's writer mark, if it was taken
             throw;
         }
     }
+
+    /// <summary>
+    /// A line saying the run's earlier writer was gone (its process ended on this host, or its heartbeat went stale on
+    /// another) and this monitor took the run over, as after a crash; null when no other writer was marked.
+    /// </summary>
+    public string? TookOver { get; }
 
     /// <summary>What the monitor knows of its run now: its id and name in the store, its model's recipe and shape, its last complete epoch.</summary>
     /// <remarks>A copy taken when read; the monitor keeps the run's record to itself.</remarks>
@@ -313,6 +322,7 @@ public sealed class TrainingMonitor : IDisposable
                 string? snapshot = weights is null ? null : _store.SaveSnapshot(_run.Id, epoch, weights);
                 _store.WriteStatistics(new StatisticsDocument { RunId = _run.Id, Epoch = epoch, Statistics = assessment.Statistics });
                 _store.WriteVerdict(VerdictDocuments.ToDocument(assessment.Verdict, _run.Id));
+                _store.RefreshWriter(_run, _options.Time.GetUtcNow().UtcDateTime); // refused when another writer took the run over
                 _store.WriteEpoch(new EpochDocument
                 {
                     RunId = _run.Id,
@@ -392,6 +402,7 @@ public sealed class TrainingMonitor : IDisposable
         finally
         {
             _copy?.Module.Dispose();
+            _store.ReleaseWriter(_run.Id);
             _store.Dispose();
         }
         if (failure is not null)

@@ -15,7 +15,7 @@ namespace DriftWatch.Storage;
 /// An epoch's document is written after its maps and snapshot, so an epoch listed by <see cref="Epochs"/> is complete.
 /// Thread-safe for one writer and any number of readers.
 /// </remarks>
-public sealed class RunStore : IDisposable
+public sealed partial class RunStore : IDisposable
 {
     /// <summary>The store format this version writes and reads.</summary>
     public const int FormatVersion = 1;
@@ -530,7 +530,11 @@ public sealed class RunStore : IDisposable
         MapAggregates(runId, method).Select(StoredImportance.From).ToList();
 
     /// <inheritdoc />
-    public void Dispose() => _database.Dispose();
+    public void Dispose()
+    {
+        ReleaseWriters();
+        _database.Dispose();
+    }
 
     private static string EpochKey(int runId, int epoch) => $"{runId}/{epoch:D6}";
 
