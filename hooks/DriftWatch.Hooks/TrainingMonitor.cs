@@ -63,12 +63,12 @@ public sealed class TrainingMonitor : IDisposable
             var existing = _store.FindRun(options.RunName);
             if (existing is not null && !options.Resume)
                 RefuseUnlessNoEpochs(existing);
-            // The run's one live writer is marked before its record is touched: a second writer is refused with nothing changed.
-            var claimed = existing ?? _store.AddRun(wanted);
-            TookOver = _store.ClaimWriter(claimed, "monitor", options.Time.GetUtcNow().UtcDateTime, options.StaleWriterAfter);
-            _run = existing is null ? claimed : Resume(existing, wanted);
+            _run = existing is null ? _store.AddRun(wanted) : Resume(existing, wanted);
             if (options.WatchedModel is not null)
                 CheckModel(options.WatchedModel); // a run name reused by a different model fails here, before any epoch
+            // The run's one live writer is marked once the configuration is accepted (a refused configuration writes
+            // nothing) and before any epoch: a second writer is refused here, in one transaction that changes nothing.
+            TookOver = _store.ClaimWriter(_run, "monitor", options.Time.GetUtcNow().UtcDateTime, options.StaleWriterAfter);
             _lastEpoch = _store.Epochs(_run.Id).Select(e => e.Epoch).DefaultIfEmpty(-1).Max();
             _detector = CatchUp(before: int.MaxValue);
             if (options.BackgroundAttribution)
