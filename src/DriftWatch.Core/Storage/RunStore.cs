@@ -497,26 +497,32 @@ public sealed partial class RunStore : IDisposable
     /// when the store is opened. Reads only; safe while a monitor writes the store. LiteDB keeps no checksums, so damage
     /// inside a stored number cannot be found.
     /// </remarks>
-    public IReadOnlyList<string> Verify() => Guard(() =>
+    public IReadOnlyList<string> Verify()
     {
-        var problems = StoreAudit.Problems(_database);
-        foreach (var run in RunsCollection.FindAll().ToList())
+        var problems = new List<string>();
+        // One read transaction: the file is opened once for every read of the check (not once per query, which kept a
+        // writer waiting through a dozen openings), and the check sees one state of the store.
+        InOneTransaction(() =>
         {
-            try
+            problems.AddRange(StoreAudit.Problems(_database));
+            foreach (var run in RunsCollection.FindAll().ToList())
             {
-                StoreChecks.Run(Path, run);
-                foreach (var epoch in EpochsCollection.Find(e => e.RunId == run.Id))
-                    StoreChecks.Epoch(Path, epoch);
-                foreach (var verdict in VerdictsCollection.Find(v => v.RunId == run.Id))
-                    StoreChecks.Verdict(Path, verdict);
+                try
+                {
+                    StoreChecks.Run(Path, run);
+                    foreach (var epoch in EpochsCollection.Find(e => e.RunId == run.Id))
+                        StoreChecks.Epoch(Path, epoch);
+                    foreach (var verdict in VerdictsCollection.Find(v => v.RunId == run.Id))
+                        StoreChecks.Verdict(Path, verdict);
+                }
+                catch (StoreException e)
+                {
+                    problems.Add(e.Message);
+                }
             }
-            catch (StoreException e)
-            {
-                problems.Add(e.Message);
-            }
-        }
-        return (IReadOnlyList<string>)problems;
-    });
+        });
+        return problems;
+    }
 
     /// <summary>Every run in the store, in the order they were registered.</summary>
     public IReadOnlyList<StoredRun> StoredRuns() => [.. Runs().Select(StoredRun.From)];

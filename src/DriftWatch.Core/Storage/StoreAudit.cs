@@ -8,9 +8,9 @@ namespace DriftWatch.Storage;
 /// healthy store — a collection gone, an epoch without its verdict or statistics, a part whose run id or key was changed.
 /// </summary>
 /// <remarks>
-/// Reads while a writer may commit: the epoch list first, then the parts, then the runs last. An epoch's parts are
-/// committed with it in one transaction, so every part of a listed epoch is there when the parts are read; a run is
-/// registered before any of its epochs, so every run a listed epoch names is there when the runs are read.
+/// <see cref="RunStore.Verify"/> runs it inside one read transaction. Were it not, the order would still hold: the
+/// epoch list first, then the parts, then the runs last; an epoch's parts are committed with it, and a run is
+/// registered before any of its epochs, so nothing a listed epoch needs can be missed by a writer committing between reads.
 /// </remarks>
 internal static class StoreAudit
 {

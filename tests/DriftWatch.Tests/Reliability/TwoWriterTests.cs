@@ -223,7 +223,7 @@ public sealed class TwoWriterTests
     }
 
     // A writer mark as another process leaves it, written with LiteDB directly.
-    private static void Mark(string store, string host, int processId, DateTime heartbeatUtc, string run = "night-7")
+    internal static void Mark(string store, string host, int processId, DateTime heartbeatUtc, string run = "night-7")
     {
         using var database = new LiteDatabase($"Filename={store};Connection=shared");
         int runId = database.GetCollection("runs").FindOne(BsonExpression.Create("$.Name = @0", new BsonValue(run)))["_id"].AsInt32;
