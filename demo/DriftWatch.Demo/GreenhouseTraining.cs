@@ -81,6 +81,8 @@ internal static class GreenhouseTraining
         output.WriteLine(Invariant($"layer     {GreenhouseNet.FirstHiddenLayer} ({model.Hidden} units, first hidden ReLU): layer conductance {Math.Max(8, options.Steps / 2)} steps"));
         if (resumed is not null)
             output.WriteLine($"resumed   {resumed}");
+        if (monitor.TookOver is not null)
+            output.WriteLine($"writer    {monitor.TookOver}");
         if (firstEpoch > options.Epochs)
             output.WriteLine(Invariant($"          it already has {firstEpoch - 1} epochs, as many as --epochs {options.Epochs} asks; nothing to train"));
         output.WriteLine();

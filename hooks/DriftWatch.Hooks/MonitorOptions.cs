@@ -4,6 +4,7 @@ using DriftWatch.Detection;
 using DriftWatch.Model;
 using DriftWatch.Options;
 using DriftWatch.Probing;
+using DriftWatch.Storage;
 
 namespace DriftWatch.Hooks;
 
@@ -27,7 +28,8 @@ public sealed record MonitorOptions
 
     /// <summary>
     /// The run's name in the store, compared exactly (ordinal, case-sensitive): <c>Night-7</c> and <c>night-7</c> are two
-    /// runs. A name already in the store with complete epochs is continued only with <see cref="Resume"/> set.
+    /// runs. A name already in the store with complete epochs is continued only with <see cref="Resume"/> set. At most
+    /// <see cref="RunStore.MaximumRunNameBytes"/> (512) bytes in UTF-8; a longer name is refused by <see cref="Validate"/>.
     /// </summary>
     /// <exception cref="DriftWatchException">Empty.</exception>
     public required string RunName
@@ -43,11 +45,17 @@ public sealed record MonitorOptions
     /// </summary>
     public bool Resume { get; init; }
 
-    /// <summary>The feature schema of the watched model.</summary>
+    /// <summary>The feature schema of the watched model: at most <see cref="RunStore.MaximumFeatures"/> (20,000) features.</summary>
     /// <exception cref="DriftWatchException">Null.</exception>
     public required FeatureSchema Schema { get; init => field = value ?? throw new DriftWatchException("Schema is null; pass the watched model's schema (model.Schema)"); }
 
     /// <summary>The probe set attributed at every epoch.</summary>
+    /// <remarks>
+    /// The store's limits, checked by <see cref="Validate"/> before a store is opened: an epoch's map of all probe rows
+    /// × features at most <see cref="RunStore.MaximumMapBytes"/> (4 bytes a cell, <see cref="RunStore.MapBytes"/>; about
+    /// 250,000 rows with 13 features), and the rows themselves at most <see cref="RunStore.MaximumProbeBytes"/>
+    /// (12,000,000 bytes: 4 per dense input, 8 per categorical input, 4 per label, per row).
+    /// </remarks>
     /// <exception cref="DriftWatchException">Null.</exception>
     public required ProbeSet Probe { get; init => field = value ?? throw new DriftWatchException("Probe is null; build a probe set from the model's own input rows (ProbeSet.Select)"); }
 
@@ -108,6 +116,24 @@ public sealed record MonitorOptions
     public TimeProvider Time { get; init; } = TimeProvider.System;
 
     /// <summary>
+    /// How long the run's writer on another host may go without a heartbeat before this monitor takes the run over, as
+    /// after a crash. Default <see cref="RunStore.DefaultStaleWriterAfter"/> (1 hour); set it above your longest epoch.
+    /// </summary>
+    /// <remarks>
+    /// The monitor marks its run with its process id, host name and start time, and refreshes a heartbeat with each stored
+    /// epoch. A second monitor of the same run (for instance <see cref="Resume"/> while the first still trains) is refused
+    /// when it is built, with one line naming the first; once the first is gone — its process no longer runs on this host,
+    /// or on another host its heartbeat is older than this — it is taken over, and <see cref="TrainingMonitor.TookOver"/>
+    /// says so. A monitor whose run was taken over stores no more epochs (each is a monitoring failure).
+    /// </remarks>
+    /// <exception cref="DriftWatchException">Zero or negative.</exception>
+    public TimeSpan StaleWriterAfter
+    {
+        get;
+        init => field = value > TimeSpan.Zero ? value : throw new DriftWatchException($"StaleWriterAfter is {value}; give a positive time such as 1 hour");
+    } = RunStore.DefaultStaleWriterAfter;
+
+    /// <summary>
     /// The watched model, optional. When given, the monitor checks its schema and weight shapes when it is built, so a run
     /// name already used by a different model is refused at configuration time instead of failing every epoch.
     /// </summary>
@@ -138,8 +164,9 @@ public sealed record MonitorOptions
 
     /// <summary>
     /// Checks what no single setting can check alone (the probe set and baseline against the schema, the watched model and
-    /// layers, the value counts, the quality settings), naming every problem. Changes nothing and builds nothing: the
-    /// recipe's model is checked by <see cref="CheckModelRecipe"/> where the monitor builds it.
+    /// layers, the value counts, the quality settings, the store's size limits on the run name, the schema and the probe
+    /// set), naming every problem. Changes nothing and builds nothing: the recipe's model is checked by
+    /// <see cref="CheckModelRecipe"/> where the monitor builds it.
     /// </summary>
     /// <exception cref="DriftWatchException">One or more problems, all named on one line.</exception>
     public void Validate()
@@ -170,6 +197,7 @@ public sealed record MonitorOptions
                     problems.Try(() => WatchedLayer.Find(WatchedModel.Module, layer)); // an unknown path is refused here, before training
             }
         }
+        AddSizeProblems(problems);
         foreach (var name in (TrainingValueCounts ?? ImmutableDictionary<string, ImmutableDictionary<long, int>>.Empty).Keys)
         {
             problems.AddIf(!Schema.Features.Any(f => f.Name == name && f.Kind == FeatureKind.Categorical), () =>
@@ -207,6 +235,33 @@ public sealed record MonitorOptions
         ArgumentNullException.ThrowIfNull(built);
         if (!SameSchema(built.Schema))
             throw new DriftWatchException($"the model that Model's factory '{Model?.FactoryName}' builds from its settings has another feature schema than Schema; give the factory the settings of the model you train");
+    }
+
+    // The store's limits, measured from the sizes alone, before anything is allocated for the run or a store is opened.
+    private void AddSizeProblems(Problems problems)
+    {
+        var culture = System.Globalization.CultureInfo.InvariantCulture;
+        int nameBytes = System.Text.Encoding.UTF8.GetByteCount(RunName);
+        problems.AddIf(nameBytes > RunStore.MaximumRunNameBytes, () => string.Create(culture,
+            $"RunName is {nameBytes:N0} bytes in UTF-8; a store takes run names of at most {RunStore.MaximumRunNameBytes} bytes; choose a shorter name"));
+        int features = Schema.Features.Length;
+        problems.AddIf(features > RunStore.MaximumFeatures, () => string.Create(culture,
+            $"the schema has {features:N0} features; a run takes at most {RunStore.MaximumFeatures:N0} (each epoch keeps its per-feature figures in one store document, and a document is at most 16 MiB); watch a subset or group features"));
+        long rows = Probe.Count;
+        long mapBytes = RunStore.MapBytes(rows, features);
+        problems.AddIf(mapBytes > RunStore.MaximumMapBytes, () => string.Create(culture,
+            $"the probe set has {rows:N0} rows × {features:N0} features: an epoch's map would take {mapBytes:N0} bytes, and a map is one store document of at most {RunStore.MaximumMapBytes:N0} bytes; use at most {MostRows(features):N0} probe rows with this schema"));
+        long rowBytes = (4L * Probe.Rows.DenseCount) + (8L * Probe.Rows.CategoricalCount) + (Probe.Rows.Labels is null ? 0 : 4);
+        long probeBytes = rows * rowBytes;
+        problems.AddIf(probeBytes > RunStore.MaximumProbeBytes, () => string.Create(culture,
+            $"the probe set's {rows:N0} rows take {probeBytes:N0} bytes; the run's record holds at most {RunStore.MaximumProbeBytes:N0} bytes of probe rows; use at most {RunStore.MaximumProbeBytes / Math.Max(1, rowBytes):N0} probe rows"));
+    }
+
+    // The most probe rows whose map fits with this many features.
+    private static long MostRows(int features)
+    {
+        long rows = (RunStore.MaximumMapBytes - RunStore.MapBytes(0, features)) / ((4L * features) + 8);
+        return Math.Max(0, rows);
     }
 
     private bool SameSchema(FeatureSchema other) => other.Names.SequenceEqual(Schema.Names) && other.ColumnCount == Schema.ColumnCount;

@@ -53,16 +53,22 @@ public sealed class TrainingMonitor : IDisposable
         options.CheckModelRecipe();
         _options = options;
         _attribution = AttributionOf(options);
+        // Measured before the store is opened: a record the store cannot hold leaves no file behind.
+        var wanted = Describe(options);
+        if (RunStore.TooLarge(wanted) is { } tooLarge)
+            throw new DriftWatchException(tooLarge);
         _store = RunStore.OpenForWriting(options.StorePath);
         try
         {
-            var wanted = Describe(options);
             var existing = _store.FindRun(options.RunName);
             if (existing is not null && !options.Resume)
                 RefuseUnlessNoEpochs(existing);
             _run = existing is null ? _store.AddRun(wanted) : Resume(existing, wanted);
             if (options.WatchedModel is not null)
                 CheckModel(options.WatchedModel); // a run name reused by a different model fails here, before any epoch
+            // The run's one live writer is marked once the configuration is accepted (a refused configuration writes
+            // nothing) and before any epoch: a second writer is refused here, in one transaction that changes nothing.
+            TookOver = _store.ClaimWriter(_run, "monitor", options.Time.GetUtcNow().UtcDateTime, options.StaleWriterAfter);
             _lastEpoch = _store.Epochs(_run.Id).Select(e => e.Epoch).DefaultIfEmpty(-1).Max();
             _detector = CatchUp(before: int.MaxValue);
             if (options.BackgroundAttribution)
@@ -70,10 +76,16 @@ public sealed class TrainingMonitor : IDisposable
         }
         catch
         {
-            _store.Dispose();
+            _store.Dispose(); // lets go of the run's writer mark, if it was taken
             throw;
         }
     }
+
+    /// <summary>
+    /// A line saying the run's earlier writer was gone (its process ended on this host, or its heartbeat went stale on
+    /// another) and this monitor took the run over, as after a crash; null when no other writer was marked.
+    /// </summary>
+    public string? TookOver { get; }
 
     /// <summary>What the monitor knows of its run now: its id and name in the store, its model's recipe and shape, its last complete epoch.</summary>
     /// <remarks>A copy taken when read; the monitor keeps the run's record to itself.</remarks>
@@ -310,6 +322,7 @@ public sealed class TrainingMonitor : IDisposable
                 string? snapshot = weights is null ? null : _store.SaveSnapshot(_run.Id, epoch, weights);
                 _store.WriteStatistics(new StatisticsDocument { RunId = _run.Id, Epoch = epoch, Statistics = assessment.Statistics });
                 _store.WriteVerdict(VerdictDocuments.ToDocument(assessment.Verdict, _run.Id));
+                _store.RefreshWriter(_run, _options.Time.GetUtcNow().UtcDateTime); // refused when another writer took the run over
                 _store.WriteEpoch(new EpochDocument
                 {
                     RunId = _run.Id,
@@ -389,6 +402,7 @@ public sealed class TrainingMonitor : IDisposable
         finally
         {
             _copy?.Module.Dispose();
+            _store.ReleaseWriter(_run.Id);
             _store.Dispose();
         }
         if (failure is not null)

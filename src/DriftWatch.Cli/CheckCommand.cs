@@ -30,7 +30,7 @@ internal static class CheckCommand
             + ExitCodes.Help(
                 (ExitCodes.Fine, "Continue or Caution (or no epoch yet)"),
                 (ExitCodes.Halt, "Halt advised"),
-                (ExitCodes.BadInput, "bad input (missing or foreign store, unknown run, bad policy file)"),
+                (ExitCodes.BadInput, "bad input (missing, foreign or damaged store — see examine — unknown run, bad policy file)"),
                 (ExitCodes.InternalError, "internal error")))
         {
             run,
@@ -48,6 +48,7 @@ internal static class CheckCommand
             using (var runStore = CommonOptions.OpenStore(parse, store))
             {
                 document = runStore.GetRun(parse.GetValue(run)!);
+                Trust(runStore);
                 verdicts = gate is null
                     ? runStore.Verdicts(document.Id).Select(VerdictDocuments.FromDocument).ToList()
                     : RunReview.Replay(runStore, document, gate).Select(a => a.Verdict).ToList();
@@ -64,6 +65,17 @@ internal static class CheckCommand
             return halt ? ExitCodes.Halt : ExitCodes.Fine;
         });
         return command;
+    }
+
+    // A verdict read from a damaged store could be "no complete epoch yet" for a store whose verdicts are gone: a scheduler
+    // would never stop the training. A store that does not pass examine's check gets one line and exit 2 instead.
+    private static void Trust(RunStore runStore)
+    {
+        var problems = runStore.Verify();
+        if (problems.Count == 0)
+            return;
+        string more = problems.Count == 1 ? "" : $" (and {Formats.Integer(problems.Count - 1)} more)";
+        throw new StoreException($"store '{runStore.Path}' cannot be trusted: {problems[0]}{more}; 'driftwatch examine --store {runStore.Path}' lists every problem — use an intact copy");
     }
 
     private static void WriteText(TextWriter output, string run, Verdict? latest, Verdict? firstHalt, bool halt, string source)

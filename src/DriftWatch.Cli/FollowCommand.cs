@@ -85,6 +85,8 @@ internal static class FollowCommand
             using var monitor = new TrainingMonitor(options);
             output.WriteLine($"following '{DisplayText.Clean(runFolder.Path)}' as run '{DisplayText.Clean(name)}' in '{DisplayText.Clean(options.StorePath)}'"
                 + (monitor.LastEpoch >= 0 ? $"; epochs up to {Formats.Integer(monitor.LastEpoch)} are already stored" : ""));
+            if (monitor.TookOver is not null)
+                output.WriteLine($"  {DisplayText.Clean(monitor.TookOver)}");
             Verdict? latest = null;
             while (true)
             {

@@ -113,14 +113,24 @@ public static class Reattribution
     {
         var epochs = Check(store, run, model, request);
         string label = AttributionTarget.Parse(run.Target).Label;
-        return Execute(
-            store, run, model, request, epochs, progress,
-            epoch => store.FindMap(run.Id, epoch, request.Name, label) is not null,
-            (map, quality) =>
-            {
-                store.WriteMap(map);
-                store.WriteQuality(quality);
-            });
+        // The run's one live writer for as long as the maps are written: refused while a monitor still writes the run.
+        store.ClaimWriter(run, "reattribute", DateTime.UtcNow, RunStore.DefaultStaleWriterAfter);
+        try
+        {
+            return Execute(
+                store, run, model, request, epochs, progress,
+                epoch => store.FindMap(run.Id, epoch, request.Name, label) is not null,
+                (map, quality) => store.InOneTransaction(() =>
+                {
+                    store.RefreshWriter(run, DateTime.UtcNow);
+                    store.WriteMap(map);
+                    store.WriteQuality(quality);
+                }));
+        }
+        finally
+        {
+            store.ReleaseWriter(run.Id);
+        }
     }
 
     /// <summary>

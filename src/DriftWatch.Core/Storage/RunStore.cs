@@ -15,10 +15,39 @@ namespace DriftWatch.Storage;
 /// An epoch's document is written after its maps and snapshot, so an epoch listed by <see cref="Epochs"/> is complete.
 /// Thread-safe for one writer and any number of readers.
 /// </remarks>
-public sealed class RunStore : IDisposable
+public sealed partial class RunStore : IDisposable
 {
     /// <summary>The store format this version writes and reads.</summary>
     public const int FormatVersion = 1;
+
+    /// <summary>
+    /// The longest run name a store takes, in UTF-8 bytes: 512. The unique name index keeps each name whole, and LiteDB
+    /// refuses index keys of 1,023 bytes or more; 512 leaves room for the key's own encoding.
+    /// </summary>
+    public const int MaximumRunNameBytes = 512;
+
+    /// <summary>
+    /// The most features a run takes: 20,000. Each epoch stores its per-feature figures (a map's per-half aggregates, the
+    /// detector's statistics) in single LiteDB documents, which LiteDB limits to 16 MiB.
+    /// </summary>
+    public const int MaximumFeatures = 20_000;
+
+    /// <summary>
+    /// The most bytes an epoch's attribution map may take: 15,000,000. A map is one LiteDB document (LiteDB limits
+    /// documents to 16 MiB) of 4 bytes per probe row and feature, 8 bytes per row (convergence delta and output gap)
+    /// and about 140 bytes per feature (the per-half aggregates); <see cref="MapBytes"/> measures it. With 13 features
+    /// that is at most about 250,000 probe rows.
+    /// </summary>
+    public const long MaximumMapBytes = 15_000_000;
+
+    /// <summary>
+    /// The most bytes the probe rows may take in the run's record: 12,000,000 (4 bytes per dense input, 8 per categorical
+    /// input and 4 per label, per row). The run's record holds them whole, beside the feature schema, in one document.
+    /// </summary>
+    public const long MaximumProbeBytes = 12_000_000;
+
+    // LiteDB 5 refuses documents over 16,683,050 bytes; the run's record is measured against a round bound below it.
+    private const int MaximumDocumentBytes = 16_000_000;
 
     private const string MetaCollection = "driftwatch";
     private static readonly byte[] LiteDbSignature = Encoding.ASCII.GetBytes("** This is a LiteDB file **");
@@ -158,10 +187,35 @@ public sealed class RunStore : IDisposable
         throw new StoreException($"no run named '{name}' in '{Path}'; {known}");
     }
 
+    /// <summary>
+    /// The bytes an epoch's map of <paramref name="rows"/> probe rows × <paramref name="features"/> features takes as a
+    /// store document, at most: the scores, the per-row deltas and output gaps, and the per-half aggregates (four arrays
+    /// of doubles per half, each element of a BSON array 1 type byte, up to 7 bytes of its index as a key, 8 of value).
+    /// </summary>
+    public static long MapBytes(long rows, long features) => (4 * rows * features) + (2 * 4 * rows) + (2 * 4 * 16 * features) + 4096;
+
+    /// <summary>
+    /// The problem with storing <paramref name="run"/>'s record, measured before any store is opened, or null when it fits:
+    /// a name over <see cref="MaximumRunNameBytes"/> or a record over LiteDB's document limit.
+    /// </summary>
+    internal static string? TooLarge(RunDocument run)
+    {
+        ArgumentNullException.ThrowIfNull(run);
+        int nameBytes = Encoding.UTF8.GetByteCount(run.Name);
+        if (nameBytes > MaximumRunNameBytes)
+            return string.Create(System.Globalization.CultureInfo.InvariantCulture, $"run name is {nameBytes:N0} bytes in UTF-8; a store takes names of at most {MaximumRunNameBytes} bytes (its name index keeps each name whole); choose a shorter name");
+        int bytes = BsonSerializer.Serialize(Mapper.ToDocument(run)).Length;
+        if (bytes > MaximumDocumentBytes)
+            return string.Create(System.Globalization.CultureInfo.InvariantCulture, $"the run's record (schema, probe rows, value counts) would take {bytes:N0} bytes; a store keeps it in one document of at most {MaximumDocumentBytes:N0} bytes; use fewer probe rows, shorter feature names or fewer counted categorical values");
+        return null;
+    }
+
     /// <summary>Registers a new run and returns it with its id.</summary>
     internal RunDocument AddRun(RunDocument run)
     {
         ArgumentNullException.ThrowIfNull(run);
+        if (TooLarge(run) is { } problem)
+            throw new StoreException(problem);
         return Guard(() =>
         {
             if (FindRun(run.Name) is not null)
@@ -431,6 +485,45 @@ public sealed class RunStore : IDisposable
         }
     }).ToList();
 
+    /// <summary>
+    /// Checks the whole store for damage every reader would otherwise take for a healthy store, and returns one line per
+    /// problem found (none for a sound store).
+    /// </summary>
+    /// <remarks>
+    /// Finds a collection a writer always makes (runs, epochs, maps, verdicts, statistics; layers for a run that watches
+    /// layers) gone, an epoch without its verdict or detector statistics, and an epoch, verdict, statistics, map or layer
+    /// record whose run id or key was changed (it names no run, or its key does not match its run and epoch), and reads
+    /// every run record and epoch record through the same checks as the readers. A damaged format record is refused
+    /// when the store is opened. Reads only; safe while a monitor writes the store. LiteDB keeps no checksums, so damage
+    /// inside a stored number cannot be found.
+    /// </remarks>
+    public IReadOnlyList<string> Verify()
+    {
+        var problems = new List<string>();
+        // One read transaction: the file is opened once for every read of the check (not once per query, which kept a
+        // writer waiting through a dozen openings), and the check sees one state of the store.
+        InOneTransaction(() =>
+        {
+            problems.AddRange(StoreAudit.Problems(_database));
+            foreach (var run in RunsCollection.FindAll().ToList())
+            {
+                try
+                {
+                    StoreChecks.Run(Path, run);
+                    foreach (var epoch in EpochsCollection.Find(e => e.RunId == run.Id))
+                        StoreChecks.Epoch(Path, epoch);
+                    foreach (var verdict in VerdictsCollection.Find(v => v.RunId == run.Id))
+                        StoreChecks.Verdict(Path, verdict);
+                }
+                catch (StoreException e)
+                {
+                    problems.Add(e.Message);
+                }
+            }
+        });
+        return problems;
+    }
+
     /// <summary>Every run in the store, in the order they were registered.</summary>
     public IReadOnlyList<StoredRun> StoredRuns() => [.. Runs().Select(StoredRun.From)];
 
@@ -443,7 +536,11 @@ public sealed class RunStore : IDisposable
         MapAggregates(runId, method).Select(StoredImportance.From).ToList();
 
     /// <inheritdoc />
-    public void Dispose() => _database.Dispose();
+    public void Dispose()
+    {
+        ReleaseWriters();
+        _database.Dispose();
+    }
 
     private static string EpochKey(int runId, int epoch) => $"{runId}/{epoch:D6}";
 
@@ -587,14 +684,17 @@ public sealed class RunStore : IDisposable
     {
         Guard(() =>
         {
-            var meta = _database.GetCollection(MetaCollection);
-            var format = meta.FindById("format");
-            if (format is null)
+            // Looked for and written in one transaction, which holds the file: two processes creating one new store at once
+            // take turns, and the second finds the first one's record (and its collections) instead of inserting its own.
+            InOneTransaction(() =>
             {
+                var meta = _database.GetCollection(MetaCollection);
+                if (meta.FindById("format") is not null)
+                    return;
                 if (HasForeignCollections())
                     throw new StoreException($"'{Path}' is a LiteDB file of another program, not a DriftWatch store; pass another --store");
                 meta.Insert(new BsonDocument { ["_id"] = "format", ["version"] = FormatVersion });
-            }
+            });
             CheckFormat();
             RunsCollection.EnsureIndex(r => r.Name, unique: true);
             EpochsCollection.EnsureIndex(e => e.Key, unique: true);
@@ -624,7 +724,12 @@ public sealed class RunStore : IDisposable
                 return;
             if (format is null)
                 throw new StoreException($"'{Path}' is a LiteDB file but not a DriftWatch store (no format record); pass the file a monitored run wrote");
-            int version = format["version"].AsInt32;
+            // A missing, null or negative version once read as format 1 (LiteDB reads a missing number as 0): such a record
+            // was damaged or written by hand, and nothing in the file can then be trusted to be what a format means.
+            var stored = format["version"];
+            if (!stored.IsInt32 || stored.AsInt32 < 1)
+                throw new StoreException($"store '{Path}' has a damaged format record (version {(stored.IsNull ? "missing or null" : stored.ToString())}, not a format number of 1 or more); use an intact copy");
+            int version = stored.AsInt32;
             if (version > FormatVersion)
                 throw new StoreException($"store '{Path}' has format {version}, written by a newer DriftWatch; this version reads format {FormatVersion} and older — upgrade DriftWatch");
         });

@@ -59,6 +59,27 @@ public sealed class ReattributeCommandTests
         Assert.Matches(@"(?m)^\s+1\s+-?\d\.\d\d\s+-$", original.Output); // integrated-gradients against re-saliency (epoch 1 only) and re-smoothgrad
     }
 
+    [Fact]
+    public void ReattributeOfARunAnotherProcessStillWritesIsRefusedAndAStaleWriterIsTakenOver()
+    {
+        using var temp = new TempFolder();
+        string store = temp.File("copy.litedb");
+        File.Copy(_fixture.StorePath, store);
+        Reliability.TwoWriterTests.Mark(store, "training-node", 4242, DateTime.UtcNow.AddMinutes(-3), DemoStoreFixture.CleanRun);
+        string before = Hash(store);
+
+        var refused = Run("reattribute", DemoStoreFixture.CleanRun, "--store", store, "--method", "saliency", "--epochs", "..1");
+        Assert.Equal(ExitCodes.BadInput, refused.Code);
+        Assert.Contains("is being written by process 4242 on host 'training-node' (monitor, writing since", Assert.Single(refused.Error.Trim().Split('\n')), StringComparison.Ordinal);
+        Assert.Equal(before, Hash(store));
+
+        Reliability.TwoWriterTests.Mark(store, "training-node", 4242, DateTime.UtcNow.AddHours(-2), DemoStoreFixture.CleanRun);
+        var taken = Run("reattribute", DemoStoreFixture.CleanRun, "--store", store, "--method", "saliency", "--epochs", "..1");
+        Assert.True(taken.Code == ExitCodes.Fine, taken.Error);
+        using var reader = RunStore.OpenForReading(store);
+        Assert.Null(reader.WriterOf(reader.GetRun(DemoStoreFixture.CleanRun).Id)); // let go when done
+    }
+
     [Theory]
     [InlineData("--method", "lime")]
     [InlineData("--method", "integrated-gradients", "--as", "integrated-gradients")]
