@@ -48,7 +48,7 @@ internal sealed record DemoOptions
         DriftWatch greenhouse demo: generates a seeded tomato-grading scenario with planted faults, trains a small
         model on it with the DriftWatch monitor attached, and stores every epoch's attribution maps.
 
-        Usage: dotnet run --project demo/DriftWatch.Demo -- [options]
+        Usage: dotnet run --project demo/DriftWatch.Demo -c Release -- [options]
                dotnet run --project demo/DriftWatch.Demo -c Release -- evaluate --help   (the detector evaluation)
 
         Options:

@@ -50,8 +50,8 @@ public static class GreenhouseTrainer
         ArgumentNullException.ThrowIfNull(monitor);
         ArgumentOutOfRangeException.ThrowIfLessThan(firstEpoch, 1);
         using var data = new TrainingData(scenario);
-        // Adam with every scalar of its step held until the native call returns (see Optimizers.Adam for the crash).
-        using var optimizer = new Optimizers.Adam(model.parameters(), LearningRate);
+        // Adam with every scalar of its step held until the native call returns (DriftWatch.Hooks.Optimizers.Adam says why).
+        using var optimizer = new DriftWatch.Hooks.Optimizers.Adam(model.parameters(), LearningRate);
         var shuffle = new Random(seed);
         // A resumed run replays the data order of the epochs it skips, so each later epoch sees the minibatches an
         // uninterrupted run would; with the weights and the optimizer's state restored, it continues the same run.

@@ -120,11 +120,14 @@ internal static class GreenhouseTraining
         output.WriteLine($"store     {monitorOptions.StorePath}");
         output.WriteLine($"chart     {chart}");
         output.WriteLine($"rows      {validation} (the {ValidationRows} validation rows, labelled, for a pruning what-if)");
+        string driftwatch = CliCommand.Prefix(Environment.CurrentDirectory, Environment.GetEnvironmentVariable("PATH"), out string? publishFirst);
         output.WriteLine("next      see what the monitor recorded:");
-        output.WriteLine($"          dotnet run --project src/DriftWatch.Cli -- runs --store {store}");
-        output.WriteLine($"          dotnet run --project src/DriftWatch.Cli -- show {run} --store {store}");
-        output.WriteLine($"          dotnet run --project src/DriftWatch.Cli -- chart {run} --store {store}");
-        output.WriteLine($"          dotnet run --project src/DriftWatch.Cli -- neurons {run} --layer {GreenhouseNet.FirstHiddenLayer} --store {store}");
+        if (publishFirst is not null)
+            output.WriteLine($"          {publishFirst}   # once: builds the command line (README, Set-up)");
+        output.WriteLine($"          {driftwatch} runs --store {store}");
+        output.WriteLine($"          {driftwatch} show {run} --store {store}");
+        output.WriteLine($"          {driftwatch} chart {run} --store {store}");
+        output.WriteLine($"          {driftwatch} neurons {run} --layer {GreenhouseNet.FirstHiddenLayer} --store {store}");
         return 0;
     }
 

@@ -14,6 +14,11 @@ public static class CliApp
         ArgumentNullException.ThrowIfNull(args);
         ArgumentNullException.ThrowIfNull(output);
         ArgumentNullException.ThrowIfNull(error);
+        if (args is ["--version"])
+        {
+            output.WriteLine(ToolVariant.VersionLine);
+            return ExitCodes.Fine;
+        }
         var root = Build();
         // No response files: a run name starting with '@' ('@SUM(1+1)', '@night') is a run name, not a file to read arguments from.
         var parse = root.Parse(args, new ParserConfiguration { ResponseFileTokenReplacer = null });
@@ -24,6 +29,7 @@ public static class CliApp
         }
         try
         {
+            ToolVariant.EnsureLibTorch(parse.CommandResult.Command.Name);
             return parse.Invoke(new InvocationConfiguration
             {
                 Output = output,

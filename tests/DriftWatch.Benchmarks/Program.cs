@@ -492,7 +492,7 @@ static double Train(GreenhouseNet model, GreenhouseScenario scenario, int epochs
     using var dense = torch.tensor(rows.Dense, [rows.Count, rows.DenseCount]);
     using var cats = torch.tensor(rows.Categorical, [rows.Count, rows.CategoricalCount]);
     using var labels = torch.tensor(rows.Labels!);
-    using var optimizer = new DriftWatch.Demo.Optimizers.Adam(model.parameters(), 1e-3);
+    using var optimizer = new DriftWatch.Hooks.Optimizers.Adam(model.parameters(), 1e-3);
     var seconds = new List<double>();
     for (int e = 0; e < epochs; e++)
     {

@@ -94,7 +94,7 @@ public sealed class IrisTests
     {
         var (training, heldOut) = Split(withTag);
         using var model = new IrisNet(withTag);
-        var optimizer = new DriftWatch.Demo.Optimizers.Adam(model.parameters(), 0.01); // TorchSharp's Adam, its scalars held (the demo's)
+        var optimizer = new DriftWatch.Hooks.Optimizers.Adam(model.parameters(), 0.01); // TorchSharp's Adam, its scalars held (DriftWatch.Hooks)
         var verdicts = new List<Verdict>();
         using var monitor = new TrainingMonitor(new MonitorOptions
         {

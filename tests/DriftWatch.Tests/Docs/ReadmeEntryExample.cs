@@ -4,8 +4,8 @@ using static TorchSharp.torch;
 
 namespace DriftWatch.Tests.Docs.Entry;
 
-// The README's second model example, compiled: the first one declaring its entry layer. Lines it shares with the first
-// example (schema, module, encode) appear in the README once, in the first.
+// docs/embedding.md's model example, compiled: the README's model declaring its entry layer. Lines it shares with the
+// README's (schema, module, encode) are written there once, as "as above".
 // README:begin
 public sealed class GradeNet : nn.Module<Tensor, Tensor, Tensor>, IWatchedModel, ILinearEntry
 {

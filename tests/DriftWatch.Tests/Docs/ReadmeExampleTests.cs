@@ -34,13 +34,13 @@ public sealed class GradeNet : nn.Module<Tensor, Tensor, Tensor>, IWatchedModel
 public sealed class ReadmeExampleTests
 {
     [Theory]
-    [InlineData("ReadmeExampleTests.cs")]
-    [InlineData("ReadmeEntryExample.cs")]
-    public void TheReadmeExampleIsTheCompiledOne(string file)
+    [InlineData("ReadmeExampleTests.cs", "README.md")]
+    [InlineData("ReadmeEntryExample.cs", "docs/embedding.md")]
+    public void TheReadmeExampleIsTheCompiledOne(string file, string document)
     {
         string root = ConventionTests.FindRepositoryRoot();
         string source = File.ReadAllText(Path.Combine(root, "tests", "DriftWatch.Tests", "Docs", file));
-        string readme = File.ReadAllText(Path.Combine(root, "README.md"));
+        string readme = File.ReadAllText(Path.Combine(root, document));
         int begin = source.IndexOf("// README:begin", StringComparison.Ordinal);
         int end = source.IndexOf("// README:end", StringComparison.Ordinal);
         var lines = source[begin..end].Split('\n').Skip(1).Select(l => l.TrimEnd()).Where(l => l.Length > 0);

@@ -21,7 +21,7 @@ public sealed class SeveralMethodsTests
         using var temp = new TempFolder();
         using var model = new SmallNet(3, 5, 4);
         var data = new RowsBuilder().WithRows(80).WithSeed(3).Build();
-        var optimizer = new DriftWatch.Demo.Optimizers.Adam(model.parameters(), 0.01); // TorchSharp's Adam, its scalars held (the demo's)
+        var optimizer = new DriftWatch.Hooks.Optimizers.Adam(model.parameters(), 0.01); // TorchSharp's Adam, its scalars held (DriftWatch.Hooks)
         IAttributionMethod[] methods = [new IntegratedGradients(16), new FeatureAblation(), new ShapleySampling(8), new SmoothGrad(samples: 6)];
         var options = new MonitorOptions
         {

@@ -66,7 +66,7 @@ public sealed class TrainingMonitorTests
         using var temp = new TempFolder();
         using var model = new SmallNet(3, 5, 4);
         var data = new RowsBuilder().WithRows(80).WithSeed(3).Build();
-        var optimizer = new DriftWatch.Demo.Optimizers.Adam(model.parameters(), 0.01); // TorchSharp's Adam, its scalars held (the demo's)
+        var optimizer = new DriftWatch.Hooks.Optimizers.Adam(model.parameters(), 0.01); // TorchSharp's Adam, its scalars held (DriftWatch.Hooks)
         using (var monitor = new TrainingMonitor(Options(temp.File("s.litedb"), model)))
         {
             for (int epoch = 0; epoch < 4; epoch++)
@@ -129,7 +129,7 @@ public sealed class TrainingMonitorTests
         using var temp = new TempFolder();
         using var model = new SmallNet(3, 5, 4, seed: 1);
         var data = new RowsBuilder().WithRows(80).WithSeed(3).Build();
-        TrainOneEpoch(model, data, new DriftWatch.Demo.Optimizers.Adam(model.parameters(), 0.05));
+        TrainOneEpoch(model, data, new DriftWatch.Hooks.Optimizers.Adam(model.parameters(), 0.05));
         string snapshotId;
         using (var monitor = new TrainingMonitor(Options(temp.File("s.litedb"), model)))
         {

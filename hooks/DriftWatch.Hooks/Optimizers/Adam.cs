@@ -2,7 +2,7 @@ using TorchSharp;
 using TorchSharp.Modules;
 using static TorchSharp.torch;
 
-namespace DriftWatch.Demo.Optimizers;
+namespace DriftWatch.Hooks.Optimizers;
 
 /// <summary>
 /// Adam (Kingma and Ba 2015, Algorithm 1) as TorchSharp's <see cref="TorchSharp.Modules.Adam"/> computes it, the same
@@ -16,13 +16,14 @@ namespace DriftWatch.Demo.Optimizers;
 /// handle is passed on while nothing keeps the managed object alive. A garbage collection during the native call can
 /// then run the temporary's finalizer, which frees the native scalar while the kernel reads it; c10's scalar accessor
 /// fails with "Expected false to be true" and the process ends (about one demo run in 60). Here each scalar is a
-/// <c>using</c> local, alive until its call has returned.
+/// <c>using</c> local, alive until its call has returned. Use it where a training loop would call
+/// <c>torch.optim.Adam(parameters, learningRate)</c>.
 /// </para>
 /// <para>
 /// It carries TorchSharp's class name on purpose: a state file starts with the optimizer's class name and is loaded only
-/// by a class of that name, so this way the demo's optimizer state files and TorchSharp's Adam read each other.
+/// by a class of that name, so this way its optimizer state files and TorchSharp's Adam's read each other.
 /// </para>
-/// <para>Weight decay, maximize and AMSGrad are not supported (the demo uses none); a step with them set throws.</para>
+/// <para>Weight decay, maximize and AMSGrad are not supported; a step with them set throws <see cref="NotSupportedException"/>.</para>
 /// </remarks>
 public sealed class Adam : TorchSharp.Modules.Adam
 {
@@ -43,7 +44,7 @@ public sealed class Adam : TorchSharp.Modules.Adam
         {
             var options = group.Options;
             if (options.weight_decay is not (null or 0.0) || options.maximize == true || options.amsgrad == true)
-                throw new NotSupportedException("the demo's Adam does not support weight decay, maximize or AMSGrad; use torch.optim.Adam for those");
+                throw new NotSupportedException("DriftWatch.Hooks.Optimizers.Adam does not support weight decay, maximize or AMSGrad; use torch.optim.Adam for those");
             double beta1 = options.beta1!.Value;
             double beta2 = options.beta2!.Value;
             foreach (var parameter in group.Parameters)

@@ -1,17 +1,16 @@
-using DriftWatch.Demo;
 using DriftWatch.Probing;
 using DriftWatch.Tests.Support;
 using TorchSharp;
 using Xunit;
 using static TorchSharp.torch;
 
-namespace DriftWatch.Tests.Demo;
+namespace DriftWatch.Tests.Hooks;
 
 /// <summary>
-/// The demo's Adam is TorchSharp's Adam with its scalars held: checked step for step against TorchSharp 0.107's own
+/// The library's Adam (DriftWatch.Hooks.Optimizers) is TorchSharp's Adam with its scalars held: checked step for step against TorchSharp 0.107's own
 /// <c>torch.optim.Adam</c> (the reference here; Kingma and Ba 2015, Algorithm 1, as PyTorch formulates it).
 /// </summary>
-public sealed class DemoAdamTests
+public sealed class AdamTests
 {
     private const int Steps = 40;
 
@@ -21,7 +20,7 @@ public sealed class DemoAdamTests
         using var reference = new SmallNet(3, 5, 4, seed: 7);
         using var held = new SmallNet(3, 5, 4, seed: 7);
         using var referenceOptimizer = torch.optim.Adam(reference.parameters(), 0.01);
-        using var heldOptimizer = new DriftWatch.Demo.Optimizers.Adam(held.parameters(), 0.01);
+        using var heldOptimizer = new DriftWatch.Hooks.Optimizers.Adam(held.parameters(), 0.01);
         var rows = new RowsBuilder().WithRows(64).WithSeed(5).Build();
 
         for (int step = 0; step < Steps; step++)
@@ -41,7 +40,7 @@ public sealed class DemoAdamTests
     {
         var rows = new RowsBuilder().WithRows(64).WithSeed(6).Build();
         using var held = new SmallNet(3, 5, 4, seed: 8);
-        using var heldOptimizer = new DriftWatch.Demo.Optimizers.Adam(held.parameters(), 0.01);
+        using var heldOptimizer = new DriftWatch.Hooks.Optimizers.Adam(held.parameters(), 0.01);
         for (int step = 0; step < 10; step++)
             Step(held, heldOptimizer, rows);
         var state = new MemoryStream();
@@ -67,8 +66,8 @@ public sealed class DemoAdamTests
         }
         Assert.Equal(Weights(reference), Weights(held));
 
-        // And the other way: a state file TorchSharp's Adam wrote (as the demo did before) loads into the demo's Adam.
-        using var fresh = new DriftWatch.Demo.Optimizers.Adam(held.parameters(), 0.01);
+        // And the other way: a state file TorchSharp's Adam wrote (as the demo did before) loads into the library's Adam.
+        using var fresh = new DriftWatch.Hooks.Optimizers.Adam(held.parameters(), 0.01);
         var referenceState = new MemoryStream();
         using (var writer = new BinaryWriter(referenceState, System.Text.Encoding.UTF8, leaveOpen: true))
             referenceOptimizer.save_state_dict(writer);
