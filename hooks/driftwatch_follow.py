@@ -64,7 +64,7 @@ Gradients' path in that layer's output, which gives the same attributions for le
         def score_after_entry(self, entry: torch.Tensor) -> torch.Tensor:
             return self.body[2](self.body[1](entry))
 
-Files written (the run-folder contract, README "Watching a PyTorch run"):
+Files written (the run-folder contract, docs/pytorch.md):
 
 * ``schema.json``: the features in feature-space order, each with its kind and the columns it owns;
 * ``probe.csv``: the probe rows (dense columns, categorical ids, label, half), written once;

@@ -17,7 +17,7 @@ namespace DriftWatch.Cli;
 internal sealed record FolderEpoch(int Epoch, string SnapshotPath, EpochMetrics Metrics);
 
 /// <summary>
-/// Reads a run folder written by <c>hooks/driftwatch_follow.py</c> (README, "Watching a PyTorch run"): the schema,
+/// Reads a run folder written by <c>hooks/driftwatch_follow.py</c> (docs/pytorch.md): the schema,
 /// the probe rows, the per-epoch snapshots and metrics lines, and the marker that says the run has finished.
 /// Nothing read here is executed; only the snapshots are, by <see cref="TorchScriptModel"/>.
 /// </summary>
