@@ -20,7 +20,7 @@ internal static class FollowCommand
         var poll = CommonOptions.Bounded("--poll-seconds", "Seconds between looks for new snapshots while the run goes on.", 10, 1, 3600);
         var waitFor = CommonOptions.Bounded(
             "--wait-seconds",
-            $"How long to wait for the run folder and its {RunFolder.SchemaFile} (the helper writes them at the first epoch) before giving up with exit 2 (0 to 604800; 0 does not wait). --once does not wait.",
+            $"How long to wait for the run folder and its {RunFolder.SchemaFile} (the helper writes them at the first epoch) before giving up with exit {ExitCodes.BadInput} (0 to 604800; 0 does not wait). --once does not wait.",
             DefaultWaitSeconds, 0, 604_800, "SECONDS");
         var stopOnHalt = new Option<bool>("--stop-on-halt") { Description = "Stop at the first epoch judged Halt instead of recording the rest of the run." };
         var policy = new Option<string?>("--policy") { Description = "A gate policy JSON file. Default: the built-in policy.", HelpName = "FILE" };
@@ -90,6 +90,12 @@ internal static class FollowCommand
                 Resume = true,
                 Description = $"followed from {runFolder.Path} (TorchScript snapshots stay there)",
             };
+            // A follow stopped between storing an epoch and writing its verdict file leaves the loop waiting: the file is written now.
+            if (stored >= 0)
+            {
+                foreach (var verdict in StoredVerdicts(storePath, name).Where(v => !File.Exists(Path.Combine(runFolder.Path, RunFolder.VerdictFile(v.Epoch)))))
+                    TellTheLoop(runFolder, verdict, error);
+            }
             var halts = new List<int>();
             Verdict? latest = null;
             int recorded = 0;

@@ -102,6 +102,13 @@ public sealed class PyTorchLoopTests : IClassFixture<PythonRunFixture>
         Assert.All(Enumerable.Range(1, Epochs), e => Assert.True(File.Exists(Path.Combine(folder, VerdictFile(e)))));
         Assert.Equal("Halt", VerdictIn(folder, halts[0]));
 
+        // Following again stores nothing new, writes back a verdict file that went missing, and still reports the run's Halts.
+        File.Delete(Path.Combine(folder, VerdictFile(3)));
+        var again = Follow(folder, "--store", store, "--once");
+        Assert.Equal(ExitCodes.Halt, again.Code);
+        Assert.Contains("done: 0 epochs recorded in this call", again.Output, StringComparison.Ordinal);
+        Assert.Equal(reading.Verdicts(run.Id).Single(v => v.Epoch == 3).Kind, VerdictIn(folder, 3));
+
         Assert.Equal(ExitCodes.Halt, stopped.Code);
         using var stoppedReading = RunStore.OpenForReading(stopping);
         Assert.Equal(Enumerable.Range(1, halts[0]), stoppedReading.Epochs(stoppedReading.GetRun(Path.GetFileName(folder)).Id).Select(e => e.Epoch));
