@@ -39,9 +39,22 @@ Example::
         for epoch in range(1, 31):
             train_loss = train_one_epoch(model)
             validation_loss = evaluate(model)
-            folder.end_epoch(model, epoch, train_loss=train_loss, validation_loss=validation_loss)
+            verdict = folder.end_epoch(model, epoch, train_loss=train_loss, validation_loss=validation_loss,
+                                       verdict_timeout=120)
+            if verdict.halt:
+                print("stopping at epoch", epoch, verdict.kinds, verdict.reasons)
+                break
 
-Then, in another shell (or the morning after): ``driftwatch follow runs/night-7 --store runs/store.litedb``.
+Beside it, in another shell, started before or after the loop: ``driftwatch follow runs/night-7 --store runs/store.litedb``.
+``follow`` writes ``verdict-0001.json``, ... into the folder as it judges each epoch; ``end_epoch`` with ``verdict_timeout``
+waits up to that many seconds for the verdict of the epoch it just wrote and returns it, so the loop hears it in the same
+epoch. A wait that runs out raises nothing: it prints one line to stderr and returns a ``Verdict`` whose ``arrived`` is
+False (``halt`` False), and the epoch is judged whenever ``follow`` runs. Without ``verdict_timeout`` nothing waits:
+``end_epoch`` returns the not-arrived ``Verdict`` and ``folder.latest_verdict()`` at the next epoch gives the newest
+verdict there (one epoch behind or more). Pass ``raise_on_timeout=True`` to the writer to get ``VerdictTimeout`` instead.
+
+A model with dense inputs only, or categorical ids only, passes ``None`` for the missing part:
+``held_out=(x, None, y)`` or ``held_out=(None, ids, y)``; ``encode`` then receives an empty ``[rows, 0]`` tensor there.
 
 Optional, when ``score`` applies a ``torch.nn.Linear`` to the features first (``body.0`` above): export the rest of
 ``score`` as ``score_after_entry(entry)`` and pass ``entry_layer="body.0"``. DriftWatch then walks Integrated
@@ -51,7 +64,7 @@ Gradients' path in that layer's output, which gives the same attributions for le
         def score_after_entry(self, entry: torch.Tensor) -> torch.Tensor:
             return self.body[2](self.body[1](entry))
 
-Files written (the run-folder contract, README "Watching a PyTorch run"):
+Files written (the run-folder contract, docs/pytorch.md):
 
 * ``schema.json``: the features in feature-space order, each with its kind and the columns it owns;
 * ``probe.csv``: the probe rows (dense columns, categorical ids, label, half), written once;
@@ -59,12 +72,17 @@ Files written (the run-folder contract, README "Watching a PyTorch run"):
   so a reader never sees half a file;
 * ``metrics.jsonl``: one JSON object per epoch, appended after that epoch's snapshot is in place;
 * ``finished``: written by ``close()``; tells ``follow`` that no more epochs will come.
+
+``follow`` writes one file back: ``verdict-0001.json``, ... (epoch, verdict, kinds, reasons, findings), under a temporary
+name and renamed, so this helper never reads half a file. A Halt is advice to a person, not proof.
 """
 
 import csv
 import json
 import math
 import os
+import sys
+import time
 
 import torch
 
@@ -73,12 +91,70 @@ ENTRY_METHOD = "score_after_entry"
 PROBE_FILE = "probe.csv"
 METRICS_FILE = "metrics.jsonl"
 FINISHED_FILE = "finished"
-CONTRACT_VERSION = 1
+# The run-folder contract (schema.json "contract"): 2 adds the verdict files follow writes back. A driftwatch that reads
+# only older contracts refuses the folder with one line (exit 2).
+CONTRACT_VERSION = 2
+HELPER_VERSION = "2.0"
+VERDICTS = ("Continue", "Caution", "Halt")
+
+
+class VerdictTimeout(TimeoutError):
+    """Raised by ``end_epoch`` when its wait for the verdict runs out and the writer was made with ``raise_on_timeout=True``."""
+
+
+class Verdict:
+    """The verdict ``driftwatch follow`` wrote for one epoch, or the fact that none is there (``arrived`` False).
+
+    ``halt``: whether Halt is advised (advice to a person, not proof); ``verdict``: ``Continue``, ``Caution`` or ``Halt``
+    (None when not arrived); ``kinds``: the finding kinds behind that verdict (``kind``: the first, or None);
+    ``reasons``: one line each; ``findings``: dicts with kind, severity, feature, evidence; ``message``: why nothing arrived.
+    """
+
+    def __init__(self, epoch, verdict=None, kinds=(), reasons=(), findings=(), message=""):
+        self.epoch = int(epoch)
+        self.verdict = verdict
+        self.arrived = verdict is not None
+        self.halt = verdict == "Halt"
+        self.caution = verdict == "Caution"
+        self.kinds = tuple(kinds)
+        self.kind = self.kinds[0] if self.kinds else None
+        self.reasons = tuple(reasons)
+        self.findings = tuple(findings)
+        self.message = str(message)
+
+    def __bool__(self):
+        return self.arrived
+
+    def __repr__(self):
+        if not self.arrived:
+            return "Verdict(epoch=%d, arrived=False, message=%r)" % (self.epoch, self.message)
+        return "Verdict(epoch=%d, verdict=%r, kinds=%r, reasons=%r)" % (self.epoch, self.verdict, self.kinds, self.reasons)
 
 
 def snapshot_name(epoch):
     """The file name of an epoch's TorchScript snapshot, e.g. ``epoch-0007.pt``."""
     return "epoch-%04d.pt" % epoch
+
+
+def verdict_name(epoch):
+    """The file name of the verdict ``follow`` writes for an epoch, e.g. ``verdict-0007.json``."""
+    return "verdict-%04d.json" % epoch
+
+
+def read_verdict(folder, epoch):
+    """The verdict ``follow`` wrote for ``epoch`` in ``folder``, or a ``Verdict`` with ``arrived`` False when none is there."""
+    path = os.path.join(str(folder), verdict_name(epoch))
+    try:
+        with open(path, encoding="utf-8") as stream:
+            document = json.load(stream)
+    except FileNotFoundError:
+        return Verdict(epoch, message="no verdict for epoch %d yet (%s is not there)" % (epoch, verdict_name(epoch)))
+    except (OSError, ValueError) as problem:
+        return Verdict(epoch, message="verdict file %s could not be read (%s)" % (path, problem))
+    kind = document.get("verdict") if isinstance(document, dict) else None
+    if kind not in VERDICTS or document.get("epoch") != epoch:
+        return Verdict(epoch, message="verdict file %s is not a verdict of epoch %d; let driftwatch follow write it" % (path, epoch))
+    return Verdict(epoch, kind, document.get("kinds", ()), document.get("reasons", ()), document.get("findings", ()))
 
 
 def dense(name):
@@ -96,18 +172,22 @@ def categorical(name, width):
 class RunFolderWriter:
     """Writes one run folder: the schema and probe rows once, then a snapshot and a metrics line per epoch."""
 
-    def __init__(self, folder, features, held_out, training, target="logit", training_cats=None, entry_layer=None):
+    def __init__(self, folder, features, held_out, training, target="logit", training_cats=None, entry_layer=None,
+                 raise_on_timeout=False):
         """Prepares ``folder`` (created if missing).
 
         ``features``: ``dense(...)`` and ``categorical(...)`` entries in the order ``encode`` lays out their columns.
         ``held_out`` and ``training``: ``(dense [rows, dense], cats [rows, categoricals], labels [rows])`` tensors for
-        the two halves of the probe set (rows the model does not train on, and rows it trains on).
+        the two halves of the probe set (rows the model does not train on, and rows it trains on). A model without dense
+        inputs passes ``None`` for dense, one without categoricals ``None`` for cats: ``encode`` then gets ``[rows, 0]``.
         ``target``: the attributed output: ``logit``, ``probability``, ``regression`` or ``class N``.
         ``training_cats``: optional, the categorical ids of every training row ``[rows, categoricals]``; the counts of
         each id let DriftWatch recognise identifier-like features (most ids in one to three rows).
         ``entry_layer``: optional, the module path (as ``named_modules()`` names it) of the ``torch.nn.Linear`` that
         ``score`` applies to the features first; the model must then export ``score_after_entry``, the rest of
         ``score``. Checked on the held-out rows at the first epoch.
+        ``raise_on_timeout``: when True, an ``end_epoch`` whose wait for the verdict runs out raises ``VerdictTimeout``;
+        by default it prints one line to stderr and returns a ``Verdict`` with ``arrived`` False.
         """
         self.folder = str(folder)
         self.features = [dict(f) for f in features]
@@ -121,6 +201,7 @@ class RunFolderWriter:
         self.training = tuple(_as_tensors(training, "training"))
         self.training_cats = None if training_cats is None else torch.as_tensor(training_cats, dtype=torch.int64)
         self.entry_layer = None if entry_layer is None else str(entry_layer)
+        self.raise_on_timeout = bool(raise_on_timeout)
         self._first = True
         self._last_epoch = None
         os.makedirs(self.folder, exist_ok=True)
@@ -130,9 +211,16 @@ class RunFolderWriter:
         """The feature-space width the schema declares."""
         return sum(f["width"] for f in self.features)
 
-    def end_epoch(self, model, epoch, train_loss, validation_loss, **others):
-        """Writes the epoch's TorchScript snapshot, then its metrics line. Call once per epoch, epochs increasing."""
+    def end_epoch(self, model, epoch, train_loss, validation_loss, verdict_timeout=None, **others):
+        """Writes the epoch's TorchScript snapshot, then its metrics line, and returns the epoch's ``Verdict``.
+
+        Call once per epoch, epochs increasing. ``verdict_timeout``: seconds to wait for the verdict ``driftwatch follow``
+        writes for this epoch (it arrives in this same call when follow keeps up); None (the default) does not wait and
+        returns a ``Verdict`` with ``arrived`` False. Other keyword arguments are stored as metrics.
+        """
         epoch = int(epoch)
+        if verdict_timeout is not None and not (float(verdict_timeout) >= 0):
+            raise ValueError("verdict_timeout must be a number of seconds of at least 0, or None not to wait; got %r" % (verdict_timeout,))
         if self._last_epoch is not None and epoch <= self._last_epoch:
             raise ValueError("epoch %d comes after epoch %d; epochs must increase" % (epoch, self._last_epoch))
         was_training = model.training
@@ -159,6 +247,39 @@ class RunFolderWriter:
             stream.flush()
             os.fsync(stream.fileno())
         self._last_epoch = epoch
+        if verdict_timeout is None:
+            return Verdict(epoch, message="not waited for (end_epoch without verdict_timeout); see latest_verdict()")
+        return self.wait_for_verdict(epoch, verdict_timeout)
+
+    def wait_for_verdict(self, epoch, timeout):
+        """Waits up to ``timeout`` seconds for the verdict of ``epoch``; returns it, or a not-arrived ``Verdict``."""
+        deadline = time.monotonic() + float(timeout)
+        while True:
+            verdict = read_verdict(self.folder, epoch)
+            if verdict.arrived or time.monotonic() >= deadline:
+                break
+            time.sleep(min(0.1, max(0.0, deadline - time.monotonic())))
+        if verdict.arrived:
+            return verdict
+        line = ("no verdict for epoch %d within %g s in %s; is 'driftwatch follow %s' running? The epoch is saved and will be "
+                "judged when follow reads it; training goes on" % (epoch, float(timeout), self.folder, self.folder))
+        if self.raise_on_timeout:
+            raise VerdictTimeout(line)
+        sys.stderr.write("driftwatch_follow: " + line + "\n")
+        sys.stderr.flush()
+        return Verdict(epoch, message=line)
+
+    def latest_verdict(self):
+        """The newest verdict ``follow`` has written into the folder, or a not-arrived ``Verdict`` (epoch 0) when none is."""
+        epochs = []
+        for name in os.listdir(self.folder):
+            if name.startswith("verdict-") and name.endswith(".json") and name[8:-5].isdigit():
+                epochs.append(int(name[8:-5]))
+        for epoch in sorted(epochs, reverse=True):
+            verdict = read_verdict(self.folder, epoch)
+            if verdict.arrived:
+                return verdict
+        return Verdict(0, message="no verdict in %s yet; is 'driftwatch follow' running on it?" % self.folder)
 
     def close(self):
         """Marks the run finished, so ``driftwatch follow`` stops once it has judged the last epoch."""
@@ -210,7 +331,7 @@ class RunFolderWriter:
         for f in self.features:
             described.append({"name": f["name"], "kind": f["kind"], "firstColumn": column, "columnCount": f["width"]})
             column += f["width"]
-        document = {"contract": CONTRACT_VERSION, "target": self.target, "encodeMethod": "encode", "scoreMethod": "score",
+        document = {"contract": CONTRACT_VERSION, "helper": HELPER_VERSION, "target": self.target, "encodeMethod": "encode", "scoreMethod": "score",
                     "features": described}
         if self.entry_layer is not None:
             document["entryLayer"] = self.entry_layer
@@ -251,9 +372,14 @@ class RunFolderWriter:
 def _as_tensors(half, what):
     if len(half) != 3:
         raise ValueError("%s must be (dense, cats, labels); got %d items" % (what, len(half)))
-    d = torch.as_tensor(half[0], dtype=torch.float32)
-    c = torch.as_tensor(half[1], dtype=torch.int64)
+    if half[2] is None:
+        raise ValueError("%s: labels are missing; give (dense, cats, labels) with labels [rows]" % what)
+    if half[0] is None and half[1] is None:
+        raise ValueError("%s: dense and cats are both None; give at least one of them" % what)
     y = torch.as_tensor(half[2], dtype=torch.float32).reshape(-1)
+    # A model without dense inputs (or without categoricals) gets an empty [rows, 0] tensor in their place.
+    d = torch.zeros(y.shape[0], 0) if half[0] is None else torch.as_tensor(half[0], dtype=torch.float32)
+    c = torch.zeros(y.shape[0], 0, dtype=torch.int64) if half[1] is None else torch.as_tensor(half[1], dtype=torch.int64)
     if d.dim() != 2 or c.dim() != 2 or not (d.shape[0] == c.shape[0] == y.shape[0]) or d.shape[0] == 0:
         raise ValueError("%s: dense [rows, dense], cats [rows, categoricals] and labels [rows] must have the same "
                          "number of rows, at least one; got %s, %s, %s"

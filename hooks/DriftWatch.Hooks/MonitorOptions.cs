@@ -109,6 +109,13 @@ public sealed record MonitorOptions
     /// </summary>
     public ModelRecipe? Model { get; init; }
 
+    /// <summary>
+    /// The run folder whose TorchScript snapshots are this run's models (a run written by <c>hooks/driftwatch_follow.py</c> and
+    /// followed by <c>driftwatch follow</c>, which sets it); stored with the run, so <c>reattribute</c> loads each epoch's
+    /// snapshot from there. Default: none.
+    /// </summary>
+    public string? RunFolder { get; init; }
+
     /// <summary>Measure each map's quality figures (infidelity, max-sensitivity) every attributed epoch. Default: null, off (they cost extra attribution).</summary>
     public QualityOptions? Quality { get; init; }
 

@@ -509,6 +509,7 @@ public sealed class TrainingMonitor : IDisposable
             Baseline = options.Baseline.Label,
             Policy = options.Policy.ToJson(),
             ModelFactory = RecipeOf(options)?.FactoryName ?? "",
+            RunFolder = options.RunFolder,
             ModelSettings = RecipeOf(options) is { } recipe ? new Dictionary<string, string>(recipe.Settings, StringComparer.Ordinal) : [],
             BaselineValues = options.Baseline.Values is null ? null : FloatBytes.FromFloats(options.Baseline.Values),
             WatchedLayers = options.WatchedLayers.IsDefault ? [] : [.. options.WatchedLayers],
@@ -560,6 +561,12 @@ public sealed class TrainingMonitor : IDisposable
             // A run begun without a model recipe learns it on resume, so its snapshots can be re-attributed.
             existing.ModelFactory = wanted.ModelFactory;
             existing.ModelSettings = wanted.ModelSettings;
+            learn = true;
+        }
+        if (existing.RunFolder is null && wanted.RunFolder is not null)
+        {
+            // A followed run stored before its folder was recorded learns where its TorchScript snapshots are.
+            existing.RunFolder = wanted.RunFolder;
             learn = true;
         }
         if (learn)

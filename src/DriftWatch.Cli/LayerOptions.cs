@@ -61,6 +61,11 @@ internal sealed class LayerOptions
     {
         var kinds = store.LayerMapKinds(run.Id);
         string name = DisplayText.Clean(run.Name);
+        if (kinds.Count == 0 && (run.RunFolder is not null || run.Description.StartsWith("followed from ", StringComparison.Ordinal)))
+        {
+            throw new DriftWatchException($"run '{name}' was followed from a Python run folder, and follow attributes the features of its TorchScript snapshots, not their hidden layers; "
+                + "the neuron audit and the pruning what-if need layer maps, which this version makes for C# runs only (docs/pytorch.md)");
+        }
         if (kinds.Count == 0)
             throw new DriftWatchException($"run '{name}' has no layer maps; name layers in MonitorOptions.WatchedLayers when training (the demo watches {DemoLayer})");
         var layers = kinds.Select(k => k.Layer).Distinct().ToList();

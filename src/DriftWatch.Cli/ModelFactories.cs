@@ -8,10 +8,15 @@ namespace DriftWatch.Cli;
 /// <remarks>No path read from a store is ever loaded: code outside DriftWatch runs only from an assembly the user names with <c>--model-assembly</c>.</remarks>
 internal static class ModelFactories
 {
-    /// <summary>The factory type stored as <c>Namespace.Type, Assembly</c>.</summary>
+    /// <summary>The factory type stored as <c>Namespace.Type, Assembly</c>; <paramref name="followed"/> says the run came from a Python run folder (the message then speaks of it).</summary>
     /// <exception cref="DriftWatchException">The run recorded no factory, the assembly cannot be loaded, or it has no such type.</exception>
-    public static Type Resolve(string run, string storedName, string? assemblyPath)
+    public static Type Resolve(string run, string storedName, string? assemblyPath, bool followed = false)
     {
+        if (string.IsNullOrWhiteSpace(storedName) && followed)
+        {
+            throw new DriftWatchException(
+                $"run '{DisplayText.Clean(run)}' was followed from a Python run folder, and its models are the TorchScript snapshots there; pass --run-folder FOLDER (the folder driftwatch_follow.py wrote), or follow the folder again with this version, which records it");
+        }
         if (string.IsNullOrWhiteSpace(storedName))
         {
             throw new DriftWatchException(

@@ -44,6 +44,11 @@ internal static class ReattributeCommand
             Description = "The .dll holding the run's model factory, when it is not part of DriftWatch; the only outside code this command runs.",
             HelpName = "PATH",
         };
+        var runFolder = new Option<string?>("--run-folder")
+        {
+            Description = "For a run followed from a Python run folder: the folder whose TorchScript snapshots are the run's models. Default: the folder follow recorded.",
+            HelpName = "FOLDER",
+        };
         var chunk = CommonOptions.Bounded("--chunk-rows", "At most this many expanded rows go through the model at once (1 to 1000000).", AttributionInput.DefaultChunkRows, 1, 1_000_000);
         var quality = new Option<bool>("--quality")
         {
@@ -68,7 +73,8 @@ internal static class ReattributeCommand
             + "and store them beside the originals under their own name, with their agreement with the maps already there; "
             + "stored maps are never changed, and epochs already re-attributed under that name are skipped. "
             + "With --shard K/N only a slice of the epochs is done and written to a shard store of its own, for many machines at once; 'merge' joins them. "
-            + "The model is rebuilt with the factory the run recorded. Progress goes to stderr on a terminal. "
+            + "The model is rebuilt with the factory the run recorded, or, for a run followed from a Python run folder, each epoch's TorchScript "
+            + "snapshot there is the model. Progress goes to stderr on a terminal. "
             + "Attributions describe the model, not causes in the data.\n"
             + ExitCodes.Help(
                 (ExitCodes.Fine, "done"),
@@ -81,6 +87,7 @@ internal static class ReattributeCommand
             epochs,
             storedAs,
             assembly,
+            runFolder,
             chunk,
             quality,
             shardOption,
@@ -99,14 +106,13 @@ internal static class ReattributeCommand
             if (shard is null && parse.GetResult(shardFolder) is { Implicit: false })
                 throw new DriftWatchException("--shard-folder goes with --shard K/N; without --shard the maps are stored in the store itself");
             if (shard is not null)
-                return RunShard(parse, path, runName, methodName, overrides, first, last, shard.Value, parse.GetValue(shardFolder)!, parse.GetValue(storedAs), parse.GetValue(assembly), parse.GetValue(chunk), parse.GetValue(quality));
+                return RunShard(parse, path, runName, methodName, overrides, first, last, shard.Value, parse.GetValue(shardFolder)!, parse.GetValue(storedAs), parse.GetValue(assembly), parse.GetValue(runFolder), parse.GetValue(chunk), parse.GetValue(quality));
 
             // Everything that can be refused is checked on a read-only store first, so bad input leaves the file untouched.
             RunDocument document;
             IAttributionMethod attribution;
-            Type factory;
             ReattributionOptions request;
-            IWatchedModel model;
+            Models models;
             using (var reading = RunStore.OpenForReading(path))
             {
                 document = reading.GetRun(runName);
@@ -115,7 +121,6 @@ internal static class ReattributeCommand
                 foreach (var (key, value) in overrides)
                     merged[key] = value;
                 attribution = AttributionMethods.Create(methodName, merged);
-                factory = ModelFactories.Resolve(document.Name, document.ModelFactory, parse.GetValue(assembly));
                 request = new ReattributionOptions
                 {
                     Method = attribution,
@@ -125,14 +130,14 @@ internal static class ReattributeCommand
                     ChunkRows = parse.GetValue(chunk),
                     Quality = parse.GetValue(quality) ? new QualityOptions() : null,
                 };
-                model = ModelRecipe.Build(factory, document.ModelSettings);
+                models = Models.Of(document, parse.GetValue(assembly), parse.GetValue(runFolder));
                 try
                 {
-                    Reattribution.Check(reading, document, model, request);
+                    Reattribution.Check(reading, document, models.Epochs, request);
                 }
                 catch
                 {
-                    model.Module.Dispose();
+                    models.Dispose();
                     throw;
                 }
             }
@@ -142,15 +147,15 @@ internal static class ReattributeCommand
             try
             {
                 using var runStore = RunStore.OpenForWriting(path);
-                results = Reattribution.Run(runStore, runStore.GetRun(runName), model, request, terminal ? new TerminalProgress(error) : null);
+                results = Reattribution.Run(runStore, runStore.GetRun(runName), models.Epochs, request, terminal ? new TerminalProgress(error) : null);
             }
             finally
             {
-                model.Module.Dispose();
+                models.Dispose();
                 if (terminal)
                     error.WriteLine();
             }
-            WriteSummary(output, document, request, attribution, factory, results, path);
+            WriteSummary(output, document, request, attribution, models.Description, results, path);
             return ExitCodes.Fine;
         });
         return command;
@@ -159,7 +164,7 @@ internal static class ReattributeCommand
     // A shard: the store is only read; the maps go to a shard store of the shard's own, checked before anything is written.
     private static int RunShard(
         ParseResult parse, string path, string runName, string methodName, List<(string Key, string Value)> overrides, int first, int last,
-        Shard shard, string folder, string? storedAs, string? assemblyPath, int chunkRows, bool measureQuality)
+        Shard shard, string folder, string? storedAs, string? assemblyPath, string? runFolder, int chunkRows, bool measureQuality)
     {
         var output = parse.InvocationConfiguration.Output;
         var error = parse.InvocationConfiguration.Error;
@@ -175,7 +180,6 @@ internal static class ReattributeCommand
         foreach (var (key, value) in overrides)
             merged[key] = value;
         var attribution = AttributionMethods.Create(methodName, merged);
-        var factory = ModelFactories.Resolve(document.Name, document.ModelFactory, assemblyPath);
         var request = new ReattributionOptions
         {
             Method = attribution,
@@ -185,23 +189,22 @@ internal static class ReattributeCommand
             ChunkRows = chunkRows,
             Quality = measureQuality ? new QualityOptions() : null,
         };
-        var model = ModelRecipe.Build(factory, document.ModelSettings);
+        using var models = Models.Of(document, assemblyPath, runFolder);
         bool terminal = ReferenceEquals(error, Console.Error) && !Console.IsErrorRedirected;
         IReadOnlyList<ReattributedEpoch> results;
         try
         {
-            var all = Reattribution.Check(reading, document, model, request);
+            var all = Reattribution.Check(reading, document, models.Epochs, request);
             if (File.Exists(shardPath))
             {
                 using var existing = RunStore.OpenForReading(shardPath);
                 Reattribution.CheckShardStore(existing, ShardDocuments.For(document, request, shard, all, shard.Slice(all), reading.Path));
             }
             using var shardStore = RunStore.OpenForWriting(shardPath);
-            results = Reattribution.RunShard(reading, document, model, request, shard, shardStore, terminal ? new TerminalProgress(error) : null);
+            results = Reattribution.RunShard(reading, document, models.Epochs, request, shard, shardStore, terminal ? new TerminalProgress(error) : null);
         }
         finally
         {
-            model.Module.Dispose();
             if (terminal)
                 error.WriteLine();
         }
@@ -219,12 +222,12 @@ internal static class ReattributeCommand
         return ExitCodes.Fine;
     }
 
-    private static void WriteSummary(TextWriter output, RunDocument run, ReattributionOptions request, IAttributionMethod method, Type factory, IReadOnlyList<ReattributedEpoch> results, string store)
+    private static void WriteSummary(TextWriter output, RunDocument run, ReattributionOptions request, IAttributionMethod method, string models, IReadOnlyList<ReattributedEpoch> results, string store)
     {
         int stored = results.Count(r => r.Outcome == ReattributionOutcome.Stored);
         string settings = method.Settings.Count == 0 ? "" : " (" + string.Join(", ", method.Settings.Select(s => s.Key + "=" + s.Value)) + ")";
         output.WriteLine($"run {DisplayText.Clean(run.Name)}: {Formats.Integer(stored)} of {Formats.Integer(results.Count)} epochs re-attributed with {method.Name}{DisplayText.Clean(settings)}, stored as '{DisplayText.Clean(request.Name)}'");
-        output.WriteLine($"  model rebuilt by {DisplayText.Clean(factory.FullName ?? factory.Name)} from the run's settings; {results.Sum(r => r.Seconds).ToString("0.0", CultureInfo.InvariantCulture)} s");
+        output.WriteLine($"  {models}; {results.Sum(r => r.Seconds).ToString("0.0", CultureInfo.InvariantCulture)} s");
         var already = results.Where(r => r.Outcome == ReattributionOutcome.AlreadyStored).Select(r => r.Epoch).ToList();
         if (already.Count > 0)
             output.WriteLine($"  already stored under that name, left as they were: epochs {Shard.Describe(already)}");
@@ -234,6 +237,45 @@ internal static class ReattributeCommand
         WriteProblems(output, results);
         output.WriteLine($"  see them with: driftwatch show {Quote(run.Name)} --method {Quote(request.Name)} --store {Quote(store)}");
         output.WriteLine("  Attributions describe the model, not causes in the data.");
+    }
+
+    // The run's models: each epoch's TorchScript snapshot in its run folder, or the weight snapshots in the store loaded
+    // into a model its recorded factory rebuilds.
+    private sealed class Models : IDisposable
+    {
+        private readonly IWatchedModel? _rebuilt;
+
+        private Models(EpochModels epochs, string description, IWatchedModel? rebuilt)
+        {
+            Epochs = epochs;
+            Description = description;
+            _rebuilt = rebuilt;
+        }
+
+        public EpochModels Epochs { get; }
+
+        public string Description { get; }
+
+        public static Models Of(RunDocument run, string? assemblyPath, string? runFolder)
+        {
+            if (runFolder is not null || run.ModelFactory.Length == 0)
+            {
+                if (FolderSnapshots.Of(run, runFolder) is { } folder)
+                    return new Models(folder, $"each epoch's TorchScript snapshot in run folder {DisplayText.Clean(folder.Path)} is its model", null);
+            }
+            var factory = ModelFactories.Resolve(run.Name, run.ModelFactory, assemblyPath, IsFollowed(run));
+            var model = ModelRecipe.Build(factory, run.ModelSettings);
+            return new Models(new StoredWeights(model), $"model rebuilt by {DisplayText.Clean(factory.FullName ?? factory.Name)} from the run's settings", model);
+        }
+
+        // Runs followed before the folder was recorded say so in their description only.
+        public static bool IsFollowed(RunDocument run) => run.RunFolder is not null || run.Description.StartsWith("followed from ", StringComparison.Ordinal);
+
+        public void Dispose()
+        {
+            Epochs.Release();
+            _rebuilt?.Module.Dispose();
+        }
     }
 
     // What went wrong without stopping an epoch: a declared entry layer that failed its check.

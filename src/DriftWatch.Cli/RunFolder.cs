@@ -3,6 +3,7 @@ using System.Globalization;
 using System.Text;
 using System.Text.Json;
 using System.Text.RegularExpressions;
+using DriftWatch.Detection;
 using DriftWatch.Hooks;
 using DriftWatch.Model;
 using DriftWatch.Probing;
@@ -16,7 +17,7 @@ namespace DriftWatch.Cli;
 internal sealed record FolderEpoch(int Epoch, string SnapshotPath, EpochMetrics Metrics);
 
 /// <summary>
-/// Reads a run folder written by <c>hooks/driftwatch_follow.py</c> (README, "Watching a PyTorch run"): the schema,
+/// Reads a run folder written by <c>hooks/driftwatch_follow.py</c> (docs/pytorch.md): the schema,
 /// the probe rows, the per-epoch snapshots and metrics lines, and the marker that says the run has finished.
 /// Nothing read here is executed; only the snapshots are, by <see cref="TorchScriptModel"/>.
 /// </summary>
@@ -33,6 +34,12 @@ internal sealed partial class RunFolder
 
     /// <summary>The marker written when the training loop closes the folder.</summary>
     public const string FinishedFile = "finished";
+
+    /// <summary>
+    /// The newest run-folder contract this version reads (<c>"contract"</c> in the schema file): 1, the first; 2, a helper that
+    /// waits for the verdict files <c>follow</c> writes. A folder of a newer contract is refused with one line.
+    /// </summary>
+    public const int NewestContract = 2;
 
     private RunFolder(string path, FeatureSchema schema, ProbeSet probe, AttributionTarget target, string encodeMethod, string scoreMethod,
         TorchScriptEntry? entry, ImmutableDictionary<string, ImmutableDictionary<long, int>> valueCounts)
@@ -130,6 +137,36 @@ internal sealed partial class RunFolder
     /// <summary>The snapshot file name of an epoch, e.g. <c>epoch-0007.pt</c>.</summary>
     public static string SnapshotFile(int epoch) => string.Create(CultureInfo.InvariantCulture, $"epoch-{epoch:D4}.pt");
 
+    /// <summary>The verdict file name of an epoch, e.g. <c>verdict-0007.json</c>.</summary>
+    public static string VerdictFile(int epoch) => string.Create(CultureInfo.InvariantCulture, $"verdict-{epoch:D4}.json");
+
+    /// <summary>
+    /// Writes the verdict of an epoch into the folder as <c>verdict-NNNN.json</c> (epoch, verdict, kinds, reasons, findings),
+    /// under a temporary name and renamed, so the Python helper never reads half a file.
+    /// </summary>
+    /// <exception cref="DriftWatchException">The file cannot be written.</exception>
+    public void WriteVerdict(Verdict verdict)
+    {
+        var document = new Dictionary<string, object>
+        {
+            ["contract"] = NewestContract,
+            ["epoch"] = verdict.Epoch,
+            ["verdict"] = verdict.Kind.ToString(),
+            ["kinds"] = verdict.Findings.Where(f => f.Severity == verdict.Kind).Select(f => f.Kind.Name).Distinct().ToList(),
+            ["reasons"] = verdict.Reasons.ToList(),
+            ["findings"] = verdict.Findings.Select(f => new Dictionary<string, object>
+            {
+                ["kind"] = f.Kind.Name,
+                ["severity"] = f.Severity.ToString(),
+                ["feature"] = f.Feature,
+                ["evidence"] = f.Evidence,
+            }).ToList(),
+        };
+        OutputFile.WriteText(System.IO.Path.Combine(Path, VerdictFile(verdict.Epoch)), JsonSerializer.Serialize(document, VerdictJson) + "\n");
+    }
+
+    private static readonly JsonSerializerOptions VerdictJson = new() { WriteIndented = true, Encoder = System.Text.Encodings.Web.JavaScriptEncoder.UnsafeRelaxedJsonEscaping };
+
     [GeneratedRegex(@"^epoch-(\d{1,9})\.pt$", RegexOptions.CultureInvariant)]
     private static partial Regex SnapshotName();
 
@@ -150,6 +187,16 @@ internal sealed partial class RunFolder
             var root = document.RootElement;
             if (root.ValueKind != JsonValueKind.Object || !root.TryGetProperty("features", out var features) || features.ValueKind != JsonValueKind.Array)
                 throw new DriftWatchException(Bad("needs an object with a \"features\" array"));
+            if (root.TryGetProperty("contract", out var contract))
+            {
+                if (!contract.TryGetInt32(out int version) || version < 1)
+                    throw new DriftWatchException(Bad("\"contract\" must be a whole number of at least 1; let driftwatch_follow.py write the schema"));
+                if (version > NewestContract)
+                {
+                    throw new DriftWatchException(Bad($"written by a newer driftwatch_follow.py (run-folder contract {version}); this driftwatch reads contracts up to {NewestContract} — "
+                        + "update driftwatch, or write the folder with the driftwatch_follow.py that comes with this version (hooks/)"));
+                }
+            }
             var builder = FeatureSchema.CreateBuilder();
             int column = 0, index = 0;
             foreach (var feature in features.EnumerateArray())

@@ -109,16 +109,22 @@ public static class Reattribution
     /// <param name="progress">Told after each epoch, or null.</param>
     /// <returns>One entry per epoch in the range.</returns>
     /// <exception cref="DriftWatchException">A bad request, a model or snapshot that does not fit, or no epoch in the range.</exception>
-    internal static IReadOnlyList<ReattributedEpoch> Run(RunStore store, RunDocument run, IWatchedModel model, ReattributionOptions request, IProgress<ReattributedEpoch>? progress = null)
+    internal static IReadOnlyList<ReattributedEpoch> Run(RunStore store, RunDocument run, IWatchedModel model, ReattributionOptions request, IProgress<ReattributedEpoch>? progress = null) =>
+        Run(store, run, new StoredWeights(model), request, progress);
+
+    /// <summary>Re-attributes the requested epochs of <paramref name="run"/> with the models <paramref name="models"/> gives each epoch.</summary>
+    /// <exception cref="DriftWatchException">A bad request, a model or snapshot that does not fit, or no epoch in the range.</exception>
+    internal static IReadOnlyList<ReattributedEpoch> Run(RunStore store, RunDocument run, EpochModels models, ReattributionOptions request, IProgress<ReattributedEpoch>? progress = null)
     {
-        var epochs = Check(store, run, model, request);
+        ArgumentNullException.ThrowIfNull(models);
+        var epochs = Check(store, run, models, request);
         string label = AttributionTarget.Parse(run.Target).Label;
         // The run's one live writer for as long as the maps are written: refused while a monitor still writes the run.
         store.ClaimWriter(run, "reattribute", DateTime.UtcNow, RunStore.DefaultStaleWriterAfter);
         try
         {
             return Execute(
-                store, run, model, request, epochs, progress,
+                store, run, models, request, epochs, progress,
                 epoch => store.FindMap(run.Id, epoch, request.Name, label) is not null,
                 (map, quality) => store.InOneTransaction(() =>
                 {
@@ -148,7 +154,13 @@ public static class Reattribution
     /// <returns>One entry per epoch of the shard (none when the shard's slice is empty).</returns>
     /// <exception cref="DriftWatchException">A bad request, or a shard store holding another shard or job.</exception>
     internal static IReadOnlyList<ReattributedEpoch> RunShard(
-        RunStore source, RunDocument run, IWatchedModel model, ReattributionOptions request, Shard shard, RunStore shardStore, IProgress<ReattributedEpoch>? progress = null)
+        RunStore source, RunDocument run, IWatchedModel model, ReattributionOptions request, Shard shard, RunStore shardStore, IProgress<ReattributedEpoch>? progress = null) =>
+        RunShard(source, run, new StoredWeights(model), request, shard, shardStore, progress);
+
+    /// <summary>One shard of the requested epochs, with the models <paramref name="model"/> gives each epoch (see the overload above).</summary>
+    /// <exception cref="DriftWatchException">A bad request, or a shard store holding another shard or job.</exception>
+    internal static IReadOnlyList<ReattributedEpoch> RunShard(
+        RunStore source, RunDocument run, EpochModels model, ReattributionOptions request, Shard shard, RunStore shardStore, IProgress<ReattributedEpoch>? progress = null)
     {
         ArgumentNullException.ThrowIfNull(shardStore);
         var all = Check(source, run, model, request);
@@ -197,7 +209,7 @@ public static class Reattribution
     }
 
     private static IReadOnlyList<ReattributedEpoch> Execute(
-        RunStore source, RunDocument run, IWatchedModel model, ReattributionOptions request, IReadOnlyList<EpochDocument> epochs,
+        RunStore source, RunDocument run, EpochModels models, ReattributionOptions request, IReadOnlyList<EpochDocument> epochs,
         IProgress<ReattributedEpoch>? progress, Func<int, bool> alreadyStored, Action<MapDocument, MapQualityDocument> write)
     {
         var attribution = new EpochAttribution
@@ -212,7 +224,6 @@ public static class Reattribution
             Quality = request.Quality,
         };
         var results = new List<ReattributedEpoch>();
-        var module = model.Module;
         for (int i = 0; i < epochs.Count; i++)
         {
             var epoch = epochs[i];
@@ -223,18 +234,23 @@ public static class Reattribution
             {
                 outcome = ReattributionOutcome.AlreadyStored;
             }
-            else if (epoch.SnapshotId is null)
+            else if (models.Load(source, run, epoch) is not { } model)
             {
                 outcome = ReattributionOutcome.NoSnapshot;
             }
             else
             {
-                using (var weights = source.ReadSnapshot(epoch.SnapshotId))
-                    Snapshots.LoadInto(module, weights, $"the snapshot of epoch {epoch.Epoch} of run '{run.Name}'");
-                var (map, quality, entryProblems) = AttributeEpoch(source, run, model, attribution, request, epoch.Epoch);
-                write(map, quality);
+                try
+                {
+                    var (map, quality, entryProblems) = AttributeEpoch(source, run, model, attribution, request, epoch.Epoch);
+                    write(map, quality);
+                    problems = entryProblems;
+                }
+                finally
+                {
+                    models.Release();
+                }
                 outcome = ReattributionOutcome.Stored;
-                problems = entryProblems;
             }
             var result = new ReattributedEpoch(epoch.Epoch, outcome, clock.Elapsed.TotalSeconds, i + 1, epochs.Count) { Problems = problems };
             results.Add(result);
@@ -245,7 +261,12 @@ public static class Reattribution
 
     /// <summary>Checks a request against the store without writing anything, and returns the epochs it covers.</summary>
     /// <exception cref="DriftWatchException">A bad name or range, a model whose schema differs from the run's, or a damaged run record.</exception>
-    internal static IReadOnlyList<EpochDocument> Check(RunStore store, RunDocument run, IWatchedModel model, ReattributionOptions request)
+    internal static IReadOnlyList<EpochDocument> Check(RunStore store, RunDocument run, IWatchedModel model, ReattributionOptions request) =>
+        Check(store, run, new StoredWeights(model), request);
+
+    /// <summary>Checks a request against the store without writing anything, and returns the epochs it covers.</summary>
+    /// <exception cref="DriftWatchException">A bad name or range, models whose schema differs from the run's, or a damaged run record.</exception>
+    internal static IReadOnlyList<EpochDocument> Check(RunStore store, RunDocument run, EpochModels model, ReattributionOptions request)
     {
         ArgumentNullException.ThrowIfNull(store);
         ArgumentNullException.ThrowIfNull(run);
@@ -272,12 +293,7 @@ public static class Reattribution
             string stored = all.Count == 0 ? "it has no complete epochs yet" : $"its epochs run from {all[0].Epoch} to {all[^1].Epoch}";
             throw new DriftWatchException($"run '{run.Name}' has no complete epoch in {Range(request)}; {stored}");
         }
-        var first = epochs.FirstOrDefault(e => e.SnapshotId is not null);
-        if (first is not null)
-        {
-            using var weights = store.ReadSnapshot(first.SnapshotId!);
-            Snapshots.CheckFit(model.Module, weights, $"the snapshot of epoch {first.Epoch} of run '{run.Name}'");
-        }
+        model.CheckFit(store, run, epochs);
         return epochs;
     }
 
@@ -338,6 +354,55 @@ public static class Reattribution
         (request.FirstEpoch == int.MinValue ? "" : request.FirstEpoch.ToString(System.Globalization.CultureInfo.InvariantCulture))
         + ".."
         + (request.LastEpoch == int.MaxValue ? "" : request.LastEpoch.ToString(System.Globalization.CultureInfo.InvariantCulture));
+}
+
+/// <summary>Where a re-attribution gets each epoch's model: weights loaded into one rebuilt model, or a model file per epoch.</summary>
+internal abstract class EpochModels
+{
+    /// <summary>The models' feature schema.</summary>
+    public abstract FeatureSchema Schema { get; }
+
+    /// <summary>Checks, before anything is written, that the first epoch with a snapshot gives a model that fits the run.</summary>
+    /// <exception cref="DriftWatchException">It does not fit.</exception>
+    public abstract void CheckFit(RunStore store, RunDocument run, IReadOnlyList<EpochDocument> epochs);
+
+    /// <summary>The model of <paramref name="epoch"/>, or null when the epoch has no snapshot; <see cref="Release"/> follows its use.</summary>
+    public abstract IWatchedModel? Load(RunStore store, RunDocument run, EpochDocument epoch);
+
+    /// <summary>Lets go of the model <see cref="Load"/> gave. Default: nothing to do.</summary>
+    public virtual void Release()
+    {
+    }
+}
+
+/// <summary>The weight snapshots in the store, loaded in turn into one model of the run's architecture.</summary>
+/// <param name="model">A model of the run's architecture; its weights are replaced by each snapshot.</param>
+internal sealed class StoredWeights(IWatchedModel model) : EpochModels
+{
+    private readonly IWatchedModel _model = model ?? throw new ArgumentNullException(nameof(model));
+
+    /// <inheritdoc />
+    public override FeatureSchema Schema => _model.Schema;
+
+    /// <inheritdoc />
+    public override void CheckFit(RunStore store, RunDocument run, IReadOnlyList<EpochDocument> epochs)
+    {
+        var first = epochs.FirstOrDefault(e => e.SnapshotId is not null);
+        if (first is null)
+            return;
+        using var weights = store.ReadSnapshot(first.SnapshotId!);
+        Snapshots.CheckFit(_model.Module, weights, $"the snapshot of epoch {first.Epoch} of run '{run.Name}'");
+    }
+
+    /// <inheritdoc />
+    public override IWatchedModel? Load(RunStore store, RunDocument run, EpochDocument epoch)
+    {
+        if (epoch.SnapshotId is null)
+            return null;
+        using (var weights = store.ReadSnapshot(epoch.SnapshotId))
+            Snapshots.LoadInto(_model.Module, weights, $"the snapshot of epoch {epoch.Epoch} of run '{run.Name}'");
+        return _model;
+    }
 }
 
 /// <summary>Converts per-half importance to its stored form.</summary>

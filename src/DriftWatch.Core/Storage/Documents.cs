@@ -115,6 +115,9 @@ internal sealed record RunDocument
 
     /// <summary>The layer methods and their settings (empty when no layer is watched); null in runs registered before they were recorded.</summary>
     public List<MethodDocument>? LayerMethods { get; set; }
+
+    /// <summary>The run folder whose TorchScript snapshots are the run's models (a followed Python run), or null.</summary>
+    public string? RunFolder { get; set; }
 }
 
 /// <summary>Per-feature aggregates over one half of the probe set.</summary>
