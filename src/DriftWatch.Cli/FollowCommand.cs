@@ -80,7 +80,7 @@ internal static class FollowCommand
                 Strict = true,
                 // follow continues its own run: epochs already stored are skipped, the folder's later ones appended.
                 Resume = true,
-                Description = $"followed from {runFolder.Path} (TorchScript snapshots stay there)",
+                Description = RunSnapshots.FollowedDescription(runFolder.Path),
             };
             using var monitor = new TrainingMonitor(options);
             output.WriteLine($"following '{DisplayText.Clean(runFolder.Path)}' as run '{DisplayText.Clean(name)}' in '{DisplayText.Clean(options.StorePath)}'"

@@ -89,6 +89,18 @@ public sealed record FindingMeasure(string Statistic, string Unit, string Bound)
     public static FindingMeasure Of(Finding finding, EpochStatistics? statistics, int feature)
     {
         ArgumentNullException.ThrowIfNull(finding);
+        return Of(finding.Kind, finding.Size, finding.NoiseFloor, statistics, feature);
+    }
+
+    /// <summary>What a finding's statistic and bound measure, from its kind, size and noise floor (see <see cref="Of(Finding, EpochStatistics?, int)"/>).</summary>
+    /// <param name="kind">The finding's kind.</param>
+    /// <param name="size">Its size (<see cref="Finding.Size"/>).</param>
+    /// <param name="noiseFloor">Its noise floor or bound (<see cref="Finding.NoiseFloor"/>).</param>
+    /// <param name="statistics">The statistics of the epoch whose verdict lists the finding, or null.</param>
+    /// <param name="feature">The finding's feature index in the run's schema, or −1.</param>
+    public static FindingMeasure Of(FindingKind kind, double size, double noiseFloor, EpochStatistics? statistics, int feature)
+    {
+        var finding = (Kind: kind, Size: size, NoiseFloor: noiseFloor);
         if (finding.Kind == FindingKind.Leak)
         {
             bool share = statistics is not null && feature >= 0 && feature < statistics.ShareGap.Length && statistics.ShareGap[feature].Equals(finding.Size);
