@@ -128,7 +128,7 @@ internal sealed partial class RunFolder
     }
 
     /// <summary>The snapshot file name of an epoch, e.g. <c>epoch-0007.pt</c>.</summary>
-    public static string SnapshotFile(int epoch) => string.Create(CultureInfo.InvariantCulture, $"epoch-{epoch:D4}.pt");
+    public static string SnapshotFile(int epoch) => Storage.RunSnapshots.TorchScriptFile(epoch);
 
     [GeneratedRegex(@"^epoch-(\d{1,9})\.pt$", RegexOptions.CultureInvariant)]
     private static partial Regex SnapshotName();
