@@ -1,6 +1,7 @@
 using System.Diagnostics;
 using System.Text.Json;
 using DriftWatch.Cli;
+using DriftWatch.Export;
 using DriftWatch.Tests.Demo;
 using DriftWatch.Tests.Support;
 using Xunit;
@@ -105,6 +106,30 @@ public sealed class ExportReadersTests : IClassFixture<DemoStoreFixture>
         using var read = JsonDocument.Parse(output);
         foreach (string format in new[] { "csv", "json", "parquet" })
             AssertTables(read.RootElement.GetProperty(format), counts, check, $"DuckDB, {format}");
+    }
+
+    [Fact]
+    public void CommandJsonAndJsonExportsKeepTextAsUtf8WithoutHtmlEscapes()
+    {
+        using var folder = new TempFolder();
+        string exported = Path.Combine(folder.Path, "run.json");
+        Assert.Equal(ExitCodes.Fine, Cli("export", DemoStoreFixture.LeakRun, "--format", "json", "--out", exported).Code);
+        string check = Cli("check", DemoStoreFixture.LeakRun, "--json").Output;
+        string show = Cli("show", DemoStoreFixture.LeakRun, "--json").Output;
+        string findings = File.ReadAllText(RunExport.FindingsPath(exported));
+
+        // The leak's evidence quotes the feature ('…') and signs its gap (+0.69): written as they are, not \u0027 or \u002B.
+        foreach (string text in new[] { check, show, findings })
+        {
+            Assert.Contains("'", text, StringComparison.Ordinal);
+            Assert.DoesNotContain("\\u0027", text, StringComparison.Ordinal);
+            Assert.DoesNotContain("\\u002B", text, StringComparison.Ordinal);
+        }
+        // One naming convention: snake_case keys in show --json and check --json, as in the export.
+        using var shown = JsonDocument.Parse(show);
+        Assert.True(shown.RootElement.GetProperty("epochs")[0].TryGetProperty("validation_loss", out _));
+        using var checkedRun = JsonDocument.Parse(check);
+        Assert.True(checkedRun.RootElement.TryGetProperty("halt_advised", out _));
     }
 
     // Exports the leak run in every format through the CLI and reads check --json: its latest findings and the row counts.
