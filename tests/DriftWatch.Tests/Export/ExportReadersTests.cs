@@ -132,6 +132,21 @@ public sealed class ExportReadersTests : IClassFixture<DemoStoreFixture>
         Assert.True(checkedRun.RootElement.TryGetProperty("halt_advised", out _));
     }
 
+    [Fact]
+    public void AfterAHaltCheckAndTheReportNameTheCommandThatWritesTheBestEpochsWeights()
+    {
+        var (code, output) = Cli("check", DemoStoreFixture.LeakRun);
+        using var store = DriftWatch.Storage.RunStore.OpenForReading(_fixture.StorePath);
+        var best = DriftWatch.Storage.RunSnapshots.Choose(store, DemoStoreFixture.LeakRun, "best");
+        var history = DriftWatch.Charts.RunHistory.Load(store, DemoStoreFixture.LeakRun, DriftWatch.Charts.RunHistory.DefaultMethod);
+        var steps = DriftWatch.Charts.Report.RunReport.NextSteps(history, DriftWatch.Charts.Report.RunFindings.Summarise(history));
+
+        // The demo's leak run halts (demo/README.md, ground truth: a planted leak) and keeps a snapshot of every epoch.
+        Assert.Equal(ExitCodes.Halt, code);
+        Assert.Contains($"epoch {best.Epoch} had the lowest validation loss; write out its weights with: driftwatch weights {DemoStoreFixture.LeakRun} --epoch best --out {DemoStoreFixture.LeakRun}-best.weights", output, StringComparison.Ordinal);
+        Assert.Contains(steps, s => s.Contains($"driftwatch weights {DemoStoreFixture.LeakRun} --epoch best", StringComparison.Ordinal));
+    }
+
     // Exports the leak run in every format through the CLI and reads check --json: its latest findings and the row counts.
     private (JsonElement Check, (int Importance, int Epochs, int Findings) Counts) ExportAll(TempFolder folder)
     {
