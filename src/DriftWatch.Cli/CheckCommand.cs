@@ -45,23 +45,35 @@ internal static class CheckCommand
             var gate = policyPath is null ? null : GatePolicy.Load(policyPath);
             List<Verdict> verdicts;
             RunDocument document;
+            EpochStatistics? latestStatistics;
+            (string Command, SnapshotChoice Best)? weights;
             using (var runStore = CommonOptions.OpenStore(parse, store))
             {
                 document = runStore.GetRun(parse.GetValue(run)!);
                 Trust(runStore);
-                verdicts = gate is null
-                    ? runStore.Verdicts(document.Id).Select(VerdictDocuments.FromDocument).ToList()
-                    : RunReview.Replay(runStore, document, gate).Select(a => a.Verdict).ToList();
+                if (gate is null)
+                {
+                    verdicts = runStore.Verdicts(document.Id).Select(VerdictDocuments.FromDocument).ToList();
+                    latestStatistics = verdicts.Count == 0 ? null : runStore.StatisticsOf(document.Id).LastOrDefault(s => s.Epoch == verdicts[^1].Epoch)?.Statistics;
+                }
+                else
+                {
+                    var assessments = RunReview.Replay(runStore, document, gate);
+                    verdicts = assessments.Select(a => a.Verdict).ToList();
+                    latestStatistics = assessments.Count == 0 ? null : assessments[^1].Statistics;
+                }
+                weights = WeightsLine(runStore, document.Name);
             }
 
             var latest = verdicts.Count == 0 ? null : verdicts[^1];
             var firstHalt = verdicts.FirstOrDefault(v => v.IsHalt);
             bool halt = latest?.IsHalt == true || (parse.GetValue(any) && firstHalt is not null);
             string source = policyPath is null ? "stored verdicts" : "policy " + policyPath;
+            var features = document.Features.Select(f => f.Name).ToList();
             if (parse.GetValue(json))
-                WriteJson(output, document.Name, latest, firstHalt, halt, source);
+                WriteJson(output, document.Name, latest, firstHalt, halt, source, latestStatistics, features, weights);
             else
-                WriteText(output, document.Name, latest, firstHalt, halt, source);
+                WriteText(output, document.Name, latest, firstHalt, halt, source, weights);
             return halt ? ExitCodes.Halt : ExitCodes.Fine;
         });
         return command;
@@ -78,7 +90,21 @@ internal static class CheckCommand
         throw new StoreException($"store '{runStore.Path}' cannot be trusted: {problems[0]}{more}; 'driftwatch examine --store {runStore.Path}' lists every problem — use an intact copy");
     }
 
-    private static void WriteText(TextWriter output, string run, Verdict? latest, Verdict? firstHalt, bool halt, string source)
+    // The command that writes out the best epoch's snapshot, when the run kept one (null otherwise).
+    private static (string Command, SnapshotChoice Best)? WeightsLine(RunStore store, string run)
+    {
+        try
+        {
+            var best = RunSnapshots.Choose(store, run, RunSnapshots.Best);
+            return (WeightsCommand.Suggestion(run, best.Format), best);
+        }
+        catch (DriftWatchException)
+        {
+            return null; // no snapshot or no validation loss: nothing to name
+        }
+    }
+
+    private static void WriteText(TextWriter output, string run, Verdict? latest, Verdict? firstHalt, bool halt, string source, (string Command, SnapshotChoice Best)? weights)
     {
         string name = DisplayText.Clean(run);
         if (latest is null)
@@ -92,10 +118,14 @@ internal static class CheckCommand
         if (firstHalt is not null && firstHalt.Epoch != latest.Epoch)
             output.WriteLine($"  first Halt at epoch {Formats.Integer(firstHalt.Epoch)}: {DisplayText.Clean(firstHalt.Reasons.FirstOrDefault() ?? "")}");
         if (halt)
+        {
             output.WriteLine("  A Halt is advice to a person, not proof: attributions describe the model, not causes in the data.");
+            if (weights is var (command, best))
+                output.WriteLine($"  epoch {Formats.Integer(best.Epoch)} had the {best.Why}; write out its weights with: {DisplayText.Clean(command)}");
+        }
     }
 
-    private static void WriteJson(TextWriter output, string run, Verdict? latest, Verdict? firstHalt, bool halt, string source)
+    private static void WriteJson(TextWriter output, string run, Verdict? latest, Verdict? firstHalt, bool halt, string source, EpochStatistics? statistics, List<string> features, (string Command, SnapshotChoice Best)? weights)
     {
         var document = new Dictionary<string, object?>
         {
@@ -103,21 +133,31 @@ internal static class CheckCommand
             ["source"] = source,
             ["epoch"] = latest?.Epoch,
             ["verdict"] = latest?.Kind.ToString(),
-            ["haltAdvised"] = halt,
-            ["firstHaltEpoch"] = firstHalt?.Epoch,
-            ["findings"] = latest?.Findings.Select(f => new Dictionary<string, object?>
+            ["halt_advised"] = halt,
+            ["first_halt_epoch"] = firstHalt?.Epoch,
+            ["best_epoch"] = weights?.Best.Epoch,
+            ["weights_command"] = weights?.Command,
+            ["findings"] = latest?.Findings.Select(f =>
             {
-                ["kind"] = f.Kind.ToString(),
-                ["severity"] = f.Severity.ToString(),
-                ["feature"] = f.Feature,
-                ["size"] = double.IsFinite(f.Size) ? f.Size : null,
-                ["noiseFloor"] = double.IsFinite(f.NoiseFloor) ? f.NoiseFloor : null,
-                ["epochs"] = new[] { f.Epochs.First, f.Epochs.Last },
-                ["evidence"] = f.Evidence,
-                ["seenOnlyBy"] = f.SeenOnlyBy.IsDefaultOrEmpty ? Array.Empty<string>() : f.SeenOnlyBy.ToArray(),
-                ["agreement"] = double.IsFinite(f.Agreement) ? f.Agreement : null,
+                var measure = FindingMeasure.Of(f, statistics, features.IndexOf(f.Feature));
+                return new Dictionary<string, object?>
+                {
+                    ["kind"] = f.Kind.ToString(),
+                    ["severity"] = f.Severity.ToString(),
+                    ["feature"] = f.Feature,
+                    ["statistic"] = measure.Statistic != "none" && double.IsFinite(f.Size) ? f.Size : null,
+                    ["measure"] = measure.Statistic,
+                    ["unit"] = measure.Unit,
+                    ["bound"] = measure.HasBound && double.IsFinite(f.NoiseFloor) ? f.NoiseFloor : null,
+                    ["bound_kind"] = measure.Bound,
+                    ["since_epoch"] = f.Epochs.First,
+                    ["epochs"] = new[] { f.Epochs.First, f.Epochs.Last },
+                    ["evidence"] = f.Evidence,
+                    ["seen_only_by"] = f.SeenOnlyBy.IsDefaultOrEmpty ? Array.Empty<string>() : f.SeenOnlyBy.ToArray(),
+                    ["agreement"] = double.IsFinite(f.Agreement) ? f.Agreement : null,
+                };
             }).ToList() ?? [],
         };
-        output.WriteLine(JsonSerializer.Serialize(document));
+        output.WriteLine(JsonSerializer.Serialize(document, JsonText.Options));
     }
 }

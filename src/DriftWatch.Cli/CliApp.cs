@@ -56,7 +56,7 @@ public static class CliApp
         var store = CommonOptions.Store();
         var root = new RootCommand(
             "DriftWatch: read the run store a monitored training wrote; list runs, show their epochs and findings, render charts, "
-            + $"write a report, compare two runs, export tidy tables, check the gate's verdict (exit {ExitCodes.Halt} on Halt) for a scheduler, examine a store for damage, "
+            + $"write a report, compare two runs, export tidy tables, write out an epoch's weights, check the gate's verdict (exit {ExitCodes.Halt} on Halt) for a scheduler, examine a store for damage, "
             + "re-attribute stored snapshots with another method (whole, or in shards that merge joins), and follow a Python run folder. "
             + "Attributions describe the model, not causes; a Halt is advice, not proof.\n"
             + $"The store is --store PATH, else ${CommonOptions.StoreVariable}, else {CommonOptions.DefaultStoreFile} in the current folder; "
@@ -77,6 +77,7 @@ public static class CliApp
             FollowCommand.Create(store),
             ReportCommand.Create(store),
             ExportCommand.Create(store),
+            WeightsCommand.Create(store),
             CompareCommand.Create(store),
             MergeCommand.Create(),
             PolicyCommand.Create(),

@@ -180,6 +180,6 @@ internal static class CompareCommand
             ["onlyInB"] = c.OnlyInB.Select(Finding).ToList(),
             ["chart"] = chartPath,
         };
-        output.WriteLine(JsonSerializer.Serialize(document));
+        output.WriteLine(JsonSerializer.Serialize(document, JsonText.Options));
     }
 }

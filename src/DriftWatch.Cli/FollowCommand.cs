@@ -88,7 +88,7 @@ internal static class FollowCommand
                 Strict = true,
                 // follow continues its own run: epochs already stored are skipped, the folder's later ones appended.
                 Resume = true,
-                Description = $"followed from {runFolder.Path} (TorchScript snapshots stay there)",
+                Description = RunSnapshots.FollowedDescription(runFolder.Path),
             };
             // A follow stopped between storing an epoch and writing its verdict file leaves the loop waiting: the file is written now.
             if (stored >= 0)

@@ -212,7 +212,7 @@ internal static class NeuronsCommand
             }).ToList(),
             ["chart"] = chart,
         };
-        output.WriteLine(JsonSerializer.Serialize(document, new JsonSerializerOptions { WriteIndented = true }));
+        output.WriteLine(JsonSerializer.Serialize(document, JsonText.Indented));
     }
 
     private static string Range(IReadOnlyList<int> epochs) =>

@@ -186,6 +186,6 @@ internal static class PruneCommand
                 ["change"] = Figures(r.Change),
             }).ToList(),
         };
-        output.WriteLine(JsonSerializer.Serialize(document, new JsonSerializerOptions { WriteIndented = true }));
+        output.WriteLine(JsonSerializer.Serialize(document, JsonText.Indented));
     }
 }

@@ -135,7 +135,7 @@ internal sealed partial class RunFolder
     }
 
     /// <summary>The snapshot file name of an epoch, e.g. <c>epoch-0007.pt</c>.</summary>
-    public static string SnapshotFile(int epoch) => string.Create(CultureInfo.InvariantCulture, $"epoch-{epoch:D4}.pt");
+    public static string SnapshotFile(int epoch) => Storage.RunSnapshots.TorchScriptFile(epoch);
 
     /// <summary>The verdict file name of an epoch, e.g. <c>verdict-0007.json</c>.</summary>
     public static string VerdictFile(int epoch) => string.Create(CultureInfo.InvariantCulture, $"verdict-{epoch:D4}.json");

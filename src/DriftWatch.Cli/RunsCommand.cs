@@ -101,7 +101,7 @@ internal static class RunsCommand
                 ["worstVerdictEpoch"] = worst.Verdict?.Epoch,
             };
         }).ToList();
-        output.WriteLine(System.Text.Json.JsonSerializer.Serialize(list));
+        output.WriteLine(System.Text.Json.JsonSerializer.Serialize(list, JsonText.Options));
     }
 
     private static double? Finite(EpochDocument? epoch, string key) =>

@@ -85,9 +85,9 @@ internal static class ShowCommand
         {
             ["run"] = history.RunName,
             ["store"] = path,
-            ["createdUtc"] = history.CreatedUtc.ToString("yyyy-MM-ddTHH:mm:ssZ", System.Globalization.CultureInfo.InvariantCulture),
+            ["created_utc"] = history.CreatedUtc.ToString("yyyy-MM-ddTHH:mm:ssZ", System.Globalization.CultureInfo.InvariantCulture),
             ["description"] = history.Description,
-            ["probe"] = new Dictionary<string, object> { ["heldOutRows"] = history.HeldOutRows, ["trainingRows"] = history.TrainingRows, ["hash"] = history.ProbeHash },
+            ["probe"] = new Dictionary<string, object> { ["held_out_rows"] = history.HeldOutRows, ["training_rows"] = history.TrainingRows, ["hash"] = history.ProbeHash },
             ["method"] = history.Method,
             ["methods"] = history.Methods.ToArray(),
             ["target"] = history.Target,
@@ -96,26 +96,34 @@ internal static class ShowCommand
             ["epochs"] = history.Epochs.Select(e => new Dictionary<string, object?>
             {
                 ["epoch"] = e.Epoch,
-                ["trainLoss"] = Number(e.TrainLoss),
-                ["validationLoss"] = Number(e.ValidationLoss),
+                ["train_loss"] = Number(e.TrainLoss),
+                ["validation_loss"] = Number(e.ValidationLoss),
                 ["verdict"] = e.Verdict?.ToString(),
-                ["heldOutShare"] = e.IsAttributed ? e.HeldOutShare.Select(v => Number(v)).ToArray() : null,
-                ["trainingShare"] = e.IsAttributed ? e.TrainingShare.Select(v => Number(v)).ToArray() : null,
-                ["driftScore"] = Number(e.Statistics?.Drift),
+                ["held_out_share"] = e.IsAttributed ? e.HeldOutShare.Select(v => Number(v)).ToArray() : null,
+                ["training_share"] = e.IsAttributed ? e.TrainingShare.Select(v => Number(v)).ToArray() : null,
+                ["drift_score"] = Number(e.Statistics?.Drift),
                 ["problems"] = e.Problems.ToArray(),
             }).ToList(),
-            ["findings"] = RunFindings.Summarise(history).Select(f => new Dictionary<string, object?>
+            ["findings"] = RunFindings.Summarise(history).Select(f =>
             {
-                ["kind"] = f.Kind.ToString(),
-                ["feature"] = f.Feature,
-                ["severity"] = f.Severity.ToString(),
-                ["epochs"] = f.FlaggedEpochs.ToArray(),
-                ["since"] = f.Since,
-                ["size"] = Number(f.Size),
-                ["noiseFloor"] = Number(f.NoiseFloor),
-                ["evidence"] = f.Evidence,
-                ["seenOnlyBy"] = f.SeenOnlyBy.IsDefaultOrEmpty ? Array.Empty<string>() : f.SeenOnlyBy.ToArray(),
-                ["agreement"] = Number(f.Agreement),
+                var statistics = history.Epochs.FirstOrDefault(e => e.Epoch == f.FlaggedEpochs[^1])?.Statistics;
+                var measure = Detection.FindingMeasure.Of(f.Kind, f.Size, f.NoiseFloor, statistics, history.FeatureNames.IndexOf(f.Feature));
+                return new Dictionary<string, object?>
+                {
+                    ["kind"] = f.Kind.ToString(),
+                    ["feature"] = f.Feature,
+                    ["severity"] = f.Severity.ToString(),
+                    ["epochs"] = f.FlaggedEpochs.ToArray(),
+                    ["since_epoch"] = f.Since,
+                    ["statistic"] = measure.Statistic == "none" ? null : Number(f.Size),
+                    ["measure"] = measure.Statistic,
+                    ["unit"] = measure.Unit,
+                    ["bound"] = measure.HasBound ? Number(f.NoiseFloor) : null,
+                    ["bound_kind"] = measure.Bound,
+                    ["evidence"] = f.Evidence,
+                    ["seen_only_by"] = f.SeenOnlyBy.IsDefaultOrEmpty ? Array.Empty<string>() : f.SeenOnlyBy.ToArray(),
+                    ["agreement"] = Number(f.Agreement),
+                };
             }).ToList(),
             ["trust"] = trust.Select(t => new Dictionary<string, object?>
             {
@@ -123,14 +131,14 @@ internal static class ShowCommand
                 ["method"] = t.Method,
                 ["agreement"] = Number(t.Agreement),
                 ["measured"] = t.Measured,
-                ["relativeInfidelity"] = Number(t.RelativeInfidelity),
-                ["relativeMaxSensitivity"] = Number(t.RelativeMaxSensitivity),
+                ["relative_infidelity"] = Number(t.RelativeInfidelity),
+                ["relative_max_sensitivity"] = Number(t.RelativeMaxSensitivity),
                 ["infidelity"] = Number(t.Infidelity),
-                ["maxSensitivity"] = Number(t.MaxSensitivity),
+                ["max_sensitivity"] = Number(t.MaxSensitivity),
                 ["rows"] = t.Rows,
             }).ToList(),
         };
-        output.WriteLine(System.Text.Json.JsonSerializer.Serialize(document));
+        output.WriteLine(System.Text.Json.JsonSerializer.Serialize(document, JsonText.Options));
     }
 
     private static void WriteHeader(TextWriter output, RunHistory history, string path)

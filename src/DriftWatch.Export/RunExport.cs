@@ -1,33 +1,39 @@
 using System.Globalization;
 using System.Text;
+using System.Text.Encodings.Web;
 using System.Text.Json;
 using Parquet;
 using Parquet.Schema;
 
 namespace DriftWatch.Export;
 
-/// <summary>The file formats of an export.</summary>
+/// <summary>The file formats of an export. Every format writes three tables: importance at the path given, epochs and findings beside it.</summary>
 public enum ExportFormat
 {
     /// <summary>
-    /// Two RFC 4180 CSV files: the importance table at the path given, the epoch table beside it (<c>NAME-epochs.csv</c>).
-    /// Made for spreadsheets: see <see cref="CsvText"/> for how names are written.
+    /// Three RFC 4180 CSV files: the importance table at the path given, the epoch table (<c>NAME-epochs.csv</c>) and the
+    /// findings table (<c>NAME-findings.csv</c>) beside it. Made for spreadsheets: see <see cref="CsvText"/> for how names are written.
     /// </summary>
     Csv,
 
-    /// <summary>One JSON document holding both tables (shape: <see cref="RunExport.JsonSchema"/>).</summary>
+    /// <summary>
+    /// Three JSON files, one per table, each an array of flat records (one object per row, the CSV's columns as its
+    /// members), as <c>pandas.read_json</c> and DuckDB's <c>read_json</c> read them; UTF-8 text unescaped (shape: <see cref="RunExport.JsonSchema"/>).
+    /// </summary>
     Json,
 
-    /// <summary>Two Apache Parquet files: the importance table at the path given, the epoch table beside it (<c>NAME-epochs.parquet</c>).</summary>
+    /// <summary>Three Apache Parquet files: the importance table at the path given, the epoch and findings tables beside it (<c>NAME-epochs.parquet</c>, <c>NAME-findings.parquet</c>).</summary>
     Parquet,
 }
 
 /// <summary>The files an export wrote.</summary>
-/// <param name="Importance">The importance table (or the one JSON file).</param>
-/// <param name="Epochs">The epoch table; the same file as <paramref name="Importance"/> for JSON.</param>
+/// <param name="Importance">The importance table.</param>
+/// <param name="Epochs">The epoch table.</param>
 /// <param name="ImportanceRows">Rows in the importance table.</param>
 /// <param name="EpochRows">Rows in the epoch table.</param>
-public sealed record ExportFiles(string Importance, string Epochs, int ImportanceRows, int EpochRows);
+/// <param name="Findings">The findings table.</param>
+/// <param name="FindingRows">Rows in the findings table.</param>
+public sealed record ExportFiles(string Importance, string Epochs, int ImportanceRows, int EpochRows, string Findings, int FindingRows);
 
 /// <summary>How the CSV export writes names (runs, methods, targets, features, metric columns).</summary>
 public enum CsvText
@@ -48,10 +54,15 @@ public enum CsvText
 public static class RunExport
 {
     /// <summary>The importance table's columns, in order.</summary>
-    public static IReadOnlyList<string> ImportanceColumns { get; } =
-        ["run", "epoch", "method", "target", "half", "feature", "importance", "share", "lower", "upper", "signed_mean", "alignment"];
+    public static IReadOnlyList<string> ImportanceColumns => [.. ImportanceTable.Select(c => c.Name)];
 
-    /// <summary>The JSON Schema (draft 2020-12) of the JSON export.</summary>
+    /// <summary>The findings table's columns, in order.</summary>
+    public static IReadOnlyList<string> FindingColumns => [.. FindingTable.Select(c => c.Name)];
+
+    /// <summary>
+    /// The JSON Schema (draft 2020-12) of the JSON export: its <c>$defs</c> <c>importance</c>, <c>epochs</c> and <c>findings</c>
+    /// each describe one file (an array of records); the schema itself accepts any of the three.
+    /// </summary>
     public static string JsonSchema
     {
         get
@@ -78,17 +89,22 @@ public static class RunExport
     }
 
     /// <summary>The epoch table's path for an importance table at <paramref name="path"/>: <c>NAME-epochs.EXT</c> beside it.</summary>
-    public static string EpochsPath(string path)
+    public static string EpochsPath(string path) => Beside(path, "-epochs");
+
+    /// <summary>The findings table's path for an importance table at <paramref name="path"/>: <c>NAME-findings.EXT</c> beside it.</summary>
+    public static string FindingsPath(string path) => Beside(path, "-findings");
+
+    private static string Beside(string path, string suffix)
     {
         ArgumentNullException.ThrowIfNull(path);
         string folder = Path.GetDirectoryName(Path.GetFullPath(path)) ?? ".";
-        return Path.Combine(folder, Path.GetFileNameWithoutExtension(path) + "-epochs" + Path.GetExtension(path));
+        return Path.Combine(folder, Path.GetFileNameWithoutExtension(path) + suffix + Path.GetExtension(path));
     }
 
-    /// <summary>Writes <paramref name="tables"/> in <paramref name="format"/> to <paramref name="path"/> (and the epoch table beside it), replacing files there.</summary>
+    /// <summary>Writes <paramref name="tables"/> in <paramref name="format"/> to <paramref name="path"/> (and the epoch and findings tables beside it), replacing files there.</summary>
     /// <param name="tables">The run's tables.</param>
     /// <param name="format">The file format.</param>
-    /// <param name="path">The importance table's file (the one JSON file).</param>
+    /// <param name="path">The importance table's file.</param>
     /// <param name="csvText">How CSV cells hold names; JSON and Parquet always hold them exactly. Default: <see cref="CsvText.FormulaSafe"/>.</param>
     /// <exception cref="DriftWatchException">A file cannot be written (no file is left half written).</exception>
     public static ExportFiles Write(RunTables tables, ExportFormat format, string path, CsvText csvText = CsvText.FormulaSafe)
@@ -98,20 +114,27 @@ public static class RunExport
         string full = Path.GetFullPath(path);
         if (Directory.Exists(full))
             throw new DriftWatchException($"--out '{full}' is a folder; pass a file name, e.g. {Path.Combine(full, "run." + format.ToString().ToLowerInvariant())}");
-        string epochs = format == ExportFormat.Json ? full : EpochsPath(full);
+        string epochs = EpochsPath(full), findings = FindingsPath(full);
+        var epochTable = EpochTable(tables);
         try
         {
             Directory.CreateDirectory(Path.GetDirectoryName(full)!);
             switch (format)
             {
                 case ExportFormat.Csv:
-                    WriteCsv(tables, full, epochs, csvText);
+                    WriteCsv(ImportanceTable, tables.Importance, full, csvText);
+                    WriteCsv(epochTable, tables.Epochs, epochs, csvText);
+                    WriteCsv(FindingTable, tables.Findings, findings, csvText);
                     break;
                 case ExportFormat.Json:
-                    WriteJson(tables, full);
+                    WriteJson(ImportanceTable, tables.Importance, full);
+                    WriteJson(epochTable, tables.Epochs, epochs);
+                    WriteJson(FindingTable, tables.Findings, findings);
                     break;
                 case ExportFormat.Parquet:
-                    WriteParquetAsync(tables, full, epochs).GetAwaiter().GetResult();
+                    WriteParquetAsync(ImportanceTable, tables.Importance, full).GetAwaiter().GetResult();
+                    WriteParquetAsync(epochTable, tables.Epochs, epochs).GetAwaiter().GetResult();
+                    WriteParquetAsync(FindingTable, tables.Findings, findings).GetAwaiter().GetResult();
                     break;
                 default:
                     throw new ArgumentOutOfRangeException(nameof(format), format, "unknown export format");
@@ -121,34 +144,26 @@ public static class RunExport
         {
             throw new DriftWatchException($"cannot write the export to '{full}': {e.Message}", e);
         }
-        return new ExportFiles(full, epochs, tables.Importance.Length, tables.Epochs.Length);
+        return new ExportFiles(full, epochs, tables.Importance.Length, tables.Epochs.Length, findings, tables.Findings.Length);
     }
 
     // RFC 4180: comma-separated, CRLF line ends, a field quoted when it holds a comma, a quote or a line break, quotes doubled.
     // Numbers in invariant culture, round-trip precision; a missing value is an empty field.
-    private static void WriteCsv(RunTables tables, string importancePath, string epochsPath, CsvText csvText)
+    private static void WriteCsv<TRow>(IReadOnlyList<Column<TRow>> columns, IReadOnlyList<TRow> rows, string path, CsvText csvText)
     {
-        string Csv(string text) => CsvField(text, csvText);
-        OutputFile.Write(importancePath, stream =>
+        OutputFile.Write(path, stream =>
         {
             using var writer = CsvWriter(stream);
-            writer.WriteLine(string.Join(',', ImportanceColumns));
-            foreach (var r in tables.Importance)
+            writer.WriteLine(string.Join(',', columns.Select(c => CsvField(c.Name, csvText))));
+            foreach (var row in rows)
             {
-                writer.WriteLine(string.Join(',',
-                    Csv(r.Run), Integer(r.Epoch), Csv(r.Method), Csv(r.Target), Csv(r.Half), Csv(r.Feature),
-                    Number(r.Importance), Number(r.Share), Number(r.Lower), Number(r.Upper), Number(r.SignedMean), Number(r.Alignment)));
-            }
-        });
-        OutputFile.Write(epochsPath, stream =>
-        {
-            using var writer = CsvWriter(stream);
-            writer.WriteLine(string.Join(',', new[] { "run", "epoch", "verdict", "findings" }.Concat(tables.MetricColumns.Select(Csv))));
-            foreach (var e in tables.Epochs)
-            {
-                writer.WriteLine(string.Join(',',
-                    new[] { Csv(e.Run), Integer(e.Epoch), e.Verdict is null ? "" : Csv(e.Verdict), Integer(e.Findings) }
-                        .Concat(tables.MetricColumns.Select(c => Number(e.Values.GetValueOrDefault(c))))));
+                writer.WriteLine(string.Join(',', columns.Select(c => c switch
+                {
+                    TextColumn<TRow> text => text.Value(row) is string value ? CsvField(value, csvText) : "",
+                    IntegerColumn<TRow> integer => Integer(integer.Value(row)),
+                    NumberColumn<TRow> number => Number(number.Value(row)),
+                    _ => throw new InvalidOperationException($"column '{c.Name}' has no CSV form"),
+                })));
             }
         });
     }
@@ -173,56 +188,41 @@ public static class RunExport
 
     private static string Number(double? value) => value is double v ? v.ToString("R", CultureInfo.InvariantCulture) : "";
 
-    // JSON has no NaN or infinity: such a value is written as null, like a missing one.
-    private static void WriteJson(RunTables tables, string path)
+    // JSON has no NaN or infinity: such a value is written as null, like a missing one. Text is written as UTF-8 as it is
+    // (only quotes, backslashes and control characters escaped): the files are for people and programs, never for HTML.
+    private static void WriteJson<TRow>(IReadOnlyList<Column<TRow>> columns, IReadOnlyList<TRow> rows, string path)
     {
-        OutputFile.Write(path, stream => WriteJson(tables, stream));
-    }
-
-    private static void WriteJson(RunTables tables, Stream stream)
-    {
-        using var json = new Utf8JsonWriter(stream, new JsonWriterOptions { Indented = false });
-        json.WriteStartObject();
-        json.WriteString("format", "driftwatch-export/1");
-        json.WriteString("run", tables.Run);
-        json.WriteStartArray("importance");
-        foreach (var r in tables.Importance)
+        OutputFile.Write(path, stream =>
         {
-            json.WriteStartObject();
-            json.WriteString("run", r.Run);
-            json.WriteNumber("epoch", r.Epoch);
-            json.WriteString("method", r.Method);
-            json.WriteString("target", r.Target);
-            json.WriteString("half", r.Half);
-            json.WriteString("feature", r.Feature);
-            Write(json, "importance", r.Importance);
-            Write(json, "share", r.Share);
-            Write(json, "lower", r.Lower);
-            Write(json, "upper", r.Upper);
-            Write(json, "signed_mean", r.SignedMean);
-            Write(json, "alignment", r.Alignment);
-            json.WriteEndObject();
-        }
-        json.WriteEndArray();
-        json.WriteStartArray("epochs");
-        foreach (var e in tables.Epochs)
-        {
-            json.WriteStartObject();
-            json.WriteString("run", e.Run);
-            json.WriteNumber("epoch", e.Epoch);
-            if (e.Verdict is null)
-                json.WriteNull("verdict");
-            else
-                json.WriteString("verdict", e.Verdict);
-            json.WriteNumber("findings", e.Findings);
-            json.WriteStartObject("metrics");
-            foreach (string column in tables.MetricColumns)
-                Write(json, column, e.Values.GetValueOrDefault(column));
-            json.WriteEndObject();
-            json.WriteEndObject();
-        }
-        json.WriteEndArray();
-        json.WriteEndObject();
+            using var json = new Utf8JsonWriter(stream, new JsonWriterOptions { Indented = false, Encoder = JavaScriptEncoder.UnsafeRelaxedJsonEscaping });
+            json.WriteStartArray();
+            foreach (var row in rows)
+            {
+                json.WriteStartObject();
+                foreach (var column in columns)
+                {
+                    switch (column)
+                    {
+                        case TextColumn<TRow> text when text.Value(row) is string value:
+                            json.WriteString(column.Name, value);
+                            break;
+                        case TextColumn<TRow>:
+                            json.WriteNull(column.Name);
+                            break;
+                        case IntegerColumn<TRow> integer:
+                            json.WriteNumber(column.Name, integer.Value(row));
+                            break;
+                        case NumberColumn<TRow> number:
+                            Write(json, column.Name, number.Value(row));
+                            break;
+                        default:
+                            throw new InvalidOperationException($"column '{column.Name}' has no JSON form");
+                    }
+                }
+                json.WriteEndObject();
+            }
+            json.WriteEndArray();
+        });
     }
 
     private static void Write(Utf8JsonWriter json, string name, double? value)
@@ -233,60 +233,101 @@ public static class RunExport
             json.WriteNull(name);
     }
 
-    private static async Task WriteParquetAsync(RunTables tables, string importancePath, string epochsPath)
+    private static async Task WriteParquetAsync<TRow>(IReadOnlyList<Column<TRow>> columns, IReadOnlyList<TRow> rows, string path)
     {
-        var rows = tables.Importance;
-        var run = new DataField<string>("run");
-        var epoch = new DataField<int>("epoch");
-        var method = new DataField<string>("method");
-        var target = new DataField<string>("target");
-        var half = new DataField<string>("half");
-        var feature = new DataField<string>("feature");
-        var importance = new DataField<double>("importance");
-        var share = new DataField<double>("share");
-        var lower = new DataField<double?>("lower");
-        var upper = new DataField<double?>("upper");
-        var signed = new DataField<double>("signed_mean");
-        var alignment = new DataField<double?>("alignment");
-        await OutputFile.WriteAsync(importancePath, async file =>
+        var fields = columns.Select(c => c switch
         {
-            await using var writer = await ParquetWriter.CreateAsync(new ParquetSchema(run, epoch, method, target, half, feature, importance, share, lower, upper, signed, alignment), file).ConfigureAwait(false);
-            using var group = writer.CreateRowGroup();
-            await group.WriteAsync(run, [.. rows.Select(r => r.Run)]).ConfigureAwait(false);
-            await group.WriteAsync<int>(epoch, rows.Select(r => r.Epoch).ToArray().AsMemory()).ConfigureAwait(false);
-            await group.WriteAsync(method, [.. rows.Select(r => r.Method)]).ConfigureAwait(false);
-            await group.WriteAsync(target, [.. rows.Select(r => r.Target)]).ConfigureAwait(false);
-            await group.WriteAsync(half, [.. rows.Select(r => r.Half)]).ConfigureAwait(false);
-            await group.WriteAsync(feature, [.. rows.Select(r => r.Feature)]).ConfigureAwait(false);
-            await group.WriteAsync<double>(importance, rows.Select(r => r.Importance).ToArray().AsMemory()).ConfigureAwait(false);
-            await group.WriteAsync<double>(share, rows.Select(r => r.Share).ToArray().AsMemory()).ConfigureAwait(false);
-            await group.WriteAsync<double>(lower, rows.Select(r => r.Lower).ToArray().AsMemory()).ConfigureAwait(false);
-            await group.WriteAsync<double>(upper, rows.Select(r => r.Upper).ToArray().AsMemory()).ConfigureAwait(false);
-            await group.WriteAsync<double>(signed, rows.Select(r => r.SignedMean).ToArray().AsMemory()).ConfigureAwait(false);
-            await group.WriteAsync<double>(alignment, rows.Select(r => r.Alignment).ToArray().AsMemory()).ConfigureAwait(false);
-        }).ConfigureAwait(false);
-
-        var epochs = tables.Epochs;
-        var epochRun = new DataField<string>("run");
-        var epochNumber = new DataField<int>("epoch");
-        var verdict = new DataField<string>("verdict", nullable: true);
-        var findings = new DataField<int>("findings");
-        var metrics = tables.MetricColumns.Select(c => new DataField<double?>(c)).ToArray();
-        await OutputFile.WriteAsync(epochsPath, async file =>
+            TextColumn<TRow> text when text.Nullable => (DataField)new DataField<string>(c.Name, nullable: true),
+            TextColumn<TRow> => new DataField<string>(c.Name),
+            IntegerColumn<TRow> => new DataField<int>(c.Name),
+            NumberColumn<TRow> number when number.Nullable => new DataField<double?>(c.Name),
+            NumberColumn<TRow> => new DataField<double>(c.Name),
+            _ => throw new InvalidOperationException($"column '{c.Name}' has no Parquet form"),
+        }).ToArray();
+        await OutputFile.WriteAsync(path, async file =>
         {
-            var fields = new List<Field> { epochRun, epochNumber, verdict, findings };
-            fields.AddRange(metrics);
             await using var writer = await ParquetWriter.CreateAsync(new ParquetSchema(fields), file).ConfigureAwait(false);
             using var group = writer.CreateRowGroup();
-            await group.WriteAsync(epochRun, [.. epochs.Select(e => e.Run)]).ConfigureAwait(false);
-            await group.WriteAsync<int>(epochNumber, epochs.Select(e => e.Epoch).ToArray().AsMemory()).ConfigureAwait(false);
-            await group.WriteAsync(verdict, [.. epochs.Select(e => e.Verdict)]).ConfigureAwait(false);
-            await group.WriteAsync<int>(findings, epochs.Select(e => e.Findings).ToArray().AsMemory()).ConfigureAwait(false);
-            for (int c = 0; c < metrics.Length; c++)
+            for (int c = 0; c < columns.Count; c++)
             {
-                string column = tables.MetricColumns[c];
-                await group.WriteAsync<double>(metrics[c], epochs.Select(e => e.Values.GetValueOrDefault(column)).ToArray().AsMemory()).ConfigureAwait(false);
+                switch (columns[c])
+                {
+                    case TextColumn<TRow> text:
+                        await group.WriteAsync(fields[c], [.. rows.Select(text.Value)]).ConfigureAwait(false);
+                        break;
+                    case IntegerColumn<TRow> integer:
+                        await group.WriteAsync<int>(fields[c], rows.Select(integer.Value).ToArray().AsMemory()).ConfigureAwait(false);
+                        break;
+                    case NumberColumn<TRow> number when number.Nullable:
+                        await group.WriteAsync<double>(fields[c], rows.Select(number.Value).ToArray().AsMemory()).ConfigureAwait(false);
+                        break;
+                    case NumberColumn<TRow> number:
+                        await group.WriteAsync<double>(fields[c], rows.Select(r => number.Value(r) ?? double.NaN).ToArray().AsMemory()).ConfigureAwait(false);
+                        break;
+                }
             }
         }).ConfigureAwait(false);
     }
+
+    private static IReadOnlyList<Column<ImportanceRow>> ImportanceTable { get; } =
+    [
+        new TextColumn<ImportanceRow>("run", r => r.Run),
+        new IntegerColumn<ImportanceRow>("epoch", r => r.Epoch),
+        new TextColumn<ImportanceRow>("method", r => r.Method),
+        new TextColumn<ImportanceRow>("target", r => r.Target),
+        new TextColumn<ImportanceRow>("half", r => r.Half),
+        new TextColumn<ImportanceRow>("feature", r => r.Feature),
+        new NumberColumn<ImportanceRow>("importance", r => r.Importance, Nullable: false),
+        new NumberColumn<ImportanceRow>("share", r => r.Share, Nullable: false),
+        new NumberColumn<ImportanceRow>("lower", r => r.Lower),
+        new NumberColumn<ImportanceRow>("upper", r => r.Upper),
+        new NumberColumn<ImportanceRow>("signed_mean", r => r.SignedMean, Nullable: false),
+        new NumberColumn<ImportanceRow>("alignment", r => r.Alignment),
+        new NumberColumn<ImportanceRow>("share_width", r => r.ShareWidth),
+        new NumberColumn<ImportanceRow>("share_gap", r => r.ShareGap),
+        new NumberColumn<ImportanceRow>("share_gap_width", r => r.ShareGapWidth),
+        new NumberColumn<ImportanceRow>("alignment_gap", r => r.AlignmentGap),
+        new NumberColumn<ImportanceRow>("alignment_gap_width", r => r.AlignmentGapWidth),
+    ];
+
+    private static IReadOnlyList<Column<FindingRow>> FindingTable { get; } =
+    [
+        new TextColumn<FindingRow>("run", r => r.Run),
+        new IntegerColumn<FindingRow>("from_epoch", r => r.FromEpoch),
+        new IntegerColumn<FindingRow>("to_epoch", r => r.ToEpoch),
+        new IntegerColumn<FindingRow>("epochs", r => r.Epochs),
+        new IntegerColumn<FindingRow>("since_epoch", r => r.SinceEpoch),
+        new TextColumn<FindingRow>("kind", r => r.Kind),
+        new TextColumn<FindingRow>("feature", r => r.Feature),
+        new TextColumn<FindingRow>("severity", r => r.Severity),
+        new NumberColumn<FindingRow>("statistic", r => r.Statistic),
+        new TextColumn<FindingRow>("measure", r => r.Measure),
+        new TextColumn<FindingRow>("unit", r => r.Unit),
+        new NumberColumn<FindingRow>("bound", r => r.Bound),
+        new TextColumn<FindingRow>("bound_kind", r => r.BoundKind),
+        new TextColumn<FindingRow>("evidence", r => r.Evidence),
+        new TextColumn<FindingRow>("seen_only_by", r => r.SeenOnlyBy),
+        new NumberColumn<FindingRow>("agreement", r => r.Agreement),
+    ];
+
+    private static List<Column<EpochRow>> EpochTable(RunTables tables)
+    {
+        var columns = new List<Column<EpochRow>>
+        {
+            new TextColumn<EpochRow>("run", e => e.Run),
+            new IntegerColumn<EpochRow>("epoch", e => e.Epoch),
+            new TextColumn<EpochRow>("verdict", e => e.Verdict, Nullable: true),
+            new IntegerColumn<EpochRow>("findings", e => e.Findings),
+        };
+        columns.AddRange(tables.MetricColumns.Select(name => new NumberColumn<EpochRow>(name, e => e.Values.GetValueOrDefault(name))));
+        return columns;
+    }
+
+    private abstract record Column<TRow>(string Name);
+
+    private sealed record TextColumn<TRow>(string Name, Func<TRow, string?> Value, bool Nullable = false) : Column<TRow>(Name);
+
+    private sealed record IntegerColumn<TRow>(string Name, Func<TRow, int> Value) : Column<TRow>(Name);
+
+    private sealed record NumberColumn<TRow>(string Name, Func<TRow, double?> Value, bool Nullable = true) : Column<TRow>(Name);
 }

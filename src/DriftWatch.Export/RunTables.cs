@@ -17,6 +17,11 @@ namespace DriftWatch.Export;
 /// <param name="Upper">Share plus half the 90% bootstrap width, or null.</param>
 /// <param name="SignedMean">Mean signed attribution over the half's rows (target units).</param>
 /// <param name="Alignment">Label alignment, −1 to 1, or null without binary labels.</param>
+/// <param name="ShareWidth">The 90% bootstrap width of this half's share (the noise floor <paramref name="Lower"/> and <paramref name="Upper"/> come from), or null.</param>
+/// <param name="ShareGap">Training share minus held-out share (the leak rule's statistic); the same on both halves' rows; null where the detector stored none.</param>
+/// <param name="ShareGapWidth">The 90% bootstrap width of the share gap (its noise floor), or null.</param>
+/// <param name="AlignmentGap">Training alignment minus held-out alignment (the memorised-identifier and leak rules' statistic); the same on both halves' rows; or null.</param>
+/// <param name="AlignmentGapWidth">The 90% bootstrap width of the alignment gap (its noise floor), or null.</param>
 public sealed record ImportanceRow(
     string Run,
     int Epoch,
@@ -29,7 +34,47 @@ public sealed record ImportanceRow(
     double? Lower,
     double? Upper,
     double SignedMean,
-    double? Alignment);
+    double? Alignment,
+    double? ShareWidth = null,
+    double? ShareGap = null,
+    double? ShareGapWidth = null,
+    double? AlignmentGap = null,
+    double? AlignmentGapWidth = null);
+
+/// <summary>One finding span of a run: a (kind, feature) found at consecutive stored epochs (<see cref="FindingSpans"/>), as its last epoch lists it.</summary>
+/// <param name="Run">The run's name.</param>
+/// <param name="FromEpoch">The span's first stored epoch.</param>
+/// <param name="ToEpoch">The span's last stored epoch.</param>
+/// <param name="Epochs">How many stored epochs the span covers.</param>
+/// <param name="SinceEpoch">Where the rule's streak began at the span's first epoch (at most <paramref name="FromEpoch"/>).</param>
+/// <param name="Kind">The finding kind's stored name, e.g. <c>Leak</c>.</param>
+/// <param name="Feature">The feature, or empty for a run-level finding.</param>
+/// <param name="Severity">Continue, Caution or Halt: what the finding asked for at the span's last epoch.</param>
+/// <param name="Statistic">The finding's size at the span's last epoch, in <paramref name="Unit"/>; null when the kind has none.</param>
+/// <param name="Measure">What <paramref name="Statistic"/> is (<see cref="FindingMeasure.Statistic"/>).</param>
+/// <param name="Unit">The unit of the statistic and its bound (<see cref="FindingMeasure.Unit"/>).</param>
+/// <param name="Bound">The noise floor or policy bound the statistic was judged against, in <paramref name="Unit"/>; null when none.</param>
+/// <param name="BoundKind"><c>noise_floor</c>, <c>policy_bound</c> or <c>none</c> (<see cref="FindingMeasure.Bound"/>).</param>
+/// <param name="Evidence">The evidence sentence at the span's last epoch.</param>
+/// <param name="SeenOnlyBy">The methods whose maps alone showed it, comma-separated; empty for the verdict's method's own findings.</param>
+/// <param name="Agreement">Spearman ρ of held-out importance between methods at the span's last epoch, or null.</param>
+public sealed record FindingRow(
+    string Run,
+    int FromEpoch,
+    int ToEpoch,
+    int Epochs,
+    int SinceEpoch,
+    string Kind,
+    string Feature,
+    string Severity,
+    double? Statistic,
+    string Measure,
+    string Unit,
+    double? Bound,
+    string BoundKind,
+    string Evidence,
+    string SeenOnlyBy,
+    double? Agreement);
 
 /// <summary>One epoch of a run: its verdict, the loop's metrics and the detector's epoch-level statistics.</summary>
 /// <param name="Run">The run's name.</param>
@@ -39,7 +84,10 @@ public sealed record ImportanceRow(
 /// <param name="Values">Metric values by column name: <see cref="RunTables.FixedMetrics"/> first, then the loop's other metrics as <c>metric_NAME</c>; null where unknown.</param>
 public sealed record EpochRow(string Run, int Epoch, string? Verdict, int Findings, ImmutableDictionary<string, double?> Values);
 
-/// <summary>A run as two tidy tables: importance (one row per epoch, method, target, half and feature) and epochs (one row per epoch).</summary>
+/// <summary>
+/// A run as three tidy tables: importance (one row per epoch, method, target, half and feature), epochs (one row per epoch) and
+/// findings (one row per finding span).
+/// </summary>
 public sealed class RunTables
 {
     /// <summary>The metric columns every epoch table has, in order.</summary>
@@ -52,13 +100,16 @@ public sealed class RunTables
         "jensen_shannon_from_previous",
         "top_five_jaccard",
         "generalisation_loss",
+        "lead_width_held_out",
+        "lead_width_training",
     ];
 
-    private RunTables(string run, ImmutableArray<ImportanceRow> importance, ImmutableArray<EpochRow> epochs, ImmutableArray<string> metrics)
+    private RunTables(string run, ImmutableArray<ImportanceRow> importance, ImmutableArray<EpochRow> epochs, ImmutableArray<FindingRow> findings, ImmutableArray<string> metrics)
     {
         Run = run;
         Importance = importance;
         Epochs = epochs;
+        Findings = findings;
         MetricColumns = metrics;
     }
 
@@ -70,6 +121,9 @@ public sealed class RunTables
 
     /// <summary>The epoch table, in epoch order.</summary>
     public ImmutableArray<EpochRow> Epochs { get; }
+
+    /// <summary>The findings table: one row per finding span, ordered by first epoch (see <see cref="FindingSpans.Collapse"/>).</summary>
+    public ImmutableArray<FindingRow> Findings { get; }
 
     /// <summary>The epoch table's metric columns: <see cref="FixedMetrics"/>, then <c>metric_NAME</c> for each other metric the loop reported, sorted.</summary>
     public ImmutableArray<string> MetricColumns { get; }
@@ -91,8 +145,8 @@ public sealed class RunTables
         foreach (var map in store.MapAggregates(run.Id).OrderBy(m => m.Epoch).ThenBy(m => m.Method, StringComparer.Ordinal).ThenBy(m => m.Target, StringComparer.Ordinal))
         {
             var stats = map.Method == primary ? statistics.GetValueOrDefault(map.Epoch) : null;
-            AddHalf(importance, run, store, map, "held-out", map.HeldOut, features, stats?.ShareHeldOutWidth.ToArray());
-            AddHalf(importance, run, store, map, "training", map.Training, features, stats?.ShareTrainingWidth.ToArray());
+            AddHalf(importance, run, store, map, "held-out", map.HeldOut, features, stats, stats?.ShareHeldOutWidth);
+            AddHalf(importance, run, store, map, "training", map.Training, features, stats, stats?.ShareTrainingWidth);
         }
 
         var epochs = store.Epochs(run.Id);
@@ -114,16 +168,43 @@ public sealed class RunTables
             values["jensen_shannon_from_previous"] = Finite(s?.JensenShannonFromPrevious);
             values["top_five_jaccard"] = Finite(s?.TopFiveJaccard);
             values["generalisation_loss"] = Finite(s?.GeneralisationLoss);
+            values["lead_width_held_out"] = s is { Trusted: true } ? Finite(s.LeadWidthHeldOut) : null;
+            values["lead_width_training"] = s is { Trusted: true } ? Finite(s.LeadWidthTraining) : null;
             foreach (string key in extra)
                 values["metric_" + key] = Metric(e, key);
             verdicts.TryGetValue(e.Epoch, out var verdict);
             return new EpochRow(run.Name, e.Epoch, verdict?.Kind, verdict?.Findings.Count ?? 0, values.ToImmutable());
         }).ToImmutableArray();
-        return new RunTables(run.Name, [.. importance], epochRows, columns);
+        var index = features.Select((name, i) => (name, i)).GroupBy(p => p.name, StringComparer.Ordinal).ToDictionary(g => g.Key, g => g.First().i, StringComparer.Ordinal);
+        var findings = FindingSpans.Collapse(store.StoredVerdicts(run.Id)).Select(span =>
+        {
+            var f = span.Latest;
+            var measure = FindingMeasure.Of(f, statistics.GetValueOrDefault(span.ToEpoch), index.GetValueOrDefault(f.Feature, -1));
+            return new FindingRow(
+                run.Name,
+                span.FromEpoch,
+                span.ToEpoch,
+                span.EpochCount,
+                span.SinceEpoch,
+                f.Kind.Name,
+                f.Feature,
+                f.Severity.ToString(),
+                measure.Statistic == "none" ? null : Finite(f.Size),
+                measure.Statistic,
+                measure.Unit,
+                measure.HasBound ? Finite(f.NoiseFloor) : null,
+                measure.Bound,
+                f.Evidence,
+                f.IsSeenByOtherMethodsOnly ? string.Join(",", f.SeenOnlyBy) : "",
+                Finite(f.Agreement));
+        }).ToImmutableArray();
+        return new RunTables(run.Name, [.. importance], epochRows, findings, columns);
     }
 
-    private static void AddHalf(List<ImportanceRow> rows, RunDocument run, RunStore store, MapDocument map, string half, ImportanceDocument importance, string[] features, double[]? widths)
+    private static void AddHalf(List<ImportanceRow> rows, RunDocument run, RunStore store, MapDocument map, string half, ImportanceDocument importance, string[] features, EpochStatistics? stats, ImmutableArray<double>? widthArray)
     {
+        double[]? widths = widthArray is { IsDefault: false } w ? [.. w] : null;
+        static double? At(ImmutableArray<double>? values, int f, int count) => values is { IsDefault: false } v && v.Length == count && double.IsFinite(v[f]) ? v[f] : null;
         if (importance.Share.Length != features.Length || importance.MeanAbsolute.Length != features.Length || importance.MeanSigned.Length != features.Length)
         {
             throw new StoreException(
@@ -146,7 +227,12 @@ public sealed class RunTables
                 banded ? share - widths![f] / 2 : null,
                 banded ? share + widths![f] / 2 : null,
                 importance.MeanSigned[f],
-                aligned ? importance.Alignment![f] : null));
+                aligned ? importance.Alignment![f] : null,
+                banded ? widths![f] : null,
+                At(stats?.ShareGap, f, features.Length),
+                At(stats?.ShareGapWidth, f, features.Length),
+                At(stats?.AlignmentGap, f, features.Length),
+                At(stats?.AlignmentGapWidth, f, features.Length)));
         }
     }
 

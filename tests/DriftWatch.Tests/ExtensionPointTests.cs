@@ -129,25 +129,30 @@ public sealed class ExtensionPointTests
     public void EveryExportTableAndColumnIsInTheJsonSchema()
     {
         using var schema = JsonDocument.Parse(File.ReadAllText(Path.Combine(ConventionTests.FindRepositoryRoot(), "src", "DriftWatch.Export", "export.schema.json")));
-        var top = schema.RootElement.GetProperty("properties");
+        var definitions = schema.RootElement.GetProperty("$defs");
         var tables = typeof(RunTables).GetProperties()
             .Where(p => p.PropertyType.IsGenericType && p.PropertyType.GetGenericTypeDefinition() == typeof(ImmutableArray<>) && p.PropertyType.GetGenericArguments()[0].Name.EndsWith("Row", StringComparison.Ordinal))
             .ToList();
 
-        Assert.NotEmpty(tables);
+        Assert.Equal(3, tables.Count);
         foreach (var table in tables)
         {
             string key = JsonNamingPolicy.SnakeCaseLower.ConvertName(table.Name);
-            Assert.True(top.TryGetProperty(key, out var entry), $"the schema has no table '{key}'");
+            Assert.True(definitions.TryGetProperty(key, out var entry), $"the schema has no table '{key}'");
             var columns = entry.GetProperty("items").GetProperty("properties");
             var row = table.PropertyType.GetGenericArguments()[0];
-            // A row's open set of values by name (an epoch's metrics) is one object column; every other member is a column.
+            // A row's open set of values by name (an epoch's metrics) is flattened into columns: the fixed ones are named, the rest match metric_.
             foreach (var column in row.GetProperties())
             {
-                string name = column.PropertyType == typeof(ImmutableDictionary<string, double?>) ? "metrics" : JsonNamingPolicy.SnakeCaseLower.ConvertName(column.Name);
-                Assert.True(columns.TryGetProperty(name, out _), $"table '{key}' has no column '{name}' for {row.Name}.{column.Name}");
+                var names = column.PropertyType == typeof(ImmutableDictionary<string, double?>)
+                    ? RunTables.FixedMetrics.ToList()
+                    : [JsonNamingPolicy.SnakeCaseLower.ConvertName(column.Name)];
+                foreach (string name in names)
+                    Assert.True(columns.TryGetProperty(name, out _), $"table '{key}' has no column '{name}' for {row.Name}.{column.Name}");
             }
         }
+        Assert.Equal(RunExport.FindingColumns, definitions.GetProperty("findings").GetProperty("items").GetProperty("properties").EnumerateObject().Select(p => p.Name));
+        Assert.Equal(RunExport.ImportanceColumns, definitions.GetProperty("importance").GetProperty("items").GetProperty("properties").EnumerateObject().Select(p => p.Name));
     }
 
     private static RunHistory DemoHistory()

@@ -348,6 +348,12 @@ public static class RunReport
         foreach (var info in kinds)
             steps.Add(info.Advice(new Detection.Rules.AdviceContext(Names(info.Kind), best?.Epoch)));
         steps = [.. steps.Distinct(StringComparer.Ordinal)];
+        if (best is not null && findings.Any(f => f.Severity == Detection.VerdictKind.Halt || f.Kind == FindingKind.Overfitting))
+        {
+            steps.Add($"To go back to the weights of epoch {best.Epoch.ToString(CultureInfo.InvariantCulture)} (the lowest validation loss): "
+                + $"driftwatch weights {history.RunName} --epoch best --out best.weights — it writes out the stored snapshot of the epoch with the lowest "
+                + "validation loss among those that have one (for a run watched with follow, that epoch's TorchScript file).");
+        }
         foreach (var group in others.GroupBy(f => string.Join(" and ", f.SeenOnlyBy)))
         {
             string features = string.Join(", ", group.Select(f => $"'{f.Feature}' ({RunFindings.Describe(f.Kind)})").Distinct());

@@ -53,7 +53,7 @@ public sealed class CliTests : IClassFixture<DemoStoreFixture>
         Assert.Contains("advice to a person, not proof", halt.Output);
         Assert.Equal(ExitCodes.Halt, json.Code);
         using var document = JsonDocument.Parse(json.Output);
-        Assert.True(document.RootElement.GetProperty("haltAdvised").GetBoolean());
+        Assert.True(document.RootElement.GetProperty("halt_advised").GetBoolean());
         Assert.Contains(document.RootElement.GetProperty("findings").EnumerateArray(), f => f.GetProperty("feature").GetString() == "inspection tray");
     }
 

@@ -138,7 +138,7 @@ public sealed class MorningCliTests : IClassFixture<DemoStoreFixture>
         Assert.Equal(ExitCodes.Fine, show.Code);
         using var run = JsonDocument.Parse(show.Output);
         int features = run.RootElement.GetProperty("features").GetArrayLength();
-        Assert.All(run.RootElement.GetProperty("epochs").EnumerateArray(), e => Assert.Equal(features, e.GetProperty("heldOutShare").GetArrayLength()));
+        Assert.All(run.RootElement.GetProperty("epochs").EnumerateArray(), e => Assert.Equal(features, e.GetProperty("held_out_share").GetArrayLength()));
         Assert.Contains(run.RootElement.GetProperty("findings").EnumerateArray(), f => f.GetProperty("kind").GetString() == "Leak" && f.GetProperty("feature").GetString() == "inspection tray");
     }
 

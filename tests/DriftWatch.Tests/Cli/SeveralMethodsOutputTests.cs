@@ -35,7 +35,7 @@ public sealed class SeveralMethodsOutputTests
         using (var document = JsonDocument.Parse(json.Output))
         {
             var finding = document.RootElement.GetProperty("findings")[0];
-            Assert.Equal("smoothgrad", finding.GetProperty("seenOnlyBy")[0].GetString());
+            Assert.Equal("smoothgrad", finding.GetProperty("seen_only_by")[0].GetString());
             Assert.Equal("Caution", finding.GetProperty("severity").GetString());
             double rho = finding.GetProperty("agreement").GetDouble();
             Assert.InRange(rho, -1, 1);
@@ -69,10 +69,10 @@ public sealed class SeveralMethodsOutputTests
         var trust = document.RootElement.GetProperty("trust").EnumerateArray().ToList();
         Assert.Equal(10, trust.Count);
         var last = trust.Single(t => t.GetProperty("epoch").GetInt32() == 4 && t.GetProperty("method").GetString() == "smoothgrad");
-        Assert.Equal(0.9, last.GetProperty("relativeInfidelity").GetDouble(), 12);
-        Assert.Equal(0.4, last.GetProperty("relativeMaxSensitivity").GetDouble(), 12);
+        Assert.Equal(0.9, last.GetProperty("relative_infidelity").GetDouble(), 12);
+        Assert.Equal(0.4, last.GetProperty("relative_max_sensitivity").GetDouble(), 12);
         var finding = document.RootElement.GetProperty("findings").EnumerateArray().Single();
-        Assert.Equal("smoothgrad", finding.GetProperty("seenOnlyBy")[0].GetString());
+        Assert.Equal("smoothgrad", finding.GetProperty("seen_only_by")[0].GetString());
         Assert.Equal(last.GetProperty("agreement").GetDouble(), finding.GetProperty("agreement").GetDouble(), 12);
     }
 }

@@ -129,35 +129,96 @@ public sealed class ExportTests : IClassFixture<DemoStoreFixture>
         Assert.Equal(tables.Epochs.Select(e => e.Verdict), verdicts);
     }
 
+    // The schema's definition of one table's file, as a schema of its own (each $defs entry is self-contained).
+    internal static JsonSchema TableSchema(string table)
+    {
+        using var document = JsonDocument.Parse(RunExport.JsonSchema);
+        return JsonSchema.FromText(document.RootElement.GetProperty("$defs").GetProperty(table).GetRawText());
+    }
+
+    private static void AssertValid(JsonSchema schema, JsonElement element)
+    {
+        var result = schema.Evaluate(element, new EvaluationOptions { OutputFormat = OutputFormat.List });
+        Assert.True(result.IsValid, string.Join("; ", (result.Details ?? []).Where(d => d.Errors is not null).SelectMany(d => d.Errors!.Select(e => $"{d.InstanceLocation}: {e.Value}"))));
+    }
+
     [Fact]
     public void JsonValidatesAgainstTheDocumentedSchemaAndHoldsTheStoresValues()
     {
         string path = Path.Combine(_fixture.Folder, "export", "leak.json");
-        RunExport.Write(Tables(_fixture.StorePath, DemoStoreFixture.LeakRun), ExportFormat.Json, path);
-        using var document = JsonDocument.Parse(File.ReadAllText(path));
+        var tables = Tables(_fixture.StorePath, DemoStoreFixture.LeakRun);
+        var files = RunExport.Write(tables, ExportFormat.Json, path);
+        using var importance = JsonDocument.Parse(File.ReadAllText(files.Importance));
+        using var epochs = JsonDocument.Parse(File.ReadAllText(files.Epochs));
+        using var findings = JsonDocument.Parse(File.ReadAllText(files.Findings));
 
-        // JsonSchema.Net, a JSON Schema 2020-12 validator, checks the file against the schema the README documents.
-        var schema = JsonSchema.FromText(RunExport.JsonSchema);
-        var result = schema.Evaluate(document.RootElement, new EvaluationOptions { OutputFormat = OutputFormat.List });
-        Assert.True(result.IsValid, string.Join("; ", (result.Details ?? []).Where(d => d.Errors is not null).SelectMany(d => d.Errors!.Select(e => $"{d.InstanceLocation}: {e.Value}"))));
+        // JsonSchema.Net, a JSON Schema 2020-12 validator, checks each file against the schema the docs name.
+        AssertValid(TableSchema("importance"), importance.RootElement);
+        AssertValid(TableSchema("epochs"), epochs.RootElement);
+        AssertValid(TableSchema("findings"), findings.RootElement);
+        AssertValid(JsonSchema.FromText(RunExport.JsonSchema), findings.RootElement);
 
         var stored = Stored(_fixture.StorePath, DemoStoreFixture.LeakRun);
-        var rows = document.RootElement.GetProperty("importance").EnumerateArray().ToList();
+        var rows = importance.RootElement.EnumerateArray().ToList();
         Assert.Equal(stored.Count, rows.Count);
         foreach (var row in rows)
         {
             var key = (row.GetProperty("epoch").GetInt32(), row.GetProperty("method").GetString()!, row.GetProperty("half").GetString()!, row.GetProperty("feature").GetString()!);
             Assert.Equal(stored[key].Share, row.GetProperty("share").GetDouble());
         }
+        // Flat records: an epoch's metrics are columns of its row, as in the CSV.
+        var first = epochs.RootElement[0];
+        Assert.Equal(tables.Epochs[0].Values[MetricKeys.TrainLoss], first.GetProperty(MetricKeys.TrainLoss).GetDouble());
+        Assert.Equal(tables.Findings.Length, findings.RootElement.GetArrayLength());
+    }
+
+    [Fact]
+    public void TheNoiseFloorsTheRulesReadAreExportedAsTheDetectorStoredThem()
+    {
+        var tables = Tables(_fixture.StorePath, DemoStoreFixture.LeakRun);
+        using var store = RunStore.OpenForReading(_fixture.StorePath);
+        var run = store.GetRun(DemoStoreFixture.LeakRun);
+        var statistics = store.StatisticsOf(run.Id).Where(s => s.Statistics is { Trusted: true }).ToDictionary(s => s.Epoch, s => s.Statistics!);
+        var features = run.Features.Select(f => f.Name).ToList();
+        string primary = run.Methods[0].Name;
+
+        Assert.NotEmpty(statistics);
+        foreach (var row in tables.Importance.Where(r => r.Method == primary && statistics.ContainsKey(r.Epoch)))
+        {
+            var s = statistics[row.Epoch];
+            int f = features.IndexOf(row.Feature);
+            Assert.Equal(s.ShareGap[f], row.ShareGap);
+            Assert.Equal(s.ShareGapWidth[f], row.ShareGapWidth);
+            Assert.Equal(s.AlignmentGap[f], row.AlignmentGap);
+            Assert.Equal(s.AlignmentGapWidth[f], row.AlignmentGapWidth);
+            Assert.Equal(row.Half == "held-out" ? s.ShareHeldOutWidth[f] : s.ShareTrainingWidth[f], row.ShareWidth);
+        }
+        foreach (var epoch in tables.Epochs.Where(e => statistics.ContainsKey(e.Epoch)))
+        {
+            Assert.Equal(statistics[epoch.Epoch].LeadWidthHeldOut, epoch.Values["lead_width_held_out"]);
+            Assert.Equal(statistics[epoch.Epoch].LeadWidthTraining, epoch.Values["lead_width_training"]);
+        }
+        // The leak run's leak is flagged on its share gap or its alignment gap: the row says which, and the statistic and
+        // bound are that gap and its noise floor as stored (so a reader can check "gap > widths × floor" from the table).
+        var leak = tables.Findings.First(r => r.Kind == "Leak");
+        var at = statistics[leak.ToEpoch];
+        int leaked = features.IndexOf(leak.Feature);
+        var (gap, width) = leak.Measure == "share_gap" ? (at.ShareGap[leaked], at.ShareGapWidth[leaked]) : (at.AlignmentGap[leaked], at.AlignmentGapWidth[leaked]);
+        Assert.Contains(leak.Measure, new[] { "share_gap", "alignment_gap" });
+        Assert.Equal(gap, leak.Statistic);
+        Assert.Equal(width, leak.Bound);
+        Assert.Equal("noise_floor", leak.BoundKind);
     }
 
     [Fact]
     public void TheSchemaRefusesADocumentOfAnotherShape()
     {
         var schema = JsonSchema.FromText(RunExport.JsonSchema);
-        using var wrong = JsonDocument.Parse("""{ "format": "driftwatch-export/1", "run": "r", "importance": [ { "run": "r", "epoch": 1 } ], "epochs": [] }""");
+        using var wrong = JsonDocument.Parse("""[ { "run": "r", "epoch": 1 } ]""");
+        using var nested = JsonDocument.Parse("""{ "format": "driftwatch-export/1", "run": "r", "importance": [], "epochs": [] }""");
 
         Assert.False(schema.Evaluate(wrong.RootElement).IsValid);
+        Assert.False(schema.Evaluate(nested.RootElement).IsValid);
     }
 
     [Fact]

@@ -132,6 +132,25 @@ public sealed class FollowTests : IClassFixture<PythonRunFixture>
     }
 
     [Fact]
+    public void WeightsWritesAFollowedRunsTorchScriptFileOfTheChosenEpoch()
+    {
+        if (!Available())
+            return;
+        string store = NewStore();
+        Assert.Equal(ExitCodes.Fine, Follow(_run.Folder, "--store", store, "--once").Code);
+        string written = Path.Combine(_run.Root, "weights-" + Guid.NewGuid().ToString("N") + ".pt");
+
+        var output = new StringWriter();
+        var error = new StringWriter();
+        int code = CliApp.Run(["weights", "greenhouse-py", "--epoch", "last", "--out", written, "--store", store], output, error);
+
+        // A followed run's snapshots stay in its folder as TorchScript files: the one of the latest epoch, byte for byte.
+        Assert.True(code == ExitCodes.Fine, error.ToString());
+        Assert.Contains("TorchScript of epoch 4", output.ToString(), StringComparison.Ordinal);
+        Assert.Equal(File.ReadAllBytes(Path.Combine(_run.Folder, RunSnapshots.TorchScriptFile(4))), File.ReadAllBytes(written));
+    }
+
+    [Fact]
     public void IntegratedGradientsOnTheLoadedTorchScriptModelsAreComplete()
     {
         if (!Available())
