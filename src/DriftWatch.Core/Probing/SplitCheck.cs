@@ -19,17 +19,17 @@ public sealed record SplitCheckOptions
     /// <summary>The built-in options.</summary>
     public static SplitCheckOptions Default { get; } = new();
 
-    /// <summary>Most rows used from each side (a seeded subsample of a larger side). Default 10,000; at least 20.</summary>
-    public int MaximumRowsPerSide { get; init => field = Require(value, 20, 10_000_000, nameof(MaximumRowsPerSide)); } = 10_000;
+    /// <summary>Most rows used from each side (a seeded subsample of a larger side). Default 5,000; at least 20.</summary>
+    public int MaximumRowsPerSide { get; init => field = Require(value, 20, 10_000_000, nameof(MaximumRowsPerSide)); } = 5_000;
 
     /// <summary>Fewest rows each side needs for the check to run. Default 20; at least 10.</summary>
     public int MinimumRowsPerSide { get; init => field = Require(value, 10, 10_000_000, nameof(MinimumRowsPerSide)); } = 20;
 
     /// <summary>
-    /// Side exchanges B of the permutation null, drawn with <see cref="Seed"/>. Default 999; at least 19. Raised to
+    /// Side exchanges B of the permutation null, drawn with <see cref="Seed"/>. Default 499; at least 19. Raised to
     /// ⌈2 m / q⌉ − 1 for m inputs when smaller, so the smallest p-value possible can pass Benjamini–Hochberg's first threshold q / m.
     /// </summary>
-    public int Permutations { get; init => field = Require(value, 19, 100_000, nameof(Permutations)); } = 999;
+    public int Permutations { get; init => field = Require(value, 19, 100_000, nameof(Permutations)); } = 499;
 
     /// <summary>Folds of the out-of-fold target encoding. Default 5; 2 to 20.</summary>
     public int Folds { get; init => field = Require(value, 2, 20, nameof(Folds)); } = 5;
@@ -125,14 +125,14 @@ public sealed record SplitCheckResult(string Score, int TrainingRowsUsed, int He
 /// Each raw input is coded as levels: a dense input by bins cut at the pooled quantiles of both sides, a categorical by its
 /// most frequent values (the rest one shared level). On each side on its own, every row gets an out-of-fold target encoding
 /// (its level's label rate over the side's other folds, smoothed towards the side's label rate), and the side's score is
-/// the AUC of that encoding against the label (Hanley &amp; McNeil 1982; encodings are grouped into 1,024 equal-width buckets
+/// the AUC of that encoding against the label (Hanley &amp; McNeil 1982; encodings are grouped into 256 equal-width buckets
 /// so an AUC costs one pass, ties counted half). K classes score the macro average of one-vs-rest AUCs; a continuous target
 /// the AUC against "label above the pooled median". The statistic is training score minus held-out score; its null
 /// exchanges rows between the sides at random, keeping the side sizes and every row's fold.
 /// </remarks>
 public static class SplitCheck
 {
-    private const int Buckets = 1024;
+    private const int Buckets = 256;
 
     /// <summary>
     /// Checks every raw input of <paramref name="heldOut"/> and <paramref name="training"/>; null when the rows have no
