@@ -54,7 +54,7 @@ public static class DetectorEvaluation
         {
             output.WriteLine(Invariant($"judging the runs stored in {earlier} again under the given policy (no training)"));
             var judged = new List<EvaluationRun>();
-            foreach (var run in Rejudge(earlier, options.Policy, output))
+            foreach (var run in Rejudge(earlier, options.Policy, output, options.WithoutSplitCheck))
             {
                 judged.Add(run);
                 output.WriteLine(Line(run));
@@ -151,10 +151,11 @@ public static class DetectorEvaluation
     /// Judges every run of an earlier evaluation's store again under <paramref name="policy"/>, without training: the
     /// stored maps and metrics are replayed through the detector, and each run's scenario is rebuilt from its name and seed
     /// for the planted truth. Seconds are those of the replay. A run with fewer epochs than the longest in the store stopped
-    /// early (a failure inside training) and is left out, with a line on <paramref name="skipped"/> when given.
+    /// early (a failure inside training) and is left out, with a line on <paramref name="skipped"/> when given. With
+    /// <paramref name="withoutSplitCheck"/> the runs are judged as if no split-consistency check had been stored.
     /// </summary>
     /// <exception cref="DriftWatchException">The store is missing or holds a run whose name is not <c>scenario-seedN-…</c>.</exception>
-    public static IReadOnlyList<EvaluationRun> Rejudge(string storePath, GatePolicy policy, TextWriter? skipped = null)
+    public static IReadOnlyList<EvaluationRun> Rejudge(string storePath, GatePolicy policy, TextWriter? skipped = null, bool withoutSplitCheck = false)
     {
         ArgumentNullException.ThrowIfNull(storePath);
         ArgumentNullException.ThrowIfNull(policy);
@@ -180,7 +181,7 @@ public static class DetectorEvaluation
             }
             var scenario = ScenarioBuilder.For(variant).WithSeed(seed).Build();
             var losses = store.Epochs(run.Id).ToDictionary(e => e.Epoch, e => e.Metrics.GetValueOrDefault(MetricKeys.ValidationLoss, double.NaN));
-            var judged = RunReview.Replay(store, run, policy)
+            var judged = RunReview.Replay(store, withoutSplitCheck ? run with { SplitCheck = null } : run, policy)
                 .Select(a => (a.Statistics.Epoch, losses.GetValueOrDefault(a.Statistics.Epoch, double.NaN), a.Verdict))
                 .ToList();
             result.Add(Judge(GreenhouseVariants.NameOf(variant), seed, scenario, judged, clock.Elapsed.TotalSeconds));
