@@ -7,6 +7,7 @@ using DriftWatch.Detection;
 using DriftWatch.Detection.Rules;
 using DriftWatch.Hooks;
 using DriftWatch.Probing;
+using DriftWatch.Storage;
 using TorchSharp;
 
 namespace DriftWatch.Demo.Evaluation;
@@ -152,7 +153,8 @@ public static class DetectorEvaluation
     /// stored maps and metrics are replayed through the detector, and each run's scenario is rebuilt from its name and seed
     /// for the planted truth. Seconds are those of the replay. A run with fewer epochs than the longest in the store stopped
     /// early (a failure inside training) and is left out, with a line on <paramref name="skipped"/> when given. With
-    /// <paramref name="withoutSplitCheck"/> the runs are judged as if no split-consistency check had been stored.
+    /// <paramref name="withoutSplitCheck"/> the runs are judged as if no split-consistency check had been stored; without it,
+    /// a run stored before the check was recorded is given the one <c>ProbeSet.Select</c> computes from the rebuilt scenario.
     /// </summary>
     /// <exception cref="DriftWatchException">The store is missing or holds a run whose name is not <c>scenario-seedN-…</c>.</exception>
     public static IReadOnlyList<EvaluationRun> Rejudge(string storePath, GatePolicy policy, TextWriter? skipped = null, bool withoutSplitCheck = false)
@@ -181,7 +183,11 @@ public static class DetectorEvaluation
             }
             var scenario = ScenarioBuilder.For(variant).WithSeed(seed).Build();
             var losses = store.Epochs(run.Id).ToDictionary(e => e.Epoch, e => e.Metrics.GetValueOrDefault(MetricKeys.ValidationLoss, double.NaN));
-            var judged = RunReview.Replay(store, withoutSplitCheck ? run with { SplitCheck = null } : run, policy)
+            // A run stored before the split check was recorded gets the one ProbeSet.Select computes today from the same rows.
+            var judgedRun = withoutSplitCheck ? run with { SplitCheck = null }
+                : run.SplitCheck is null ? run with { SplitCheck = SplitCheckDocuments.From(SplitCheck.Run(scenario.Validation.Rows, scenario.Training.Rows, SplitCheckOptions.Default)) }
+                : run;
+            var judged = RunReview.Replay(store, judgedRun, policy)
                 .Select(a => (a.Statistics.Epoch, losses.GetValueOrDefault(a.Statistics.Epoch, double.NaN), a.Verdict))
                 .ToList();
             result.Add(Judge(GreenhouseVariants.NameOf(variant), seed, scenario, judged, clock.Elapsed.TotalSeconds));
