@@ -35,7 +35,11 @@ public sealed record EvaluationRun(
     int? FirstAttributionHalt,
     int BestEpoch,
     int? Gl5Epoch,
-    double Seconds);
+    double Seconds)
+{
+    /// <summary>Per feature, the advisory findings of the split-consistency rules (overfitted feature, data note), as <c>kind@first epoch</c>; printed, not in runs.csv.</summary>
+    public ImmutableDictionary<string, string> Notes { get; init; } = ImmutableDictionary<string, string>.Empty;
+}
 
 /// <summary>Runs the seeded scenario suite and summarises the gate against the planted truth and the GL5 rule.</summary>
 public static class DetectorEvaluation
@@ -80,7 +84,8 @@ public static class DetectorEvaluation
     }
 
     private static string Line(EvaluationRun run) => Invariant(
-        $"  {run.Scenario,-15} seed {run.Seed,3}  best {run.BestEpoch,2}  GL5 {Show(run.Gl5Epoch),3}  halt {Show(run.FirstHalt),3}  named {(run.FirstNamed.IsEmpty ? "-" : string.Join(", ", run.FirstNamed.OrderBy(n => n.Value).Select(n => $"{n.Key}@{n.Value}({run.Kinds[n.Key]})")))}  {run.Seconds:F1} s");
+        $"  {run.Scenario,-15} seed {run.Seed,3}  best {run.BestEpoch,2}  GL5 {Show(run.Gl5Epoch),3}  halt {Show(run.FirstHalt),3}  named {(run.FirstNamed.IsEmpty ? "-" : string.Join(", ", run.FirstNamed.OrderBy(n => n.Value).Select(n => $"{n.Key}@{n.Value}({run.Kinds[n.Key]})")))}  {run.Seconds:F1} s")
+        + (run.Notes.IsEmpty ? "" : "  notes " + string.Join(", ", run.Notes.OrderBy(n => n.Key, StringComparer.Ordinal).Select(n => n.Key[..n.Key.LastIndexOf(':')] + " " + n.Value)));
 
     /// <summary>Writes runs.csv and summary.csv into <paramref name="folder"/> and prints the summary table.</summary>
     internal static void WriteTables(IReadOnlyList<EvaluationRun> runs, string folder, TextWriter output)
@@ -209,6 +214,12 @@ public static class DetectorEvaluation
                 set.Add(finding.Kind.ToString());
             }
         }
+        var notes = new Dictionary<string, string>();
+        foreach (var record in records)
+        {
+            foreach (var finding in record.Verdict.Findings.Where(f => f.Kind == FindingKind.OverfittedFeature || f.Kind == FindingKind.SplitInconsistency))
+                notes.TryAdd(finding.Feature + ":" + finding.Kind, Invariant($"{finding.Kind}@{record.Epoch}"));
+        }
         var gl = Statistics.GeneralisationLoss(records.Select(r => r.ValidationLoss).ToArray());
         int glIndex = Array.FindIndex(gl, g => g > 5);
         return new EvaluationRun(
@@ -222,7 +233,10 @@ public static class DetectorEvaluation
             records.Where(r => r.Verdict.Findings.Any(f => f.Severity == VerdictKind.Halt && f.Kind.Info.Role != EvaluationRole.LossRule)).Select(r => (int?)r.Epoch).FirstOrDefault(),
             records.MinBy(r => r.ValidationLoss).Epoch,
             glIndex < 0 ? null : records[glIndex].Epoch,
-            seconds);
+            seconds)
+        {
+            Notes = notes.ToImmutableDictionary(),
+        };
     }
 
     /// <summary>Per scenario kind: how well the gate did.</summary>
