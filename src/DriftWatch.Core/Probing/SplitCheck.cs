@@ -134,9 +134,12 @@ public static class SplitCheck
 {
     private const int Buckets = 256;
 
+    /// <summary>Most classes the check scores (macro one-vs-rest); labels with more classes are not checked.</summary>
+    public const int MaximumClasses = 50;
+
     /// <summary>
     /// Checks every raw input of <paramref name="heldOut"/> and <paramref name="training"/>; null when the rows have no
-    /// labels, no finite labels of a usable kind, or fewer than <see cref="SplitCheckOptions.MinimumRowsPerSide"/> rows on a side.
+    /// labels, no finite labels of a usable kind, more than <see cref="MaximumClasses"/> classes, or fewer than <see cref="SplitCheckOptions.MinimumRowsPerSide"/> rows on a side.
     /// </summary>
     public static SplitCheckResult? Run(ProbeRows heldOut, ProbeRows training, SplitCheckOptions options)
     {
@@ -270,7 +273,8 @@ public static class SplitCheck
                 return ([.. labels.Select(l => LabelKinds.IsPositive(l) ? 1 : 0)], 2, "out-of-fold AUC");
             case LabelKind.Classes:
                 int k = (int)labels.Max() + 1;
-                return ([.. labels.Select(l => (int)l)], k, "macro one-vs-rest out-of-fold AUC");
+                // Counts grow with levels × folds × classes per input and thread: beyond MaximumClasses the check is not run.
+                return k > MaximumClasses ? (null, 0, "") : ([.. labels.Select(l => (int)l)], k, "macro one-vs-rest out-of-fold AUC");
             case LabelKind.Continuous:
                 var sorted = labels.Order().ToArray();
                 double median = sorted.Length % 2 == 1 ? sorted[sorted.Length / 2] : 0.5 * (sorted[sorted.Length / 2 - 1] + sorted[sorted.Length / 2]);
