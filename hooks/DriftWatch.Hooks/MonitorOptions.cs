@@ -98,7 +98,12 @@ public sealed record MonitorOptions
     /// <summary>Free text stored with the run: model, data, settings.</summary>
     public string Description { get; init; } = "";
 
-    /// <summary>Per categorical feature name, how many training rows have each value; lets the detector recognise identifier-like features.</summary>
+    /// <summary>
+    /// Per categorical feature name, how many training rows have each value; lets the detector recognise identifier-like
+    /// features. Optional: when empty, the counts <see cref="ProbeSet.Select(ProbeRows, ProbeRows, int, int)"/> took over
+    /// every training row it was given are used (<see cref="ProbeSet.TrainingValueCounts"/>); give them only to override
+    /// those, or for a probe built from its halves alone. Default: empty.
+    /// </summary>
     public ImmutableDictionary<string, ImmutableDictionary<long, int>> TrainingValueCounts { get; init; } =
         ImmutableDictionary<string, ImmutableDictionary<long, int>>.Empty;
 

@@ -516,7 +516,8 @@ public sealed class TrainingMonitor : IDisposable
             LayerMethods = options.WatchedLayers.IsDefaultOrEmpty
                 ? []
                 : options.LayerMethods.Select(m => new MethodDocument { Name = m.Name, Settings = new Dictionary<string, string>(m.Settings) }).ToList(),
-            TrainingValueCounts = options.TrainingValueCounts.ToDictionary(
+            SplitCheck = SplitCheckDocuments.From(probe.SplitCheck),
+            TrainingValueCounts = SplitCheckDocuments.ValueCounts(options.Schema, probe, options.TrainingValueCounts).ToDictionary(
                 kv => kv.Key,
                 kv => kv.Value.ToDictionary(v => v.Key.ToString(CultureInfo.InvariantCulture), v => v.Value)),
         };

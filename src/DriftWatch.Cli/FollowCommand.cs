@@ -81,7 +81,11 @@ internal static class FollowCommand
                 Probe = runFolder.Probe,
                 Target = runFolder.Target,
                 Policy = gate,
-                TrainingValueCounts = runFolder.TrainingValueCounts,
+                // The folder's counts when it gives them, else the probe's own training half counted (fewer rows: a
+                // moderately many-valued categorical may then look identifier-like; docs/run-folder says so).
+                TrainingValueCounts = runFolder.TrainingValueCounts.Count > 0
+                    ? runFolder.TrainingValueCounts
+                    : DriftWatch.Storage.SplitCheckDocuments.CountProbeTrainingHalf(runFolder.Schema, runFolder.Probe),
                 // The snapshots stay in the run folder as TorchScript files; the store records the folder, so reattribute finds them.
                 SaveSnapshots = false,
                 RunFolder = runFolder.Path,

@@ -14,7 +14,7 @@ using TorchSharp;
 using static TorchSharp.torch;
 
 // DriftWatch's benchmark suite. Every figure is a ratio or a count measured side by side in this one process run.
-//   dotnet run --project tests/DriftWatch.Benchmarks -c Release -- [--quick] [--out FOLDER] [--only 1,2,2b,3,4,5,6] [--threads N]
+//   dotnet run --project tests/DriftWatch.Benchmarks -c Release -- [--quick] [--out FOLDER] [--only 1,2,2b,3,4,5,6,7] [--threads N]
 bool quick = args.Contains("--quick");
 int onlyIndex = Array.IndexOf(args, "--only");
 var only = onlyIndex >= 0 && onlyIndex + 1 < args.Length ? args[onlyIndex + 1].Split(',', StringSplitOptions.TrimEntries) : null;
@@ -26,7 +26,7 @@ int outIndex = Array.IndexOf(args, "--out");
 string outFolder = outIndex >= 0 && outIndex + 1 < args.Length ? args[outIndex + 1] : "driftwatch-benchmarks";
 if (args.Any(a => a is "-h" or "--help"))
 {
-    Console.WriteLine("Usage: dotnet run --project tests/DriftWatch.Benchmarks -c Release -- [--quick] [--out FOLDER] [--only 1,2,2b,3,4,5,6] [--threads N]");
+    Console.WriteLine("Usage: dotnet run --project tests/DriftWatch.Benchmarks -c Release -- [--quick] [--out FOLDER] [--only 1,2,2b,3,4,5,6,7] [--threads N]");
     Console.WriteLine("Measures IG against a bare forward+backward pass, monitor overhead (in line and in the background), evaluations to 1% completeness,");
     Console.WriteLine("store write/read costs, report time and peak memory, and detector cost as history grows; prints a table and writes figures.csv, figures.json and figures.md.");
     return 0;
@@ -388,6 +388,41 @@ if (Runs("6"))
         double late = Measure.Median(times.Skip(epochs - window).ToArray());
         Add(new Figure("6", Invariant($"detector per epoch, {features} features, epoch {epochs}"), late, "s", "", "median of the last tenth"));
         Add(new Figure("6", Invariant($"detector late / early epochs ({epochs} epochs)"), late / early, "ratio", "≈ 1 (flat)", "median of last tenth over median of first tenth"));
+    }
+}
+
+// 7. The split-consistency check ProbeSet.Select runs over every row it is given: 100,000 rows, 20 raw inputs.
+if (Runs("7"))
+{
+    Console.WriteLine("7. Split-consistency check in ProbeSet.Select");
+    {
+        int total = quick ? 20_000 : 100_000, dense = 10, categorical = 10;
+        var random = new Random(11);
+        ProbeRows Side(int rows)
+        {
+            var d = new float[rows * dense];
+            var c = new long[rows * categorical];
+            var l = new float[rows];
+            for (int r = 0; r < rows; r++)
+            {
+                for (int i = 0; i < dense; i++)
+                    d[r * dense + i] = (float)random.NextDouble();
+                for (int i = 0; i < categorical; i++)
+                    c[r * categorical + i] = random.Next(i % 2 == 0 ? 12 : 400);
+                l[r] = d[r * dense] + 0.1 * c[r * categorical] + random.NextDouble() > 1.1 ? 1 : 0;
+            }
+            return new ProbeRows(d, dense, c, categorical, l);
+        }
+        var training = Side(total * 4 / 5);
+        var heldOut = Side(total / 5);
+        var plain = Measure.Median(Enumerable.Range(0, 3).Select(_ => Measure.Once(() => new ProbeSet(heldOut.Take([.. Enumerable.Range(0, 128)]), training.Take([.. Enumerable.Range(0, 128)])))).ToArray());
+        var cpuBefore = System.Diagnostics.Process.GetCurrentProcess().TotalProcessorTime;
+        var times = Enumerable.Range(0, 3).Select(_ => Measure.Once(() => ProbeSet.Select(heldOut, training, 128, 1))).ToArray();
+        double cpu = (System.Diagnostics.Process.GetCurrentProcess().TotalProcessorTime - cpuBefore).TotalSeconds / 3;
+        var check = ProbeSet.Select(heldOut, training, 128, 1).SplitCheck!;
+        Add(new Figure("7", Invariant($"ProbeSet.Select with the split check, {total:N0} rows × {dense + categorical} inputs"), Measure.Median(times), "s", "well under 1 s",
+            Invariant($"median of 3; {check.TrainingRowsUsed:N0} + {check.HeldOutRowsUsed:N0} rows used, B = {check.Permutations}, {Environment.ProcessorCount} cores, {cpu:F2} s of processor time per call, load average {LoadAverage()}; building the probe alone {plain * 1000:F1} ms")));
+        static string LoadAverage() => File.Exists("/proc/loadavg") ? File.ReadAllText("/proc/loadavg").Split(' ')[0] : "unknown";
     }
 }
 

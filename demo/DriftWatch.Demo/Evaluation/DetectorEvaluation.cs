@@ -7,6 +7,7 @@ using DriftWatch.Detection;
 using DriftWatch.Detection.Rules;
 using DriftWatch.Hooks;
 using DriftWatch.Probing;
+using DriftWatch.Storage;
 using TorchSharp;
 
 namespace DriftWatch.Demo.Evaluation;
@@ -34,7 +35,11 @@ public sealed record EvaluationRun(
     int? FirstAttributionHalt,
     int BestEpoch,
     int? Gl5Epoch,
-    double Seconds);
+    double Seconds)
+{
+    /// <summary>Per feature, the advisory findings of the split-consistency rules (overfitted feature, data note), as <c>kind@first epoch</c>; printed, not in runs.csv.</summary>
+    public ImmutableDictionary<string, string> Notes { get; init; } = ImmutableDictionary<string, string>.Empty;
+}
 
 /// <summary>Runs the seeded scenario suite and summarises the gate against the planted truth and the GL5 rule.</summary>
 public static class DetectorEvaluation
@@ -54,7 +59,7 @@ public static class DetectorEvaluation
         {
             output.WriteLine(Invariant($"judging the runs stored in {earlier} again under the given policy (no training)"));
             var judged = new List<EvaluationRun>();
-            foreach (var run in Rejudge(earlier, options.Policy, output))
+            foreach (var run in Rejudge(earlier, options.Policy, output, options.WithoutSplitCheck))
             {
                 judged.Add(run);
                 output.WriteLine(Line(run));
@@ -79,7 +84,8 @@ public static class DetectorEvaluation
     }
 
     private static string Line(EvaluationRun run) => Invariant(
-        $"  {run.Scenario,-15} seed {run.Seed,3}  best {run.BestEpoch,2}  GL5 {Show(run.Gl5Epoch),3}  halt {Show(run.FirstHalt),3}  named {(run.FirstNamed.IsEmpty ? "-" : string.Join(", ", run.FirstNamed.OrderBy(n => n.Value).Select(n => $"{n.Key}@{n.Value}({run.Kinds[n.Key]})")))}  {run.Seconds:F1} s");
+        $"  {run.Scenario,-15} seed {run.Seed,3}  best {run.BestEpoch,2}  GL5 {Show(run.Gl5Epoch),3}  halt {Show(run.FirstHalt),3}  named {(run.FirstNamed.IsEmpty ? "-" : string.Join(", ", run.FirstNamed.OrderBy(n => n.Value).Select(n => $"{n.Key}@{n.Value}({run.Kinds[n.Key]})")))}  {run.Seconds:F1} s")
+        + (run.Notes.IsEmpty ? "" : "  notes " + string.Join(", ", run.Notes.OrderBy(n => n.Key, StringComparer.Ordinal).Select(n => n.Key[..n.Key.LastIndexOf(':')] + " " + n.Value)));
 
     /// <summary>Writes runs.csv and summary.csv into <paramref name="folder"/> and prints the summary table.</summary>
     internal static void WriteTables(IReadOnlyList<EvaluationRun> runs, string folder, TextWriter output)
@@ -151,10 +157,12 @@ public static class DetectorEvaluation
     /// Judges every run of an earlier evaluation's store again under <paramref name="policy"/>, without training: the
     /// stored maps and metrics are replayed through the detector, and each run's scenario is rebuilt from its name and seed
     /// for the planted truth. Seconds are those of the replay. A run with fewer epochs than the longest in the store stopped
-    /// early (a failure inside training) and is left out, with a line on <paramref name="skipped"/> when given.
+    /// early (a failure inside training) and is left out, with a line on <paramref name="skipped"/> when given. With
+    /// <paramref name="withoutSplitCheck"/> the runs are judged as if no split-consistency check had been stored; without it,
+    /// a run stored before the check was recorded is given the one <c>ProbeSet.Select</c> computes from the rebuilt scenario.
     /// </summary>
     /// <exception cref="DriftWatchException">The store is missing or holds a run whose name is not <c>scenario-seedN-…</c>.</exception>
-    public static IReadOnlyList<EvaluationRun> Rejudge(string storePath, GatePolicy policy, TextWriter? skipped = null)
+    public static IReadOnlyList<EvaluationRun> Rejudge(string storePath, GatePolicy policy, TextWriter? skipped = null, bool withoutSplitCheck = false)
     {
         ArgumentNullException.ThrowIfNull(storePath);
         ArgumentNullException.ThrowIfNull(policy);
@@ -180,7 +188,11 @@ public static class DetectorEvaluation
             }
             var scenario = ScenarioBuilder.For(variant).WithSeed(seed).Build();
             var losses = store.Epochs(run.Id).ToDictionary(e => e.Epoch, e => e.Metrics.GetValueOrDefault(MetricKeys.ValidationLoss, double.NaN));
-            var judged = RunReview.Replay(store, run, policy)
+            // A run stored before the split check was recorded gets the one ProbeSet.Select computes today from the same rows.
+            var judgedRun = withoutSplitCheck ? run with { SplitCheck = null }
+                : run.SplitCheck is null ? run with { SplitCheck = SplitCheckDocuments.From(SplitCheck.Run(scenario.Validation.Rows, scenario.Training.Rows, SplitCheckOptions.Default)) }
+                : run;
+            var judged = RunReview.Replay(store, judgedRun, policy)
                 .Select(a => (a.Statistics.Epoch, losses.GetValueOrDefault(a.Statistics.Epoch, double.NaN), a.Verdict))
                 .ToList();
             result.Add(Judge(GreenhouseVariants.NameOf(variant), seed, scenario, judged, clock.Elapsed.TotalSeconds));
@@ -202,6 +214,12 @@ public static class DetectorEvaluation
                 set.Add(finding.Kind.ToString());
             }
         }
+        var notes = new Dictionary<string, string>();
+        foreach (var record in records)
+        {
+            foreach (var finding in record.Verdict.Findings.Where(f => f.Kind == FindingKind.OverfittedFeature || f.Kind == FindingKind.SplitInconsistency))
+                notes.TryAdd(finding.Feature + ":" + finding.Kind, Invariant($"{finding.Kind}@{record.Epoch}"));
+        }
         var gl = Statistics.GeneralisationLoss(records.Select(r => r.ValidationLoss).ToArray());
         int glIndex = Array.FindIndex(gl, g => g > 5);
         return new EvaluationRun(
@@ -215,7 +233,10 @@ public static class DetectorEvaluation
             records.Where(r => r.Verdict.Findings.Any(f => f.Severity == VerdictKind.Halt && f.Kind.Info.Role != EvaluationRole.LossRule)).Select(r => (int?)r.Epoch).FirstOrDefault(),
             records.MinBy(r => r.ValidationLoss).Epoch,
             glIndex < 0 ? null : records[glIndex].Epoch,
-            seconds);
+            seconds)
+        {
+            Notes = notes.ToImmutableDictionary(),
+        };
     }
 
     /// <summary>Per scenario kind: how well the gate did.</summary>

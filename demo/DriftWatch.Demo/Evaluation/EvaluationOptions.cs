@@ -42,6 +42,9 @@ public sealed record EvaluationOptions
     /// <summary>Join the shard folders in <see cref="OutputFolder"/> into runs.csv and summary.csv instead of running anything.</summary>
     public bool MergeShards { get; init; }
 
+    /// <summary>With <see cref="FromStore"/>: judge the runs as if no split-consistency check had been stored (the attribution-only leak rule), to compare.</summary>
+    public bool WithoutSplitCheck { get; init; }
+
     /// <summary>Show the evaluation's help.</summary>
     public bool Help { get; init; }
 
@@ -65,6 +68,9 @@ public sealed record EvaluationOptions
           --out FOLDER       where runs.csv, summary.csv and the store go (default: driftwatch-evaluation)
           --from-store FILE  train nothing: judge every run in an earlier evaluation's store again under --policy
                              (seeds and scenarios are the store's own; writes runs.csv and summary.csv to --out)
+          --without-split-check
+                             with --from-store: judge as if the runs had no split-consistency check (the
+                             attribution-only leak rule of earlier versions), to compare with and without it
           --shard K/N        run only shard K of N (from 0): a contiguous block of the scenario × seed runs, in suite
                              order, written to FOLDER/shard-K-of-N/ (runs.csv, results.json, its own store); one Slurm
                              array task each (hooks/driftwatch-shard.sbatch)
@@ -103,7 +109,8 @@ public sealed record EvaluationOptions
                 "--from-store" => options with { FromStore = Value() },
                 "--shard" => options with { Shard = Sharding.Shard.Parse(Value()) },
                 "--merge-shards" => options with { MergeShards = true },
-                _ => throw new DriftWatchException($"unknown option '{name}' for evaluate; valid options are --seeds, --scenarios, --epochs, --steps, --probe, --policy, --out, --from-store, --shard, --merge-shards and --help"),
+                "--without-split-check" => options with { WithoutSplitCheck = true },
+                _ => throw new DriftWatchException($"unknown option '{name}' for evaluate; valid options are --seeds, --scenarios, --epochs, --steps, --probe, --policy, --out, --from-store, --without-split-check, --shard, --merge-shards and --help"),
             };
         }
         if (options.Shard is not null && options.MergeShards)

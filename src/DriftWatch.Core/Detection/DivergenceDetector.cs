@@ -25,6 +25,7 @@ public sealed class DivergenceDetector
     private readonly int[] _heldOutRows;
     private readonly int[] _trainingRows;
     private readonly ImmutableArray<IFindingRule> _rules;
+    private readonly HalfExchangeNull? _halfExchange;
     private Cusum[]? _cusums;
     private bool[]? _shifted;
     private double[]? _previousShare;
@@ -43,6 +44,7 @@ public sealed class DivergenceDetector
         _heldOutRows = [.. _run.HeldOutRows];
         _trainingRows = [.. _run.TrainingRows];
         _rules = FindingRules.Create(policy);
+        _halfExchange = context.SplitCheck is null ? null : new HalfExchangeNull(context.HeldOutCount, context.TrainingCount, policy.HalfExchangeResplits, policy.Seed);
     }
 
     /// <summary>Whether each feature is treated as identifier-like.</summary>
@@ -125,6 +127,7 @@ public sealed class DivergenceDetector
             jaccard = Statistics.TopKJaccard(_previousShare, heldOut.Share, Math.Min(TopK, features));
         }
         _previousShare = [.. heldOut.Share];
+        var (shareP, alignmentP) = _halfExchange?.PValues(map, _context.AlignmentSigns) ?? ([], []);
 
         return new EpochStatistics
         {
@@ -140,6 +143,8 @@ public sealed class DivergenceDetector
             AlignmentTraining = training.Alignment ?? [],
             AlignmentGap = [.. alignmentGap],
             AlignmentGapWidth = [.. noise.AlignmentGapWidth],
+            ShareGapPValue = shareP,
+            AlignmentGapPValue = alignmentP,
             LeadWidthHeldOut = noise.DominanceWidthHeldOut,
             LeadWidthTraining = noise.DominanceWidthTraining,
             Shifted = [.. _shifted!],

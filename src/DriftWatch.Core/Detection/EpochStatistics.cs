@@ -49,6 +49,15 @@ public sealed record EpochStatistics
     /// <summary>90% bootstrap width of the alignment gap.</summary>
     public ImmutableArray<double> AlignmentGapWidth { get; init; } = [];
 
+    /// <summary>
+    /// One-sided p-value of the share gap under the half-exchange null (<see cref="HalfExchangeNull"/>); empty when the run
+    /// has no split-consistency check (the null is drawn only for runs whose leak rule reads it).
+    /// </summary>
+    public ImmutableArray<double> ShareGapPValue { get; init; } = [];
+
+    /// <summary>One-sided p-value of the alignment gap under the half-exchange null; empty without it or without alignment.</summary>
+    public ImmutableArray<double> AlignmentGapPValue { get; init; } = [];
+
     /// <summary>90% bootstrap width of the held-out lead: top feature's share minus the runner-up's.</summary>
     public double LeadWidthHeldOut { get; init; }
 

@@ -26,15 +26,33 @@ public sealed record GatePolicy
             p => p.GeneralisationLossThreshold, (p, v) => p with { GeneralisationLossThreshold = v },
             "Prechelt's GL threshold α, in percent: overfitting when GL(t) > α."),
         PolicySetting.Number(nameof(LeakWidths), "leakWidths", NumberRange.Above(0), p => p.LeakWidths, (p, v) => p with { LeakWidths = v },
-            "Leak: training-minus-held-out share gap beyond this many widths W."),
+            "Leak without a split-consistency check (older stores, probes built from their halves): training-minus-held-out share gap beyond this many widths W."),
         PolicySetting.Number(nameof(LeakMinimumGap), "leakMinimumGap", NumberRange.Interval(0, true, 1, true), p => p.LeakMinimumGap, (p, v) => p with { LeakMinimumGap = v },
-            "Leak: the share gap must also exceed this absolute amount."),
+            "Leak without a split-consistency check: the share gap must also exceed this absolute amount."),
         PolicySetting.Number(nameof(LeakAlignmentWidths), "leakAlignmentWidths", NumberRange.Above(0), p => p.LeakAlignmentWidths, (p, v) => p with { LeakAlignmentWidths = v },
-            "Leak: label-alignment gap (training minus held-out) of a feature that is not identifier-like beyond this many widths W."),
+            "Leak without a split-consistency check: label-alignment gap (training minus held-out) of a feature that is not identifier-like beyond this many widths W."),
         PolicySetting.Number(nameof(LeakMinimumAlignmentGap), "leakMinimumAlignmentGap", NumberRange.Interval(0, true, 2, true), p => p.LeakMinimumAlignmentGap,
-            (p, v) => p with { LeakMinimumAlignmentGap = v }, "Leak: the alignment gap must also exceed this absolute amount."),
+            (p, v) => p with { LeakMinimumAlignmentGap = v }, "Leak without a split-consistency check: the alignment gap must also exceed this absolute amount."),
         PolicySetting.Number(nameof(LeakMinimumShare), "leakMinimumShare", NumberRange.Interval(0, true, 1, true), p => p.LeakMinimumShare, (p, v) => p with { LeakMinimumShare = v },
-            "Leak by alignment: the feature's share of training-half attribution must be at least this (the model leans on it)."),
+            "Leak by alignment without a split-consistency check: the feature's share of training-half attribution must be at least this (the model leans on it)."),
+        PolicySetting.Integer(nameof(HalfExchangeResplits), "halfExchangeResplits", IntegerRange.Between(100, 100000), p => p.HalfExchangeResplits,
+            (p, v) => p with { HalfExchangeResplits = v },
+            "Reliance (leak, overfitted feature): re-splits of the probe rows between the halves, drawn once per run from seed, giving the null of each feature's share and alignment gaps."),
+        PolicySetting.Number(nameof(RelianceFalseDiscoveryRate), "relianceFalseDiscoveryRate", NumberRange.Interval(0, false, 1, false), p => p.RelianceFalseDiscoveryRate,
+            (p, v) => p with { RelianceFalseDiscoveryRate = v },
+            "Reliance: Benjamini–Hochberg false discovery rate across features, for the share gap and the alignment gap, each epoch."),
+        PolicySetting.Number(nameof(RelianceMinimumShare), "relianceMinimumShare", NumberRange.Interval(0, true, 1, true), p => p.RelianceMinimumShare,
+            (p, v) => p with { RelianceMinimumShare = v },
+            "Reliance, optional: a feature must also take at least this share of training-half attribution (0: no minimum; the null alone decides)."),
+        PolicySetting.Number(nameof(RelianceMinimumAlignmentGap), "relianceMinimumAlignmentGap", NumberRange.Interval(0, true, 2, true), p => p.RelianceMinimumAlignmentGap,
+            (p, v) => p with { RelianceMinimumAlignmentGap = v },
+            "Reliance by alignment, optional: the alignment gap must also be at least this (0: no minimum; the null alone decides)."),
+        PolicySetting.Number(nameof(SplitCheckFalseDiscoveryRate), "splitCheckFalseDiscoveryRate", NumberRange.Interval(0, false, 1, false), p => p.SplitCheckFalseDiscoveryRate,
+            (p, v) => p with { SplitCheckFalseDiscoveryRate = v },
+            "Split-consistency check: Benjamini–Hochberg false discovery rate across raw inputs."),
+        PolicySetting.Number(nameof(SplitCheckMinimumGap), "splitCheckMinimumGap", NumberRange.Interval(0, true, 1, false), p => p.SplitCheckMinimumGap,
+            (p, v) => p with { SplitCheckMinimumGap = v },
+            "Split-consistency check: an input fails only when its AUC gap (training minus held-out, the input alone predicting the label) is also at least this."),
         PolicySetting.Number(nameof(IdentifierWidths), "identifierWidths", NumberRange.Above(0), p => p.IdentifierWidths, (p, v) => p with { IdentifierWidths = v },
             "Memorised identifier: label-alignment gap beyond this many widths W."),
         PolicySetting.Number(nameof(IdentifierCusumAllowance), "identifierCusumAllowance", NumberRange.AtLeast(0), p => p.IdentifierCusumAllowance,
@@ -93,6 +111,24 @@ public sealed record GatePolicy
 
     /// <summary>The <c>leakMinimumShare</c> setting (see <see cref="Settings"/>). Default 0.1.</summary>
     public double LeakMinimumShare { get; init => field = Check(value, nameof(LeakMinimumShare)); } = 0.1;
+
+    /// <summary>The <c>halfExchangeResplits</c> setting (see <see cref="Settings"/>). Default 2000.</summary>
+    public int HalfExchangeResplits { get; init => field = Check(value, nameof(HalfExchangeResplits)); } = 2000;
+
+    /// <summary>The <c>relianceFalseDiscoveryRate</c> setting (see <see cref="Settings"/>). Default 0.05.</summary>
+    public double RelianceFalseDiscoveryRate { get; init => field = Check(value, nameof(RelianceFalseDiscoveryRate)); } = 0.05;
+
+    /// <summary>The <c>relianceMinimumShare</c> setting (see <see cref="Settings"/>). Default 0 (no minimum).</summary>
+    public double RelianceMinimumShare { get; init => field = Check(value, nameof(RelianceMinimumShare)); }
+
+    /// <summary>The <c>relianceMinimumAlignmentGap</c> setting (see <see cref="Settings"/>). Default 0 (no minimum).</summary>
+    public double RelianceMinimumAlignmentGap { get; init => field = Check(value, nameof(RelianceMinimumAlignmentGap)); }
+
+    /// <summary>The <c>splitCheckFalseDiscoveryRate</c> setting (see <see cref="Settings"/>). Default 0.05.</summary>
+    public double SplitCheckFalseDiscoveryRate { get; init => field = Check(value, nameof(SplitCheckFalseDiscoveryRate)); } = 0.05;
+
+    /// <summary>The <c>splitCheckMinimumGap</c> setting (see <see cref="Settings"/>). Default 0.02.</summary>
+    public double SplitCheckMinimumGap { get; init => field = Check(value, nameof(SplitCheckMinimumGap)); } = 0.02;
 
     /// <summary>The <c>identifierWidths</c> setting (see <see cref="Settings"/>). Default 0.75.</summary>
     public double IdentifierWidths { get; init => field = Check(value, nameof(IdentifierWidths)); } = 0.75;

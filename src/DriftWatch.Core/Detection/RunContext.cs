@@ -16,13 +16,15 @@ public sealed class RunContext
     /// <param name="labels">Labels of every probe row, or null.</param>
     /// <param name="categorical">Row-major categorical ids of every probe row.</param>
     /// <param name="trainingValueCounts">Per categorical feature name, training rows per value.</param>
+    /// <param name="splitCheck">The split-consistency check of the rows the probe was selected from, or null when there is none.</param>
     public RunContext(
         FeatureSchema schema,
         int heldOutCount,
         int trainingCount,
         float[]? labels,
         long[] categorical,
-        IReadOnlyDictionary<string, IReadOnlyDictionary<long, int>> trainingValueCounts)
+        IReadOnlyDictionary<string, IReadOnlyDictionary<long, int>> trainingValueCounts,
+        SplitCheckResult? splitCheck = null)
     {
         ArgumentNullException.ThrowIfNull(schema);
         ArgumentNullException.ThrowIfNull(categorical);
@@ -38,6 +40,23 @@ public sealed class RunContext
         TrainingValueCounts = trainingValueCounts;
         int index = 0;
         CategoricalInput = schema.Features.Select(f => f.Kind == FeatureKind.Categorical ? index++ : -1).ToImmutableArray();
+        SplitCheck = splitCheck;
+    }
+
+    /// <summary>The split-consistency check of the rows the probe was selected from; null for runs without one (older stores, probes built from their halves).</summary>
+    public SplitCheckResult? SplitCheck { get; }
+
+    /// <summary>
+    /// The split-consistency result of feature <paramref name="feature"/>'s raw input (the n-th dense or categorical feature
+    /// of the schema is the n-th raw input of its kind), or null when the run has no check or no result for it.
+    /// </summary>
+    public SplitCheckInput? SplitCheckOf(int feature)
+    {
+        if (SplitCheck is null)
+            return null;
+        var definition = Schema.Features[feature];
+        int position = Schema.Features.Take(feature).Count(f => f.Kind == definition.Kind);
+        return SplitCheck.Find(definition.Kind == FeatureKind.Dense ? RawInputKind.Dense : RawInputKind.Categorical, position);
     }
 
     /// <summary>The feature schema.</summary>
@@ -102,6 +121,7 @@ public sealed class RunContext
             run.TrainingRows,
             run.ProbeLabels is null ? null : FloatBytes.ToFloats(run.ProbeLabels),
             FloatBytes.ToLongs(run.ProbeCategorical),
-            counts);
+            counts,
+            SplitCheckDocuments.ToResult(run.SplitCheck));
     }
 }

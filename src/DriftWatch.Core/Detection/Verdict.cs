@@ -48,6 +48,12 @@ public readonly record struct FindingKind : IComparable<FindingKind>
     /// <summary>A feature the model leans on for training rows but not for held-out rows.</summary>
     public static FindingKind Leak { get; } = new("Leak");
 
+    /// <summary>A feature the model relies on more for training rows, whose column relates to the label the same way on both sides: overfitting on it, not a leak.</summary>
+    public static FindingKind OverfittedFeature { get; } = new("OverfittedFeature");
+
+    /// <summary>A data note: a column that relates to the label differently in training and held-out rows, before the model relies on it.</summary>
+    public static FindingKind SplitInconsistency { get; } = new("SplitInconsistency");
+
     /// <summary>An identifier-like categorical whose attributions agree with training labels but not held-out ones.</summary>
     public static FindingKind MemorisedIdentifier { get; } = new("MemorisedIdentifier");
 

@@ -1,4 +1,5 @@
 using System.Buffers.Binary;
+using System.Collections.Immutable;
 using System.Security.Cryptography;
 
 namespace DriftWatch.Probing;
@@ -32,6 +33,25 @@ public sealed class ProbeSet
         Hash = ComputeHash(Rows, HeldOutCount);
     }
 
+    private ProbeSet(ProbeRows heldOut, ProbeRows training, SplitCheckResult? splitCheck, ImmutableArray<ImmutableDictionary<long, int>> trainingValueCounts)
+        : this(heldOut, training)
+    {
+        SplitCheck = splitCheck;
+        TrainingValueCounts = trainingValueCounts;
+    }
+
+    /// <summary>
+    /// The split-consistency check of every training and held-out row <see cref="Select(ProbeRows, ProbeRows, int, int, SplitCheckOptions)"/>
+    /// was given; null for a probe set built from its halves alone, or when the rows could not be checked (no labels, too few rows).
+    /// </summary>
+    public SplitCheckResult? SplitCheck { get; }
+
+    /// <summary>
+    /// Per raw categorical input (in the schema's categorical order), how many of all the training rows given to
+    /// <see cref="Select(ProbeRows, ProbeRows, int, int)"/> carry each value; empty for a probe set built from its halves alone.
+    /// </summary>
+    public ImmutableArray<ImmutableDictionary<long, int>> TrainingValueCounts { get; } = [];
+
     /// <summary>All rows, held-out half first.</summary>
     public ProbeRows Rows { get; }
 
@@ -60,21 +80,53 @@ public sealed class ProbeSet
 
     /// <summary>
     /// Chooses <paramref name="perHalf"/> rows from each source by seed, stratified by label when labels are given
-    /// (each label value keeps its share of the source, rounded), and keeps them apart as two halves.
+    /// (each label value keeps its share of the source, rounded), and keeps them apart as two halves. Reads every row given
+    /// once more: the split-consistency check (<see cref="SplitCheck"/>, default options) and each categorical's training
+    /// rows per value (<see cref="TrainingValueCounts"/>).
     /// </summary>
     /// <param name="heldOut">Rows the model does not train on.</param>
     /// <param name="training">Rows from the training set.</param>
     /// <param name="perHalf">Rows to take from each source; a source with fewer rows gives all of them. Default in callers: 128.</param>
     /// <param name="seed">Seed of the choice; the same seed and rows give the same probe set.</param>
-    public static ProbeSet Select(ProbeRows heldOut, ProbeRows training, int perHalf, int seed)
+    public static ProbeSet Select(ProbeRows heldOut, ProbeRows training, int perHalf, int seed) =>
+        Select(heldOut, training, perHalf, seed, SplitCheckOptions.Default);
+
+    /// <summary>As <see cref="Select(ProbeRows, ProbeRows, int, int)"/>, with the split-consistency check's options given.</summary>
+    /// <param name="heldOut">Rows the model does not train on.</param>
+    /// <param name="training">Rows from the training set.</param>
+    /// <param name="perHalf">Rows to take from each source; a source with fewer rows gives all of them.</param>
+    /// <param name="seed">Seed of the choice; the same seed and rows give the same probe set.</param>
+    /// <param name="check">How the split-consistency check runs.</param>
+    public static ProbeSet Select(ProbeRows heldOut, ProbeRows training, int perHalf, int seed, SplitCheckOptions check)
     {
         ArgumentNullException.ThrowIfNull(heldOut);
         ArgumentNullException.ThrowIfNull(training);
+        ArgumentNullException.ThrowIfNull(check);
         if (perHalf < 1)
             throw new DriftWatchException($"probe rows per half must be at least 1; got {perHalf}");
+        if (heldOut.DenseCount != training.DenseCount || heldOut.CategoricalCount != training.CategoricalCount)
+            throw new DriftWatchException("probe halves must have the same number of dense and categorical inputs");
         return new ProbeSet(
             heldOut.Take(Choose(heldOut, perHalf, seed)),
-            training.Take(Choose(training, perHalf, unchecked(seed * 31 + 17))));
+            training.Take(Choose(training, perHalf, unchecked(seed * 31 + 17))),
+            Probing.SplitCheck.Run(heldOut, training, check),
+            CountValues(training));
+    }
+
+    private static ImmutableArray<ImmutableDictionary<long, int>> CountValues(ProbeRows training)
+    {
+        var counts = new ImmutableDictionary<long, int>[training.CategoricalCount];
+        for (int c = 0; c < training.CategoricalCount; c++)
+        {
+            var values = new Dictionary<long, int>();
+            for (int r = 0; r < training.Count; r++)
+            {
+                long v = training.Categorical[r * training.CategoricalCount + c];
+                values[v] = values.GetValueOrDefault(v) + 1;
+            }
+            counts[c] = values.ToImmutableDictionary();
+        }
+        return [.. counts];
     }
 
     internal static int[] Choose(ProbeRows source, int count, int seed)

@@ -118,6 +118,59 @@ internal sealed record RunDocument
 
     /// <summary>The run folder whose TorchScript snapshots are the run's models (a followed Python run), or null.</summary>
     public string? RunFolder { get; set; }
+
+    /// <summary>The split-consistency check of the rows the probe was selected from; null when none was run or in runs registered before it was recorded.</summary>
+    public SplitCheckDocument? SplitCheck { get; set; }
+}
+
+/// <summary>The split-consistency check of a run's source rows.</summary>
+internal sealed record SplitCheckDocument
+{
+    /// <summary>How the score was computed, in words.</summary>
+    public string Score { get; set; } = "";
+
+    /// <summary>Training rows read.</summary>
+    public int TrainingRowsUsed { get; set; }
+
+    /// <summary>Held-out rows read.</summary>
+    public int HeldOutRowsUsed { get; set; }
+
+    /// <summary>Side exchanges B of the null.</summary>
+    public int Permutations { get; set; }
+
+    /// <summary>The q the failures were decided at.</summary>
+    public double FalseDiscoveryRate { get; set; }
+
+    /// <summary>The effect-size bound the failures were decided at.</summary>
+    public double MinimumGap { get; set; }
+
+    /// <summary>One entry per raw input.</summary>
+    public List<SplitCheckInputDocument> Inputs { get; set; } = [];
+}
+
+/// <summary>One raw input's split-consistency result.</summary>
+internal sealed record SplitCheckInputDocument
+{
+    /// <summary><c>Dense</c> or <c>Categorical</c>.</summary>
+    public string Kind { get; set; } = "";
+
+    /// <summary>Index among the raw inputs of its kind.</summary>
+    public int Index { get; set; }
+
+    /// <summary>Out-of-fold AUC on training rows.</summary>
+    public double TrainingScore { get; set; }
+
+    /// <summary>Out-of-fold AUC on held-out rows.</summary>
+    public double HeldOutScore { get; set; }
+
+    /// <summary>Permutation p-value of the gap.</summary>
+    public double PValue { get; set; }
+
+    /// <summary>The null's 95th percentile of the gap.</summary>
+    public double NullUpper { get; set; }
+
+    /// <summary>Whether it failed at the stored q and bound.</summary>
+    public bool Fails { get; set; }
 }
 
 /// <summary>Per-feature aggregates over one half of the probe set.</summary>

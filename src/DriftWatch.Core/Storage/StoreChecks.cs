@@ -39,6 +39,11 @@ internal static class StoreChecks
         Require(path, run.Methods.All(m => Present(m, m?.Name, m?.Settings)), $"run '{run.Name}' has a damaged method record");
         Require(path, run.TrainingValueCounts.Values.All(v => Present(v) && v.Keys.All(k => long.TryParse(k, NumberStyles.Integer, CultureInfo.InvariantCulture, out _))),
             $"run '{run.Name}' has damaged training value counts");
+        // Runs registered before the split check was recorded have none; a present one must fit the run's raw inputs.
+        Require(path, run.SplitCheck is null || (Present(run.SplitCheck.Inputs, run.SplitCheck.Score) && run.SplitCheck.Inputs.All(i => Present(i)
+            && Known<Probing.RawInputKind>(i!.Kind) && i.Index >= 0
+            && i.Index < (i.Kind == nameof(Probing.RawInputKind.Dense) ? run.DenseCount : run.CategoricalCount))),
+            $"run '{run.Name}' has a damaged split-consistency check");
         return run;
     }
 

@@ -45,9 +45,9 @@ public sealed class PolicyCommandTests
         var (badCode, badOutput, badError) = SampleStore.Cli("policy", "--policy", folder.File("bad.json"));
 
         Assert.Equal(0, code);
-        Assert.Contains("patience                     3 *  (built-in 2)", output, StringComparison.Ordinal);
-        Assert.Contains("""haltOn                       ["Leak"] *""", output, StringComparison.Ordinal);
-        Assert.Contains("warmupEpochs                 1\n", output.ReplaceLineEndings("\n"), StringComparison.Ordinal);
+        Assert.Contains("patience                      3 *  (built-in 2)", output, StringComparison.Ordinal);
+        Assert.Contains("""haltOn                        ["Leak"] *""", output, StringComparison.Ordinal);
+        Assert.Contains("warmupEpochs                  1\n", output.ReplaceLineEndings("\n"), StringComparison.Ordinal);
         Assert.Equal(2, badCode);
         Assert.Equal("", badOutput);
         string line = Assert.Single(badError.Trim().Split('\n'));

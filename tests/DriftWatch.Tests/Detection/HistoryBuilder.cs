@@ -2,6 +2,7 @@ using System.Collections.Immutable;
 using DriftWatch.Attribution;
 using DriftWatch.Detection;
 using DriftWatch.Model;
+using DriftWatch.Probing;
 
 namespace DriftWatch.Tests.Detection;
 
@@ -27,6 +28,22 @@ internal sealed class HistoryBuilder
     private bool _sharedCrates;
     private bool _echo;
     private double _trainingNudge = 1;
+    private SplitCheckResult? _splitCheck;
+    private IReadOnlyDictionary<string, IReadOnlyDictionary<long, int>>? _counts;
+
+    /// <summary>The run carries this split-consistency check (as a run whose probe came from ProbeSet.Select).</summary>
+    public HistoryBuilder WithSplitCheck(SplitCheckResult check)
+    {
+        _splitCheck = check;
+        return this;
+    }
+
+    /// <summary>Training value counts in place of the built-in ones (700 single-row crates, 4 trays of 200).</summary>
+    public HistoryBuilder WithValueCounts(IReadOnlyDictionary<string, IReadOnlyDictionary<long, int>> counts)
+    {
+        _counts = counts;
+        return this;
+    }
 
     public HistoryBuilder WithSeed(int seed)
     {
@@ -97,8 +114,8 @@ internal sealed class HistoryBuilder
     {
         var crates = Enumerable.Range(0, 700).ToDictionary(v => (long)v, _ => 1);
         var trays = Enumerable.Range(0, 4).ToDictionary(v => (long)v, _ => 200);
-        var counts = new Dictionary<string, IReadOnlyDictionary<long, int>> { ["crate id"] = crates, ["tray"] = trays };
-        return new RunContext(Schema, _perHalf, _perHalf, Labels, Categorical, counts);
+        var counts = _counts ?? new Dictionary<string, IReadOnlyDictionary<long, int>> { ["crate id"] = crates, ["tray"] = trays };
+        return new RunContext(Schema, _perHalf, _perHalf, Labels, Categorical, counts, _splitCheck);
     }
 
     public EpochInput Epoch(int epoch, double validationLoss = 0.5)

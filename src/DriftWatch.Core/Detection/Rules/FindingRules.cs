@@ -12,8 +12,10 @@ public static class FindingRules
     [
         (LeakRule.Kind, p => new LeakRule(LeakSettings.From(p), p.Patience)),
         (MemorisedIdentifierRule.Kind, p => new MemorisedIdentifierRule(MemorisedIdentifierSettings.From(p), p.Patience)),
+        (OverfittedFeatureRule.Kind, p => new OverfittedFeatureRule(p.Patience)),
         (DominantFeatureRule.Kind, p => new DominantFeatureRule(DominantFeatureSettings.From(p), p.Patience)),
         (ProbableLeakRule.Kind, p => new ProbableLeakRule(ProbableLeakSettings.From(p))),
+        (SplitInconsistencyRule.Kind, _ => new SplitInconsistencyRule()),
         (OverfittingRule.Kind, p => new OverfittingRule(OverfittingSettings.From(p))),
         (NumericalTroubleRule.Kind, p => new NumericalTroubleRule(NumericalTroubleSettings.From(p))),
         (MonitoringFailureRule.Kind, _ => new MonitoringFailureRule()),

@@ -19,15 +19,27 @@ public sealed record LeakSettings(double Widths, double MinimumGap, double Align
 }
 
 /// <summary>
-/// <b>Leak</b>: the training-minus-held-out share gap beyond its widths of the noise floor W, or the label-alignment gap
-/// beyond its widths of W for a feature that is not identifier-like and takes enough of the training attribution.
+/// <b>Leak</b>: the model relies on a feature that is not identifier-like more for training rows — its share gap or its
+/// label-alignment gap beyond the half-exchange null (<see cref="HalfExchangeNull"/>), Benjamini–Hochberg across features at
+/// the policy's <c>relianceFalseDiscoveryRate</c> — <i>and</i> the feature's column fails the split-consistency check
+/// (<see cref="Probing.SplitCheck"/>). The same reliance on a column that passes the check is an overfitted feature
+/// (<see cref="OverfittedFeatureRule"/>), never a leak.
 /// </summary>
+/// <remarks>
+/// A run without a split-consistency check (older stores, replays of them, a probe built from its halves alone) keeps the
+/// attribution-only rule: share gap beyond <c>leakWidths</c> W and <c>leakMinimumGap</c>, or alignment gap beyond
+/// <c>leakAlignmentWidths</c> W and <c>leakMinimumAlignmentGap</c> with <c>leakMinimumShare</c>; its first finding says once
+/// that the data check was not available.
+/// </remarks>
 /// <param name="settings">What the rule reads from the policy.</param>
 /// <param name="patience">Consecutive flagged epochs before a finding (the policy's patience).</param>
 public sealed class LeakRule(LeakSettings settings, int patience) : IFindingRule
 {
     private readonly LeakSettings _settings = settings ?? throw new ArgumentNullException(nameof(settings));
     private readonly Streaks _streaks = new(patience);
+    private bool _saidUnavailable;
+
+    private const string Unavailable = " (the split-consistency check was not available for this run, so this rests on attributions alone)";
 
     /// <summary>The leak kind's words and advice.</summary>
     public static FindingKindInfo Kind { get; } = new(
@@ -62,6 +74,11 @@ public sealed class LeakRule(LeakSettings settings, int patience) : IFindingRule
         ArgumentNullException.ThrowIfNull(findings);
         var s = epoch.Statistics!;
         var run = epoch.Run;
+        if (run.Context.SplitCheck is not null && !s.ShareGapPValue.IsDefaultOrEmpty)
+        {
+            Checked(epoch, s, findings);
+            return;
+        }
         for (int f = 0; f < s.ShareGap.Length; f++)
         {
             // Two faces of a leak: the model leans on the feature more for training rows (share gap), or as much but
@@ -74,8 +91,34 @@ public sealed class LeakRule(LeakSettings settings, int patience) : IFindingRule
                 continue;
             string name = run.FeatureName(f);
             string evidence = shareLeak ? ShareSentence(name, s, f, since) : AlignmentSentence(name, s, f, since);
+            if (!_saidUnavailable)
+            {
+                evidence += Unavailable;
+                _saidUnavailable = true;
+            }
             findings.Add(new Finding(FindingKind.Leak, Kind.SeverityUnder(run.Policy), name,
                 shareLeak ? s.ShareGap[f] : s.AlignmentGap[f], shareLeak ? s.ShareGapWidth[f] : s.AlignmentGapWidth[f], new EpochSpan(since, epoch.Epoch), evidence));
+        }
+    }
+
+    // Reliance on the training half (the null) and a failed split-consistency check, both cited.
+    private void Checked(EpochView epoch, EpochStatistics s, IList<Finding> findings)
+    {
+        var run = epoch.Run;
+        var check = Reliance.Decided(run);
+        var (byShare, byAlignment) = Reliance.Of(s, run.Policy);
+        for (int f = 0; f < s.ShareGap.Length; f++)
+        {
+            var input = Reliance.CheckOf(run, check, f);
+            bool leak = !run.IdentifierLike[f] && (byShare[f] || byAlignment[f]) && input is { Fails: true };
+            if (_streaks.Observe(f, leak, epoch.Epoch) is not int since)
+                continue;
+            string name = run.FeatureName(f);
+            string evidence = Reliance.Sentence(name, s, f, since, byShare[f], run.Policy.HalfExchangeResplits)
+                + "; and its column relates to the label differently in training and held-out rows (" + Reliance.CheckSentence(input!, check!)
+                + "): it carries the label only where the model trained — a leaked signal";
+            findings.Add(new Finding(FindingKind.Leak, Kind.SeverityUnder(run.Policy), name,
+                byShare[f] ? s.ShareGap[f] : s.AlignmentGap[f], byShare[f] ? s.ShareGapWidth[f] : s.AlignmentGapWidth[f], new EpochSpan(since, epoch.Epoch), evidence));
         }
     }
 }
