@@ -31,6 +31,7 @@ public sealed class DivergenceDetector
     private double[]? _bestShare;
     private ImmutableArray<double> _bestGap = [];
     private double _bestValidation = double.PositiveInfinity;
+    private bool _notCheckedSaid;
 
     /// <summary>Creates a detector for one run.</summary>
     public DivergenceDetector(RunContext context, GatePolicy policy)
@@ -57,11 +58,15 @@ public sealed class DivergenceDetector
         var view = new EpochView(_run, input.Epoch, input.Metrics, input.Map) { GeneralisationLoss = gl };
 
         Run(RuleStage.Health, view, findings);
+        bool attributed = false;
         if (view.Trusted)
         {
             view.Statistics = Measure(input.Epoch, view.Map!, gl);
             if (input.Epoch >= _policy.WarmupEpochs)
+            {
                 Run(RuleStage.Attribution, view, findings);
+                attributed = true;
+            }
             if (newBest || _bestShare is null)
             {
                 _bestShare = [.. view.Statistics.ShareHeldOut];
@@ -72,7 +77,14 @@ public sealed class DivergenceDetector
         Run(RuleStage.Loss, view, findings);
 
         var statistics = view.Trusted ? view.Statistics! : new EpochStatistics { Epoch = input.Epoch, Trusted = false, GeneralisationLoss = gl };
-        return new Assessment(statistics, Judge(input.Epoch, findings));
+        var verdict = Judge(input.Epoch, findings);
+        if (attributed && !_notCheckedSaid && _context.NotChecked is { } note)
+        {
+            // Said once, in the first verdict the attribution rules read, so a silent rule is never mistaken for a quiet one.
+            _notCheckedSaid = true;
+            verdict = verdict with { Reasons = verdict.Reasons.Add(note) };
+        }
+        return new Assessment(statistics, verdict);
     }
 
     private void Run(RuleStage stage, EpochView view, List<Finding> findings)
