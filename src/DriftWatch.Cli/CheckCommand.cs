@@ -57,16 +57,17 @@ internal static class CheckCommand
             var firstHalt = verdicts.FirstOrDefault(v => v.IsHalt);
             bool halt = latest?.IsHalt == true || (parse.GetValue(any) && firstHalt is not null);
             string source = policyPath is null ? "stored verdicts" : "policy " + policyPath;
+            string? notChecked = RunContext.FromRun(document).NotChecked;
             if (parse.GetValue(json))
-                WriteJson(output, document.Name, latest, firstHalt, halt, source);
+                WriteJson(output, document.Name, latest, firstHalt, halt, source, notChecked);
             else
-                WriteText(output, document.Name, latest, firstHalt, halt, source);
+                WriteText(output, document.Name, latest, firstHalt, halt, source, notChecked);
             return halt ? ExitCodes.Halt : ExitCodes.Fine;
         });
         return command;
     }
 
-    private static void WriteText(TextWriter output, string run, Verdict? latest, Verdict? firstHalt, bool halt, string source)
+    private static void WriteText(TextWriter output, string run, Verdict? latest, Verdict? firstHalt, bool halt, string source, string? notChecked)
     {
         string name = DisplayText.Clean(run);
         if (latest is null)
@@ -77,13 +78,15 @@ internal static class CheckCommand
         output.WriteLine($"{name}: epoch {Formats.Integer(latest.Epoch)}  {latest.Kind}{(halt ? "  — stopping is advised" : "")}  ({DisplayText.Clean(source)})");
         foreach (var finding in latest.Findings)
             output.WriteLine($"  {finding.Severity.ToString().ToLowerInvariant(),-8} {(finding.Kind.IsKnown ? finding.Kind.Name : DisplayText.Clean(finding.Kind.Info.PlainWords))}: {DisplayText.Clean(finding.Evidence)}");
+        if (notChecked is not null)
+            output.WriteLine($"  {DisplayText.Clean(notChecked)}");
         if (firstHalt is not null && firstHalt.Epoch != latest.Epoch)
             output.WriteLine($"  first Halt at epoch {Formats.Integer(firstHalt.Epoch)}: {DisplayText.Clean(firstHalt.Reasons.FirstOrDefault() ?? "")}");
         if (halt)
             output.WriteLine("  A Halt is advice to a person, not proof: attributions describe the model, not causes in the data.");
     }
 
-    private static void WriteJson(TextWriter output, string run, Verdict? latest, Verdict? firstHalt, bool halt, string source)
+    private static void WriteJson(TextWriter output, string run, Verdict? latest, Verdict? firstHalt, bool halt, string source, string? notChecked)
     {
         var document = new Dictionary<string, object?>
         {
@@ -93,6 +96,7 @@ internal static class CheckCommand
             ["verdict"] = latest?.Kind.ToString(),
             ["haltAdvised"] = halt,
             ["firstHaltEpoch"] = firstHalt?.Epoch,
+            ["notChecked"] = notChecked,
             ["findings"] = latest?.Findings.Select(f => new Dictionary<string, object?>
             {
                 ["kind"] = f.Kind.ToString(),

@@ -91,6 +91,7 @@ internal static class ShowCommand
             ["method"] = history.Method,
             ["methods"] = history.Methods.ToArray(),
             ["target"] = history.Target,
+            ["notChecked"] = history.NotChecked,
             ["baseline"] = history.Baseline,
             ["features"] = history.FeatureNames.ToArray(),
             ["epochs"] = history.Epochs.Select(e => new Dictionary<string, object?>
@@ -144,6 +145,8 @@ internal static class ShowCommand
         output.WriteLine($"  probe set    {Formats.Integer(history.HeldOutRows)} held-out + {Formats.Integer(history.TrainingRows)} training rows, hash {DisplayText.Clean(hash)}");
         output.WriteLine($"  features     {Formats.Integer(history.FeatureNames.Length)}");
         output.WriteLine($"  method       {DisplayText.Clean(history.Method)} (target {DisplayText.Clean(history.Target)}, baseline {DisplayText.Clean(history.Baseline)}); run's methods: {DisplayText.Clean(string.Join(", ", history.Methods))}");
+        if (history.NotChecked is { } note)
+            output.WriteLine($"  label rules  {DisplayText.Clean(note)}");
         if (!history.Epochs.IsEmpty)
         {
             int attributed = history.Epochs.Count(e => e.IsAttributed);
@@ -192,7 +195,8 @@ internal static class ShowCommand
         var lines = new List<string>();
         foreach (var epoch in history.Epochs)
         {
-            foreach (string reason in epoch.Reasons)
+            // The run's "not checked" line is in the header: said once.
+            foreach (string reason in epoch.Reasons.Where(r => r != history.NotChecked))
                 lines.Add($"  epoch {Formats.Integer(epoch.Epoch)}  {DisplayText.Clean(reason)}");
             // The monitor also lists its own failures among the verdict's findings; show each once.
             foreach (string problem in epoch.Problems.Where(p => !epoch.Reasons.Any(r => r.EndsWith(p, StringComparison.Ordinal))))

@@ -167,6 +167,8 @@ public static class RunReport
         h.Append("</ul>\n</section>\n");
 
         h.Append("<section id=\"findings\">\n<h2>Findings</h2>\n");
+        if (history.NotChecked is { } notChecked)
+            h.Append($"<p class=\"not-checked\">{ReportText.Html(notChecked)}.</p>\n");
         if (findings.Count == 0)
         {
             h.Append("<p>No findings: nothing was flagged at any epoch.</p>\n");
@@ -274,6 +276,8 @@ public static class RunReport
         m.Append('\n');
 
         m.Append("## Findings\n\n");
+        if (history.NotChecked is { } notChecked)
+            m.Append($"{ReportText.Markdown(notChecked)}.\n\n");
         if (findings.Count == 0)
         {
             m.Append("No findings: nothing was flagged at any epoch.\n\n");

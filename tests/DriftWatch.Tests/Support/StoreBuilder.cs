@@ -23,6 +23,7 @@ internal sealed class StoreBuilder
     private double[]? _losses;
     private double[]? _validationLosses;
     private bool _lastUncommitted;
+    private int _classes = 2;
 
     public StoreBuilder WithRun(string name)
     {
@@ -90,6 +91,13 @@ internal sealed class StoreBuilder
         return this;
     }
 
+    /// <summary>The probe rows carry class labels 0 … <paramref name="classes"/> − 1 (row r has class r mod K) instead of 0/1.</summary>
+    public StoreBuilder WithClassLabels(int classes)
+    {
+        _classes = classes;
+        return this;
+    }
+
     public StoreBuilder WithoutStatistics()
     {
         _statistics = false;
@@ -105,7 +113,7 @@ internal sealed class StoreBuilder
         var random = new Random(_seed);
         var labels = new float[rows];
         for (int r = 0; r < rows; r++)
-            labels[r] = r % 2;
+            labels[r] = r % _classes;
         var run = store.AddRun(new RunDocument
         {
             Name = _run,
