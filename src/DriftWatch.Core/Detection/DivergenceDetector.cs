@@ -32,6 +32,7 @@ public sealed class DivergenceDetector
     private ImmutableArray<double> _bestGap = [];
     private double _bestValidation = double.PositiveInfinity;
     private bool _notCheckedSaid;
+    private int? _firstEpoch;
 
     /// <summary>Creates a detector for one run.</summary>
     public DivergenceDetector(RunContext context, GatePolicy policy)
@@ -53,6 +54,7 @@ public sealed class DivergenceDetector
     public Assessment Observe(EpochInput input)
     {
         ArgumentNullException.ThrowIfNull(input);
+        _firstEpoch ??= input.Epoch;
         var findings = new List<Finding>(input.Reported);
         var (gl, newBest) = GeneralisationLoss(input.Metrics);
         var view = new EpochView(_run, input.Epoch, input.Metrics, input.Map) { GeneralisationLoss = gl };
@@ -62,7 +64,7 @@ public sealed class DivergenceDetector
         if (view.Trusted)
         {
             view.Statistics = Measure(input.Epoch, view.Map!, gl);
-            if (input.Epoch >= _policy.WarmupEpochs)
+            if (!InWarmup(input.Epoch))
             {
                 Run(RuleStage.Attribution, view, findings);
                 attributed = true;
@@ -86,6 +88,10 @@ public sealed class DivergenceDetector
         }
         return new Assessment(statistics, verdict);
     }
+
+    // Whether the epoch is one of the run's first WarmupEpochs epochs, counted from the first epoch this detector read, as
+    // users number them: with epochs 1, 2, 3 … a warm-up of 1 ignores epoch 1, a warm-up of 0 none.
+    private bool InWarmup(int epoch) => epoch - _firstEpoch!.Value < _policy.WarmupEpochs;
 
     private void Run(RuleStage stage, EpochView view, List<Finding> findings)
     {

@@ -193,10 +193,10 @@ internal sealed class HistoryBuilder
         return new EpochInput(epoch, metrics, map, ImmutableArray<Finding>.Empty);
     }
 
-    public List<Assessment> Run(int epochs, GatePolicy? policy = null, Func<int, double>? validation = null)
+    public List<Assessment> Run(int epochs, GatePolicy? policy = null, Func<int, double>? validation = null, int firstEpoch = 0)
     {
         var detector = new DivergenceDetector(Context(), policy ?? GatePolicy.Default);
-        return Enumerable.Range(0, epochs).Select(e => detector.Observe(Epoch(e, validation?.Invoke(e) ?? 0.5))).ToList();
+        return Enumerable.Range(firstEpoch, epochs).Select(e => detector.Observe(Epoch(e, validation?.Invoke(e) ?? 0.5))).ToList();
     }
 
     private static double Gaussian(Random random) =>
