@@ -77,7 +77,7 @@ internal static class CheckCommand
         }
         output.WriteLine($"{name}: epoch {Formats.Integer(latest.Epoch)}  {latest.Kind}{(halt ? "  — stopping is advised" : "")}  ({DisplayText.Clean(source)})");
         foreach (var finding in latest.Findings)
-            output.WriteLine($"  {finding.Severity.ToString().ToLowerInvariant(),-8} {(finding.Kind.IsKnown ? finding.Kind.Name : DisplayText.Clean(finding.Kind.Info.PlainWords))}: {DisplayText.Clean(finding.Evidence)}");
+            output.WriteLine($"  {finding.Severity.ToString().ToLowerInvariant(),-8} {(finding.Kind.IsKnown ? finding.Kind.Name : DisplayText.Clean(finding.Kind.Info.PlainWords))} (epochs {finding.Epochs}): {DisplayText.Clean(finding.Evidence)}");
         if (notChecked is not null)
             output.WriteLine($"  {DisplayText.Clean(notChecked)}");
         if (firstHalt is not null && firstHalt.Epoch != latest.Epoch)
@@ -104,6 +104,9 @@ internal static class CheckCommand
                 ["feature"] = f.Feature,
                 ["size"] = double.IsFinite(f.Size) ? f.Size : null,
                 ["noiseFloor"] = double.IsFinite(f.NoiseFloor) ? f.NoiseFloor : null,
+                ["sizeMeasures"] = f.Kind.Info.Measure.Size,
+                ["judgedAgainst"] = f.Kind.Info.Measure.Against,
+                ["unit"] = f.Kind.Info.Measure.Unit,
                 ["epochs"] = new[] { f.Epochs.First, f.Epochs.Last },
                 ["evidence"] = f.Evidence,
                 ["seenOnlyBy"] = f.SeenOnlyBy.IsDefaultOrEmpty ? Array.Empty<string>() : f.SeenOnlyBy.ToArray(),

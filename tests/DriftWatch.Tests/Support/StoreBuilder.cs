@@ -24,6 +24,7 @@ internal sealed class StoreBuilder
     private double[]? _validationLosses;
     private bool _lastUncommitted;
     private int _classes = 2;
+    private (int From, int To)[] _stories = [];
 
     public StoreBuilder WithRun(string name)
     {
@@ -60,6 +61,17 @@ internal sealed class StoreBuilder
     {
         _flagged = feature;
         _haltFrom = fromEpoch;
+        return this;
+    }
+
+    /// <summary>
+    /// Feature <paramref name="feature"/> gets a Leak finding (a Halt) at every epoch of each story, each finding covering
+    /// from its story's first epoch to its own and saying "since epoch" that first epoch.
+    /// </summary>
+    public StoreBuilder WithLeakStories(int feature, params (int From, int To)[] stories)
+    {
+        _flagged = feature;
+        _stories = stories;
         return this;
     }
 
@@ -188,7 +200,10 @@ internal sealed class StoreBuilder
                     },
                 });
             }
-            bool halt = _flagged >= 0 && epoch >= _haltFrom;
+            var story = _stories.FirstOrDefault(t => epoch >= t.From && epoch <= t.To);
+            bool inStory = story != default;
+            bool halt = _flagged >= 0 && (epoch >= _haltFrom || inStory);
+            int from = inStory ? story.From : _haltFrom;
             var findings = halt
                 ? new List<FindingDocument>
                 {
@@ -199,8 +214,8 @@ internal sealed class StoreBuilder
                         Severity = nameof(VerdictKind.Halt),
                         Size = 0.2,
                         NoiseFloor = 0.05,
-                        Epochs = [_haltFrom, epoch],
-                        Evidence = $"'{_features[_flagged]}' takes more attribution on training rows than held-out rows",
+                        Epochs = [from, epoch],
+                        Evidence = $"'{_features[_flagged]}' takes more attribution on training rows than held-out rows" + (inStory ? $" since epoch {from} (at epoch {epoch})" : ""),
                     },
                 }
                 : [];

@@ -36,7 +36,10 @@ public sealed class MemorisedIdentifierRule(MemorisedIdentifierSettings settings
         "gap",
         SeverityRule.PolicyDecides,
         EvaluationRole.NamesFault,
-        a => $"{a.Features} behaves like an identifier the model memorised: consider dropping it or grouping its rare values. The feature chart shows the rows it separates.");
+        a => $"{a.Features} behaves like an identifier the model memorised: consider dropping it or grouping its rare values. The feature chart shows the rows it separates.")
+    {
+        Measure = new FindingMeasure("alignment gap", "noise floor", ""),
+    };
 
     private static string Sentence(string name, EpochStatistics s, int f, string how) =>
         Format($"identifier-like '{name}' agrees with the label on training rows (alignment {s.AlignmentTraining[f]:+0.00;-0.00}) ")

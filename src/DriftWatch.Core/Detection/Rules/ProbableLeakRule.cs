@@ -35,7 +35,10 @@ public sealed class ProbableLeakRule(ProbableLeakSettings settings) : IFindingRu
         "dominance",
         SeverityRule.PolicyDecides,
         EvaluationRole.NamesFault,
-        a => $"Check whether {a.Features} is derived from the label: it nearly fixes the label on held-out rows too, a pipeline fault the validation loss cannot show.");
+        a => $"Check whether {a.Features} is derived from the label: it nearly fixes the label on held-out rows too, a pipeline fault the validation loss cannot show.")
+    {
+        Measure = new FindingMeasure("purity lower bound (share of probe rows)", "required bound", ""),
+    };
 
     private static string Sentence(string name, double share, double next, PurityResult pure) =>
         Format($"'{name}' decides on both halves ({share:P1} held-out share, next {next:P1}), ")
