@@ -63,8 +63,15 @@ public sealed record MonitorOptions
     /// <exception cref="DriftWatchException">Empty, or a method twice.</exception>
     public ImmutableArray<IAttributionMethod> Methods { get; init => field = CheckMethods(value); } = [new IntegratedGradients()];
 
-    /// <summary>The attributed output. Default: the logit of a binary classifier.</summary>
-    public AttributionTarget Target { get; init; } = AttributionTarget.Logit;
+    /// <summary>
+    /// The attributed output. Default: each row's own true class (<see cref="AttributionTarget.TrueClass"/>) when the probe's
+    /// labels are K ≥ 3 classes and no layers are watched, else the logit of a binary classifier.
+    /// </summary>
+    public AttributionTarget Target
+    {
+        get => field ?? (LabelKinds.Of(Probe?.Rows.Labels) == LabelKind.Classes && WatchedLayers.IsDefaultOrEmpty ? AttributionTarget.TrueClass : AttributionTarget.Logit);
+        init;
+    }
 
     /// <summary>The baseline of path and difference methods. Default: zero.</summary>
     public Baseline Baseline { get; init; } = Baseline.Zero;
@@ -193,6 +200,14 @@ public sealed record MonitorOptions
         problems.AddIf(BackgroundAttribution && Model is null, () =>
             "BackgroundAttribution needs Model (a ModelRecipe): the monitor builds its own copy of the model from it to attribute each epoch's weights while the next epoch trains");
         problems.AddIf(WatchedModel is not null && !SameSchema(WatchedModel.Schema), () => "WatchedModel's schema differs from Schema; pass model.Schema as Schema");
+        if (Target.IsPerRow)
+        {
+            var labels = LabelKinds.Of(Probe.Rows.Labels);
+            problems.AddIf(labels is not (LabelKind.Binary or LabelKind.Classes), () =>
+                $"Target is the row's true class but the probe's labels are {(labels == LabelKind.None ? "missing" : "not class indices")}; give each probe row its class (0 … K−1) or choose another target");
+            problems.AddIf(!WatchedLayers.IsEmpty, () =>
+                "Target is the row's true class, which reads a different output per row, but layer maps attribute one output: watch layers with Target = AttributionTarget.Class(k)");
+        }
         if (!WatchedLayers.IsEmpty)
         {
             problems.AddIf(LayerMethods.IsDefaultOrEmpty, () => "WatchedLayers is set but LayerMethods is empty; leave LayerMethods out for layer conductance");

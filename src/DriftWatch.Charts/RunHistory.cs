@@ -94,6 +94,7 @@ public sealed class RunHistory
         HeldOutRows = run.HeldOutRows;
         TrainingRows = run.TrainingRows;
         Target = run.Target;
+        NotChecked = RunContext.FromRun(run).NotChecked;
         Baseline = run.Baseline;
         Methods = run.Methods.Select(m => m.Name).ToImmutableArray();
         Method = method;
@@ -121,6 +122,12 @@ public sealed class RunHistory
 
     /// <summary>The attributed output, e.g. <c>logit</c>.</summary>
     public string Target { get; }
+
+    /// <summary>
+    /// The one line saying which label rules cannot run for the run's labels and target, and why (<c>not checked: …</c>;
+    /// see <see cref="RunContext.NotChecked"/>), or null when they all can.
+    /// </summary>
+    public string? NotChecked { get; }
 
     /// <summary>The attribution baseline, e.g. <c>zero</c>.</summary>
     public string Baseline { get; }

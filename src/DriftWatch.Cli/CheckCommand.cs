@@ -70,10 +70,11 @@ internal static class CheckCommand
             bool halt = latest?.IsHalt == true || (parse.GetValue(any) && firstHalt is not null);
             string source = policyPath is null ? "stored verdicts" : "policy " + policyPath;
             var features = document.Features.Select(f => f.Name).ToList();
+            string? notChecked = RunContext.FromRun(document).NotChecked;
             if (parse.GetValue(json))
-                WriteJson(output, document.Name, latest, firstHalt, halt, source, latestStatistics, features, weights);
+                WriteJson(output, document.Name, latest, firstHalt, halt, source, latestStatistics, features, weights, notChecked);
             else
-                WriteText(output, document.Name, latest, firstHalt, halt, source, weights);
+                WriteText(output, document.Name, latest, firstHalt, halt, source, weights, notChecked);
             return halt ? ExitCodes.Halt : ExitCodes.Fine;
         });
         return command;
@@ -104,7 +105,7 @@ internal static class CheckCommand
         }
     }
 
-    private static void WriteText(TextWriter output, string run, Verdict? latest, Verdict? firstHalt, bool halt, string source, (string Command, SnapshotChoice Best)? weights)
+    private static void WriteText(TextWriter output, string run, Verdict? latest, Verdict? firstHalt, bool halt, string source, (string Command, SnapshotChoice Best)? weights, string? notChecked)
     {
         string name = DisplayText.Clean(run);
         if (latest is null)
@@ -114,7 +115,9 @@ internal static class CheckCommand
         }
         output.WriteLine($"{name}: epoch {Formats.Integer(latest.Epoch)}  {latest.Kind}{(halt ? "  — stopping is advised" : "")}  ({DisplayText.Clean(source)})");
         foreach (var finding in latest.Findings)
-            output.WriteLine($"  {finding.Severity.ToString().ToLowerInvariant(),-8} {(finding.Kind.IsKnown ? finding.Kind.Name : DisplayText.Clean(finding.Kind.Info.PlainWords))}: {DisplayText.Clean(finding.Evidence)}");
+            output.WriteLine($"  {finding.Severity.ToString().ToLowerInvariant(),-8} {(finding.Kind.IsKnown ? finding.Kind.Name : DisplayText.Clean(finding.Kind.Info.PlainWords))} (epochs {finding.Epochs}): {DisplayText.Clean(finding.Evidence)}");
+        if (notChecked is not null)
+            output.WriteLine($"  {DisplayText.Clean(notChecked)}");
         if (firstHalt is not null && firstHalt.Epoch != latest.Epoch)
             output.WriteLine($"  first Halt at epoch {Formats.Integer(firstHalt.Epoch)}: {DisplayText.Clean(firstHalt.Reasons.FirstOrDefault() ?? "")}");
         if (halt)
@@ -125,7 +128,7 @@ internal static class CheckCommand
         }
     }
 
-    private static void WriteJson(TextWriter output, string run, Verdict? latest, Verdict? firstHalt, bool halt, string source, EpochStatistics? statistics, List<string> features, (string Command, SnapshotChoice Best)? weights)
+    private static void WriteJson(TextWriter output, string run, Verdict? latest, Verdict? firstHalt, bool halt, string source, EpochStatistics? statistics, List<string> features, (string Command, SnapshotChoice Best)? weights, string? notChecked)
     {
         var document = new Dictionary<string, object?>
         {
@@ -135,6 +138,7 @@ internal static class CheckCommand
             ["verdict"] = latest?.Kind.ToString(),
             ["halt_advised"] = halt,
             ["first_halt_epoch"] = firstHalt?.Epoch,
+            ["not_checked"] = notChecked,
             ["best_epoch"] = weights?.Best.Epoch,
             ["weights_command"] = weights?.Command,
             ["findings"] = latest?.Findings.Select(f =>

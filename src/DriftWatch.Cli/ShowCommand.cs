@@ -91,6 +91,7 @@ internal static class ShowCommand
             ["method"] = history.Method,
             ["methods"] = history.Methods.ToArray(),
             ["target"] = history.Target,
+            ["not_checked"] = history.NotChecked,
             ["baseline"] = history.Baseline,
             ["features"] = history.FeatureNames.ToArray(),
             ["epochs"] = history.Epochs.Select(e => new Dictionary<string, object?>
@@ -152,6 +153,8 @@ internal static class ShowCommand
         output.WriteLine($"  probe set    {Formats.Integer(history.HeldOutRows)} held-out + {Formats.Integer(history.TrainingRows)} training rows, hash {DisplayText.Clean(hash)}");
         output.WriteLine($"  features     {Formats.Integer(history.FeatureNames.Length)}");
         output.WriteLine($"  method       {DisplayText.Clean(history.Method)} (target {DisplayText.Clean(history.Target)}, baseline {DisplayText.Clean(history.Baseline)}); run's methods: {DisplayText.Clean(string.Join(", ", history.Methods))}");
+        if (history.NotChecked is { } note)
+            output.WriteLine($"  label rules  {DisplayText.Clean(note)}");
         if (!history.Epochs.IsEmpty)
         {
             int attributed = history.Epochs.Count(e => e.IsAttributed);
@@ -195,24 +198,44 @@ internal static class ShowCommand
         table.Write(output);
     }
 
+    // The findings once per story (a kind and feature over one span of epochs) with the latest evidence, then the
+    // monitoring problems and any other stored reasons by epoch; the run's "not checked" line is in the header.
     private static void WriteReasons(TextWriter output, RunHistory history)
     {
+        var stories = RunFindings.Summarise(history);
+        var evidence = history.Epochs.SelectMany(e => e.Findings).Select(f => f.Evidence).ToHashSet(StringComparer.Ordinal);
+        bool Told(string text) => evidence.Contains(text) || text == history.NotChecked;
         var lines = new List<string>();
         foreach (var epoch in history.Epochs)
         {
-            foreach (string reason in epoch.Reasons)
+            // A stored reason reads "Severity: text"; the text of a finding's evidence or of the "not checked" line is told above.
+            foreach (string reason in epoch.Reasons.Where(r => Told(r[(r.IndexOf(": ", StringComparison.Ordinal) + 2)..]) is false))
                 lines.Add($"  epoch {Formats.Integer(epoch.Epoch)}  {DisplayText.Clean(reason)}");
             // The monitor also lists its own failures among the verdict's findings; show each once.
             foreach (string problem in epoch.Problems.Where(p => !epoch.Reasons.Any(r => r.EndsWith(p, StringComparison.Ordinal))))
                 lines.Add($"  epoch {Formats.Integer(epoch.Epoch)}  problem: {DisplayText.Clean(problem)}");
         }
-        if (lines.Count == 0)
+        if (stories.Count == 0 && lines.Count == 0)
         {
-            output.WriteLine("No verdict reasons or monitoring problems stored.");
+            output.WriteLine("No findings, verdict reasons or monitoring problems stored.");
             return;
         }
-        output.WriteLine("Verdict reasons and monitoring problems:");
-        foreach (string line in lines)
-            output.WriteLine(line);
+        if (stories.Count > 0)
+        {
+            output.WriteLine("Findings, once per span of epochs (latest evidence):");
+            foreach (var story in stories)
+            {
+                string feature = story.Feature.Length == 0 ? "" : $" '{DisplayText.Clean(story.Feature, FeatureNameLength)}'";
+                output.WriteLine($"  epochs {story.Span,-7} {story.Severity,-8} {DisplayText.Clean(RunFindings.Describe(story))}{feature}: {DisplayText.Clean(story.Evidence)}");
+            }
+        }
+        if (lines.Count > 0)
+        {
+            if (stories.Count > 0)
+                output.WriteLine();
+            output.WriteLine("Other verdict reasons and monitoring problems:");
+            foreach (string line in lines)
+                output.WriteLine(line);
+        }
     }
 }

@@ -167,6 +167,8 @@ public static class RunReport
         h.Append("</ul>\n</section>\n");
 
         h.Append("<section id=\"findings\">\n<h2>Findings</h2>\n");
+        if (history.NotChecked is { } notChecked)
+            h.Append($"<p class=\"not-checked\">{ReportText.Html(notChecked)}.</p>\n");
         if (findings.Count == 0)
         {
             h.Append("<p>No findings: nothing was flagged at any epoch.</p>\n");
@@ -174,13 +176,13 @@ public static class RunReport
         else
         {
             h.Append("<table id=\"findings-table\" class=\"findings\">\n<thead><tr><th scope=\"col\">severity</th><th scope=\"col\">finding</th><th scope=\"col\">feature</th>"
-                + "<th scope=\"col\">raised at epochs</th><th scope=\"col\">covers since</th><th scope=\"col\">size</th><th scope=\"col\">noise floor</th><th scope=\"col\">evidence (latest)</th></tr></thead>\n<tbody>\n");
+                + "<th scope=\"col\">raised at epochs</th><th scope=\"col\">covers since</th><th scope=\"col\">size</th><th scope=\"col\">judged against</th><th scope=\"col\">evidence (latest)</th></tr></thead>\n<tbody>\n");
             foreach (var f in findings)
             {
-                h.Append($"<tr class=\"severity-{f.Severity.ToString().ToLowerInvariant()}\" data-kind=\"{f.Kind}\" data-feature=\"{ReportText.Html(f.Feature)}\" data-seen-only-by=\"{ReportText.Html(string.Join(", ", f.SeenOnlyBy))}\">");
+                h.Append($"<tr class=\"severity-{f.Severity.ToString().ToLowerInvariant()}\" data-kind=\"{f.Kind}\" data-feature=\"{(f.Feature.Length == 0 ? "" : ReportText.Html(f.Feature))}\" data-seen-only-by=\"{ReportText.Html(string.Join(", ", f.SeenOnlyBy))}\">");
                 h.Append($"<td>{f.Severity}</td><td>{ReportText.Html(RunFindings.Describe(f))}</td><td>{(f.Feature.Length == 0 ? "(run)" : ReportText.Html(f.Feature))}</td>");
                 h.Append($"<td>{ReportText.Html(ReportText.Ranges(f.FlaggedEpochs))}</td><td>{ReportText.Integer(f.Since)}</td>");
-                h.Append($"<td class=\"number\">{ReportText.Number(f.Size)}</td><td class=\"number\">{ReportText.Number(f.NoiseFloor)}</td><td>{ReportText.Html(f.Evidence)}</td></tr>\n");
+                h.Append($"<td class=\"number\">{ReportText.Html(SizeText(f))}</td><td class=\"number\">{ReportText.Html(AgainstText(f))}</td><td>{ReportText.Html(f.Evidence)}</td></tr>\n");
             }
             h.Append("</tbody>\n</table>\n");
         }
@@ -274,17 +276,19 @@ public static class RunReport
         m.Append('\n');
 
         m.Append("## Findings\n\n");
+        if (history.NotChecked is { } notChecked)
+            m.Append($"{ReportText.Markdown(notChecked)}.\n\n");
         if (findings.Count == 0)
         {
             m.Append("No findings: nothing was flagged at any epoch.\n\n");
         }
         else
         {
-            m.Append("| severity | finding | feature | raised at epochs | covers since | size | noise floor | evidence (latest) |\n|---|---|---|---|---:|---:|---:|---|\n");
+            m.Append("| severity | finding | feature | raised at epochs | covers since | size | judged against | evidence (latest) |\n|---|---|---|---|---:|---:|---:|---|\n");
             foreach (var f in findings)
             {
                 m.Append($"| {f.Severity} | {ReportText.Markdown(RunFindings.Describe(f))} | {(f.Feature.Length == 0 ? "(run)" : ReportText.Markdown(f.Feature))} | {ReportText.Markdown(ReportText.Ranges(f.FlaggedEpochs))} | ");
-                m.Append($"{ReportText.Integer(f.Since)} | {ReportText.Number(f.Size)} | {ReportText.Number(f.NoiseFloor)} | {ReportText.Markdown(f.Evidence)} |\n");
+                m.Append($"{ReportText.Integer(f.Since)} | {ReportText.Markdown(SizeText(f))} | {ReportText.Markdown(AgainstText(f))} | {ReportText.Markdown(f.Evidence)} |\n");
             }
             m.Append('\n');
         }
@@ -404,6 +408,15 @@ public static class RunReport
 
     private static string Figure(double value) =>
         double.IsFinite(value) ? value.ToString("0.000", CultureInfo.InvariantCulture) : "n/a";
+
+    // A finding's size and what it is judged against, each with its unit and meaning, so a percentage threshold is never
+    // read as an attribution noise floor: e.g. "0.263 alignment gap" against "0.698 noise floor", "12.0 % generalisation
+    // loss" against "5.0 % threshold".
+    internal static string SizeText(FindingSummary f) => Measured(f.Measure.Write(f.Size), f.Measure.Size);
+
+    internal static string AgainstText(FindingSummary f) => Measured(f.Measure.Write(f.NoiseFloor), f.Measure.Against);
+
+    private static string Measured(string value, string meaning) => value == "-" || meaning.Length == 0 ? "-" : value + " " + meaning;
 
     private static List<(string Name, string Value)> Facts(RunHistory history, string storePath)
     {

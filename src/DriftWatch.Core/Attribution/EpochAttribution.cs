@@ -136,7 +136,7 @@ internal sealed class EpochAttribution
                 if (Map(method, input, runId, epoch, problems) is { } map)
                     maps.Add(map);
             }
-            var layerMaps = WatchedLayers.IsDefaultOrEmpty ? [] : AttributeLayers(model, input, runId, epoch, problems);
+            var layerMaps = WatchedLayers.IsDefaultOrEmpty ? [] : AttributeLayers(model, input.Whole, runId, epoch, problems);
             return new EpochMaps(Compare(maps, problems, epoch), layerMaps, [.. problems]);
         }
         finally
@@ -170,8 +170,39 @@ internal sealed class EpochAttribution
         };
     }
 
-    // The probe rows in feature space, the baseline, and the input every method reads.
-    private AttributionInput Input(IWatchedModel model, int epoch, List<AttributionProblem> problems)
+    // The input every method reads: one for the whole probe, or, for the row's true class, one per class present (the rows
+    // of that class, attributed with that class's output). Attribution methods treat rows independently, so attributing each
+    // class's rows with its own output is attributing every row towards its own label, at the cost of one pass over the rows.
+    private sealed record PreparedInput(AttributionInput? Whole, ImmutableArray<ClassPart> Parts, int Rows, int Columns);
+
+    private sealed record ClassPart(int Class, int[] Rows, AttributionInput Input);
+
+    private PreparedInput Input(IWatchedModel model, int epoch, List<AttributionProblem> problems)
+    {
+        if (!Target.IsPerRow)
+        {
+            var whole = WholeInput(model, Target, epoch, problems, null);
+            return new PreparedInput(whole, [], whole.Rows, whole.Columns);
+        }
+        var labels = Probe.Rows.Labels;
+        var kind = LabelKinds.Of(labels);
+        if (kind is not (LabelKind.Binary or LabelKind.Classes))
+            throw new DriftWatchException($"the true-class target needs class labels (0 … K−1, or binary) on every probe row; the probe's labels are {(kind == LabelKind.None ? "missing" : "continuous")}: pass labels or choose another target");
+        var classes = labels!.Select(LabelKinds.ClassOf).ToArray();
+        var parts = ImmutableArray.CreateBuilder<ClassPart>();
+        AttributionInput? any = null;
+        foreach (int k in classes.Distinct().Order())
+        {
+            int[] rows = [.. Enumerable.Range(0, classes.Length).Where(r => classes[r] == k)];
+            var part = WholeInput(model, AttributionTarget.Class(k), epoch, problems, rows);
+            any ??= part;
+            parts.Add(new ClassPart(k, rows, part));
+        }
+        return new PreparedInput(null, parts.ToImmutable(), classes.Length, any!.Columns);
+    }
+
+    // The probe rows (all, or only <paramref name="subset"/>) in feature space, the baseline, and the input for one output.
+    private AttributionInput WholeInput(IWatchedModel model, AttributionTarget target, int epoch, List<AttributionProblem> problems, int[]? subset)
     {
         var probe = Probe;
         Tensor features;
@@ -184,28 +215,94 @@ internal sealed class EpochAttribution
         if (features.dim() != 2 || features.shape[0] != probe.Count || features.shape[1] != Schema.ColumnCount)
             throw new DriftWatchException($"encode returned shape [{string.Join(", ", features.shape)}]; expected [{probe.Count}, {Schema.ColumnCount}] as the schema says");
         var baseline = Baseline.Resolve(features[TensorIndex.Slice(probe.HeldOutCount, probe.Count)], Schema.ColumnCount);
+        if (subset is not null)
+        {
+            var index = torch.tensor(subset.Select(r => (long)r).ToArray());
+            features = features.index_select(0, index);
+            if (baseline.dim() == 2)
+                baseline = baseline.index_select(0, index);
+            CheckOutputs(model, features, target.OutputIndex);
+        }
         try
         {
-            return AttributionInput.ForModel(model, Target, features, baseline, ChunkRows, Schema, memoryBudgetBytes: MemoryBudgetBytes);
+            return AttributionInput.ForModel(model, target, features, baseline, ChunkRows, Schema, memoryBudgetBytes: MemoryBudgetBytes);
         }
         catch (Exception e) when (!Strict)
         {
             // A declared entry layer that does not reproduce the score step, or a score step that fails on the rows it
             // was checked on: say so, and attribute the whole model (the methods report a failing score step too).
             problems.Add(new AttributionProblem(AttributionStep.EntryCheck, "the entry layer check", epoch, e));
-            return AttributionInput.ForModel(model, Target, features, baseline, ChunkRows, Schema, splitAtEntry: false, MemoryBudgetBytes);
+            return AttributionInput.ForModel(model, target, features, baseline, ChunkRows, Schema, splitAtEntry: false, MemoryBudgetBytes);
         }
     }
 
+    // The true-class target reads output column k for class k's rows: the model must score at least k + 1 outputs.
+    private static void CheckOutputs(IWatchedModel model, Tensor features, int outputClass)
+    {
+        using var noGrad = torch.no_grad();
+        using var output = model.Score(features[TensorIndex.Slice(0, 1)]);
+        long width = output.dim() == 2 ? output.shape[1] : 1;
+        if (output.dim() != 2 || outputClass >= width)
+            throw new DriftWatchException($"the true-class target needs one output per class: the probe's labels include class {outputClass} but the model scores {width} output(s) per row; give the model one output per class or choose another target");
+    }
+
+    // One method over a prepared input: the whole probe at once, or class by class with the rows put back in place.
+    private static ColumnAttribution Attribute(IAttributionMethod method, PreparedInput input)
+    {
+        if (input.Whole is { } whole)
+            return method.Attribute(whole);
+        var scores = new float[input.Rows * input.Columns];
+        float[]? gaps = null;
+        long evaluations = 0;
+        foreach (var part in input.Parts)
+        {
+            var columns = method.Attribute(part.Input);
+            evaluations += columns.Evaluations;
+            if (columns.OutputGaps is not null)
+                gaps ??= new float[input.Rows];
+            for (int i = 0; i < part.Rows.Length; i++)
+            {
+                Array.Copy(columns.Scores, i * input.Columns, scores, part.Rows[i] * input.Columns, input.Columns);
+                if (gaps is not null && columns.OutputGaps is not null)
+                    gaps[part.Rows[i]] = columns.OutputGaps[i];
+            }
+        }
+        return new ColumnAttribution(input.Rows, input.Columns, scores, gaps, evaluations);
+    }
+
+    // Quality figures of a prepared input: the whole probe's, or each class's rows measured with its own output and the
+    // figures averaged with the rows each measured as weights (evaluations and rows add up).
+    private QualityFigures MeasureQuality(IAttributionMethod method, PreparedInput input, ColumnAttribution columns)
+    {
+        if (input.Whole is { } whole)
+            return MapQuality.Measure(method, whole, columns, Quality!);
+        var figures = new List<QualityFigures>();
+        foreach (var part in input.Parts)
+        {
+            var scores = new float[part.Rows.Length * input.Columns];
+            float[]? gaps = columns.OutputGaps is null ? null : new float[part.Rows.Length];
+            for (int i = 0; i < part.Rows.Length; i++)
+            {
+                Array.Copy(columns.Scores, part.Rows[i] * input.Columns, scores, i * input.Columns, input.Columns);
+                if (gaps is not null)
+                    gaps[i] = columns.OutputGaps![part.Rows[i]];
+            }
+            figures.Add(MapQuality.Measure(method, part.Input, new ColumnAttribution(part.Rows.Length, input.Columns, scores, gaps, 0), Quality!));
+        }
+        int rows = figures.Sum(f => f.Rows);
+        double Mean(Func<QualityFigures, double> figure) => figures.Sum(f => figure(f) * f.Rows) / Math.Max(1, rows);
+        return new QualityFigures(Mean(f => f.Infidelity), Mean(f => f.RelativeInfidelity), Mean(f => f.MaxSensitivity), Mean(f => f.RelativeMaxSensitivity), rows, figures.Sum(f => f.Evaluations));
+    }
+
     // One method's map and its stored form under the method's name, then its quality figures when asked for.
-    private EpochMap? Map(IAttributionMethod method, AttributionInput input, int runId, int epoch, List<AttributionProblem> problems)
+    private EpochMap? Map(IAttributionMethod method, PreparedInput input, int runId, int epoch, List<AttributionProblem> problems)
     {
         EpochMap map;
         ColumnAttribution columns;
         try
         {
             var watch = Stopwatch.StartNew();
-            columns = method.Attribute(input);
+            columns = Attribute(method, input);
             var attributed = AttributionMap.FromColumns(columns, Schema);
             double seconds = watch.Elapsed.TotalSeconds;
             map = new EpochMap(Document(method, attributed, columns, runId, epoch, seconds), attributed, null);
@@ -219,7 +316,7 @@ internal sealed class EpochAttribution
             return map;
         try
         {
-            return map with { Figures = MapQuality.Measure(method, input, columns, Quality) };
+            return map with { Figures = MeasureQuality(method, input, columns) };
         }
         catch (Exception e) when (!Strict)
         {
@@ -230,7 +327,7 @@ internal sealed class EpochAttribution
 
     private MapDocument Document(IAttributionMethod method, AttributionMap map, ColumnAttribution columns, int runId, int epoch, double seconds)
     {
-        var (heldOut, training) = HalfImportance.ForHalves(map, Probe);
+        var (heldOut, training) = HalfImportance.ForHalves(map, Probe, Target);
         return new MapDocument
         {
             RunId = runId,
@@ -251,11 +348,13 @@ internal sealed class EpochAttribution
     }
 
     // Each watched layer with each layer method; the hooks these register are gone when each call returns.
-    private ImmutableArray<LayerMapDocument> AttributeLayers(IWatchedModel model, AttributionInput input, int runId, int epoch, List<AttributionProblem> problems)
+    private ImmutableArray<LayerMapDocument> AttributeLayers(IWatchedModel model, AttributionInput? input, int runId, int epoch, List<AttributionProblem> problems)
     {
         float[] outputs;
         try
         {
+            if (input is null)
+                throw new DriftWatchException("layer maps attribute one output for every row; the true-class target reads a different output per row: watch layers with target 'class N'");
             outputs = LayerMaps.Outputs(input);
         }
         catch (Exception e) when (!Strict)
@@ -271,7 +370,7 @@ internal sealed class EpochAttribution
                 try
                 {
                     var layer = WatchedLayer.Find(model.Module, path);
-                    layerMaps.Add(LayerMaps.Attribute(method, input with { Layer = layer }, outputs, runId, epoch, Target.Label));
+                    layerMaps.Add(LayerMaps.Attribute(method, input! with { Layer = layer }, outputs, runId, epoch, Target.Label));
                 }
                 catch (Exception e) when (!Strict)
                 {

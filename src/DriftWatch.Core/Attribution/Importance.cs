@@ -16,7 +16,7 @@ public sealed record HalfImportance
     /// <summary>Share of the half's total mean |score| per feature; sums to 1 unless every score is 0.</summary>
     public required ImmutableArray<double> Share { get; init; }
 
-    /// <summary>Label alignment per feature: mean(score × ±1 label) / mean |score|, in [−1, 1]; null without binary labels.</summary>
+    /// <summary>Label alignment per feature: mean(score × sign) / mean |score|, in [−1, 1], the sign read from the row's label and the target (<see cref="LabelKinds.AlignmentSigns(IReadOnlyList{float}?, Model.AttributionTarget?)"/>); null when no sign can be read.</summary>
     public ImmutableArray<double>? Alignment { get; init; }
 
     /// <summary>Aggregates the rows <paramref name="rows"/> of <paramref name="map"/>.</summary>
@@ -29,7 +29,7 @@ public sealed record HalfImportance
     /// <summary>Aggregates the rows <paramref name="rows"/> of <paramref name="map"/>, aligning each row's scores with its sign.</summary>
     /// <param name="map">The attribution map.</param>
     /// <param name="rows">The rows of the half.</param>
-    /// <param name="signs">The direction each probe row's label points a score (see <see cref="LabelKinds.AlignmentSigns"/>), or null for no alignment.</param>
+    /// <param name="signs">The direction each probe row's label points a score (see <see cref="LabelKinds.AlignmentSigns(IReadOnlyList{float}?, Model.AttributionTarget?)"/>), or null for no alignment.</param>
     public static HalfImportance WithSigns(AttributionMap map, IReadOnlyList<int> rows, IReadOnlyList<double>? signs)
     {
         ArgumentNullException.ThrowIfNull(map);
@@ -63,13 +63,14 @@ public sealed record HalfImportance
         return new HalfImportance { MeanAbsolute = [.. abs], MeanSigned = [.. signed], Share = [.. share], Alignment = alignment is null ? null : [.. alignment] };
     }
 
-    /// <summary>Aggregates both halves of a probe set.</summary>
-    public static (HalfImportance HeldOut, HalfImportance Training) ForHalves(AttributionMap map, ProbeSet probe)
+    /// <summary>Aggregates both halves of a probe set, aligning with the labels' direction for <paramref name="target"/> (null: the logit).</summary>
+    public static (HalfImportance HeldOut, HalfImportance Training) ForHalves(AttributionMap map, ProbeSet probe, Model.AttributionTarget? target = null)
     {
         ArgumentNullException.ThrowIfNull(map);
         ArgumentNullException.ThrowIfNull(probe);
         var heldOut = Enumerable.Range(0, probe.HeldOutCount).ToArray();
         var training = Enumerable.Range(probe.HeldOutCount, probe.TrainingCount).ToArray();
-        return (Compute(map, heldOut, probe.Rows.Labels), Compute(map, training, probe.Rows.Labels));
+        var signs = LabelKinds.AlignmentSigns(probe.Rows.Labels, target);
+        return (WithSigns(map, heldOut, signs), WithSigns(map, training, signs));
     }
 }

@@ -32,6 +32,8 @@ public sealed class DivergenceDetector
     private double[]? _bestShare;
     private ImmutableArray<double> _bestGap = [];
     private double _bestValidation = double.PositiveInfinity;
+    private bool _notCheckedSaid;
+    private int? _firstEpoch;
 
     /// <summary>Creates a detector for one run.</summary>
     public DivergenceDetector(RunContext context, GatePolicy policy)
@@ -54,16 +56,21 @@ public sealed class DivergenceDetector
     public Assessment Observe(EpochInput input)
     {
         ArgumentNullException.ThrowIfNull(input);
+        _firstEpoch ??= input.Epoch;
         var findings = new List<Finding>(input.Reported);
         var (gl, newBest) = GeneralisationLoss(input.Metrics);
         var view = new EpochView(_run, input.Epoch, input.Metrics, input.Map) { GeneralisationLoss = gl };
 
         Run(RuleStage.Health, view, findings);
+        bool attributed = false;
         if (view.Trusted)
         {
             view.Statistics = Measure(input.Epoch, view.Map!, gl);
-            if (input.Epoch >= _policy.WarmupEpochs)
+            if (!InWarmup(input.Epoch))
+            {
                 Run(RuleStage.Attribution, view, findings);
+                attributed = true;
+            }
             if (newBest || _bestShare is null)
             {
                 _bestShare = [.. view.Statistics.ShareHeldOut];
@@ -74,8 +81,19 @@ public sealed class DivergenceDetector
         Run(RuleStage.Loss, view, findings);
 
         var statistics = view.Trusted ? view.Statistics! : new EpochStatistics { Epoch = input.Epoch, Trusted = false, GeneralisationLoss = gl };
-        return new Assessment(statistics, Judge(input.Epoch, findings));
+        var verdict = Judge(input.Epoch, findings);
+        if (attributed && !_notCheckedSaid && _context.NotChecked is { } note)
+        {
+            // Said once, in the first verdict the attribution rules read, so a silent rule is never mistaken for a quiet one.
+            _notCheckedSaid = true;
+            verdict = verdict with { Reasons = verdict.Reasons.Add(note) };
+        }
+        return new Assessment(statistics, verdict);
     }
+
+    // Whether the epoch is one of the run's first WarmupEpochs epochs, counted from the first epoch this detector read, as
+    // users number them: with epochs 1, 2, 3 … a warm-up of 1 ignores epoch 1, a warm-up of 0 none.
+    private bool InWarmup(int epoch) => epoch - _firstEpoch!.Value < _policy.WarmupEpochs;
 
     private void Run(RuleStage stage, EpochView view, List<Finding> findings)
     {

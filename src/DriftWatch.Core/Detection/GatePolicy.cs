@@ -19,7 +19,7 @@ public sealed record GatePolicy
     public static ImmutableArray<PolicySetting> Settings { get; } =
     [
         PolicySetting.Integer(nameof(WarmupEpochs), "warmupEpochs", IntegerRange.AtLeast(0), p => p.WarmupEpochs, (p, v) => p with { WarmupEpochs = v },
-            "Epochs at the start whose attribution findings are ignored."),
+            "Epochs at the start whose attribution findings are ignored, counted from the run's first epoch (1 ignores epoch 1 of a run numbered from 1)."),
         PolicySetting.Integer(nameof(Patience), "patience", IntegerRange.AtLeast(1), p => p.Patience, (p, v) => p with { Patience = v },
             "Consecutive flagged epochs before an attribution rule becomes a finding."),
         PolicySetting.Number(nameof(GeneralisationLossThreshold), "generalisationLossThreshold", NumberRange.Above(0) with { Text = "number > 0 (percent)" },

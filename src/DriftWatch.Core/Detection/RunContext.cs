@@ -17,6 +17,7 @@ public sealed class RunContext
     /// <param name="categorical">Row-major categorical ids of every probe row.</param>
     /// <param name="trainingValueCounts">Per categorical feature name, training rows per value.</param>
     /// <param name="splitCheck">The split-consistency check of the rows the probe was selected from, or null when there is none.</param>
+    /// <param name="target">The attributed output (null: the logit); label alignment reads its direction from it and the labels (<see cref="LabelKinds.AlignmentSigns(IReadOnlyList{float}?, AttributionTarget?)"/>).</param>
     public RunContext(
         FeatureSchema schema,
         int heldOutCount,
@@ -24,7 +25,8 @@ public sealed class RunContext
         float[]? labels,
         long[] categorical,
         IReadOnlyDictionary<string, IReadOnlyDictionary<long, int>> trainingValueCounts,
-        SplitCheckResult? splitCheck = null)
+        SplitCheckResult? splitCheck = null,
+        AttributionTarget? target = null)
     {
         ArgumentNullException.ThrowIfNull(schema);
         ArgumentNullException.ThrowIfNull(categorical);
@@ -34,8 +36,11 @@ public sealed class RunContext
         TrainingCount = trainingCount;
         Labels = labels;
         LabelKind = LabelKinds.Of(labels);
-        var signs = LabelKinds.AlignmentSigns(labels);
+        Target = target ?? AttributionTarget.Logit;
+        var signs = LabelKinds.AlignmentSigns(labels, Target);
         AlignmentSigns = signs is null ? null : [.. signs];
+        string? why = LabelKinds.WhyNoAlignment(labels, Target);
+        NotChecked = why is null ? null : "not checked: the label rules (leak by alignment, memorised identifier, probable leak) — label alignment needs " + why;
         Categorical = [.. categorical];
         TrainingValueCounts = trainingValueCounts;
         int index = 0;
@@ -86,6 +91,16 @@ public sealed class RunContext
     /// <summary>Per probe row, the direction its label points a score for label alignment; null when alignment cannot be computed for these labels.</summary>
     public ImmutableArray<double>? AlignmentSigns { get; }
 
+    /// <summary>The attributed output.</summary>
+    public AttributionTarget Target { get; }
+
+    /// <summary>
+    /// The one line saying which rules cannot run for this run's labels and target and why (<c>not checked: …</c>), or null when
+    /// they all can. The detector puts it in the reasons of the first verdict its attribution rules read; <c>show</c>,
+    /// <c>check</c> and the report print it once.
+    /// </summary>
+    public string? NotChecked { get; }
+
     /// <summary>Whether the labels are binary (0/1 or ±1).</summary>
     public bool HasBinaryLabels => LabelKind == LabelKind.Binary;
 
@@ -122,6 +137,7 @@ public sealed class RunContext
             run.ProbeLabels is null ? null : FloatBytes.ToFloats(run.ProbeLabels),
             FloatBytes.ToLongs(run.ProbeCategorical),
             counts,
-            SplitCheckDocuments.ToResult(run.SplitCheck));
+            SplitCheckDocuments.ToResult(run.SplitCheck),
+            string.IsNullOrEmpty(run.Target) ? null : AttributionTarget.Parse(run.Target));
     }
 }

@@ -16,6 +16,13 @@ public enum TargetKind
 
     /// <summary>A regression output.</summary>
     Regression,
+
+    /// <summary>
+    /// Each row's score for its own true class, read from the probe's labels (class indices 0 … K−1, or a binary label as
+    /// class 0 or 1), of a model with one output per class. Rows are attributed class by class, each with that class's
+    /// output; the map is the same as attributing every row towards its own label.
+    /// </summary>
+    TrueClass,
 }
 
 /// <summary>Which scalar per row of the model's output is attributed.</summary>
@@ -32,6 +39,12 @@ public sealed record AttributionTarget(TargetKind Kind, int OutputIndex)
     /// <summary>A regression output, column 0.</summary>
     public static AttributionTarget Regression { get; } = new(TargetKind.Regression, 0);
 
+    /// <summary>Each row's own true class of a multi-class output (see <see cref="TargetKind.TrueClass"/>).</summary>
+    public static AttributionTarget TrueClass { get; } = new(TargetKind.TrueClass, 0);
+
+    /// <summary>Whether the attributed output differs between rows (the row's own class), so it is chosen per row from the labels.</summary>
+    public bool IsPerRow => Kind == TargetKind.TrueClass;
+
     /// <summary>One class of a multi-class output.</summary>
     public static AttributionTarget Class(int index)
     {
@@ -45,15 +58,32 @@ public sealed record AttributionTarget(TargetKind Kind, int OutputIndex)
         TargetKind.Logit => "logit",
         TargetKind.Probability => "probability",
         TargetKind.Regression => "regression",
+        TargetKind.TrueClass => "true class",
         _ => $"class {OutputIndex}",
     };
 
     /// <summary>Picks the attributed scalar per row out of a model output.</summary>
+    /// <exception cref="DriftWatchException">The target is <see cref="TrueClass"/>, whose column differs per row (see <see cref="SelectOwn"/>).</exception>
     public Tensor Select(Tensor output)
     {
         ArgumentNullException.ThrowIfNull(output);
+        if (IsPerRow)
+            throw new DriftWatchException("the true-class target picks each row's own class; attribute it through the monitor or EpochAttribution, which split the rows by class");
         Tensor column = output.dim() == 1 ? output : output.select(1, OutputIndex);
         return Kind == TargetKind.Probability ? column.sigmoid() : column;
+    }
+
+    /// <summary>Each row's score for its own class: <c>output[r, classes[r]]</c>, for a <c>[rows, K]</c> output and <c>[rows]</c> class indices.</summary>
+    /// <exception cref="DriftWatchException">The output has fewer columns than a class index needs.</exception>
+    public static Tensor SelectOwn(Tensor output, Tensor classes)
+    {
+        ArgumentNullException.ThrowIfNull(output);
+        ArgumentNullException.ThrowIfNull(classes);
+        long width = output.dim() == 1 ? 1 : output.shape[1];
+        long top = classes.numel() == 0 ? 0 : classes.max().item<long>();
+        if (output.dim() != 2 || top >= width)
+            throw new DriftWatchException($"the true-class target needs one output per class: the labels run to class {top} but the model scores {width} output(s); give the model K outputs or choose another target");
+        return output.gather(1, classes.to(ScalarType.Int64).unsqueeze(1)).squeeze(1);
     }
 
     /// <summary>Parses <see cref="Label"/> back.</summary>
@@ -65,9 +95,10 @@ public sealed record AttributionTarget(TargetKind Kind, int OutputIndex)
             "logit" => Logit,
             "probability" => Probability,
             "regression" => Regression,
+            "true class" => TrueClass,
             _ when label.StartsWith("class ", StringComparison.Ordinal)
                 && int.TryParse(label.AsSpan(6), System.Globalization.NumberStyles.Integer, System.Globalization.CultureInfo.InvariantCulture, out int k) && k >= 0 => Class(k),
-            _ => throw new DriftWatchException($"target must be logit, probability, regression or 'class N'; got '{label}'"),
+            _ => throw new DriftWatchException($"target must be logit, probability, regression, 'true class' or 'class N'; got '{label}'"),
         };
     }
 }

@@ -54,10 +54,73 @@ public static class LabelKinds
     /// <summary>Whether a binary label marks the positive class (1 in 0/1, +1 in ±1).</summary>
     public static bool IsPositive(float label) => label > 0;
 
+    /// <summary>The class a label names: a binary label's class is 1 for the positive label (1 or +1) and 0 otherwise; a class label is its index.</summary>
+    public static int ClassOf(float label) => label > 0 && label < 1.5f ? 1 : label >= 1.5f ? (int)label : 0;
+
     /// <summary>
-    /// The direction each row's label points a score, for label alignment (mean of score × sign over mean |score|): +1 for a
-    /// binary row's positive class, −1 for its negative class; null when the labels are not binary.
+    /// The direction each row's label points a score, for label alignment (mean of score × sign over mean |score|), when
+    /// the attributed output is the binary logit or probability (see <see cref="AlignmentSigns(IReadOnlyList{float}?, Model.AttributionTarget?)"/>).
     /// </summary>
-    public static double[]? AlignmentSigns(IReadOnlyList<float>? labels) =>
-        Of(labels) == LabelKind.Binary ? [.. labels!.Select(l => IsPositive(l) ? 1.0 : -1.0)] : null;
+    public static double[]? AlignmentSigns(IReadOnlyList<float>? labels) => AlignmentSigns(labels, null);
+
+    /// <summary>
+    /// The direction each row's label points a score of <paramref name="target"/> (null: the logit), for label alignment
+    /// (mean of score × sign over mean |score|, in [−1, 1]); null when no direction can be read, see <see cref="WhyNoAlignment"/>.
+    /// </summary>
+    /// <remarks>
+    /// <list type="bullet">
+    /// <item>The row's true class (<see cref="Model.TargetKind.TrueClass"/>), binary or class labels: +1 on every row — the
+    /// score is already towards the row's own class, so alignment is mean(score) / mean |score|.</item>
+    /// <item>One class's output (<see cref="Model.TargetKind.ClassIndex"/> k), binary or class labels: one-vs-rest, +1 where
+    /// the row's class is k, −1 elsewhere.</item>
+    /// <item>Binary labels, any other target: +1 for the positive class, −1 for the negative class.</item>
+    /// <item>A continuous target (regression): the sign of the label minus the median label of all probe rows (both halves,
+    /// so both share one centre); a row at the median gets 0 and counts in the denominator only. The median, not the mean,
+    /// so a few extreme targets do not move the centre.</item>
+    /// </list>
+    /// K-class labels with a logit, probability or regression target have no direction (the output is not about a class).
+    /// </remarks>
+    public static double[]? AlignmentSigns(IReadOnlyList<float>? labels, Model.AttributionTarget? target)
+    {
+        if (WhyNoAlignment(labels, target) is not null)
+            return null;
+        var kind = Of(labels);
+        var targetKind = target?.Kind ?? Model.TargetKind.Logit;
+        if (kind == LabelKind.Continuous)
+        {
+            double median = Median(labels!);
+            return [.. labels!.Select(l => (double)Math.Sign(l - median))];
+        }
+        return targetKind switch
+        {
+            Model.TargetKind.TrueClass => [.. labels!.Select(_ => 1.0)],
+            Model.TargetKind.ClassIndex => [.. labels!.Select(l => ClassOf(l) == target!.OutputIndex ? 1.0 : -1.0)],
+            _ => [.. labels!.Select(l => IsPositive(l) ? 1.0 : -1.0)],
+        };
+    }
+
+    /// <summary>
+    /// Why label alignment cannot be read for these labels and this target (null: it can), as the end of a sentence starting
+    /// "label alignment needs …".
+    /// </summary>
+    public static string? WhyNoAlignment(IReadOnlyList<float>? labels, Model.AttributionTarget? target)
+    {
+        var kind = Of(labels);
+        var targetKind = target?.Kind ?? Model.TargetKind.Logit;
+        return kind switch
+        {
+            LabelKind.None => "probe labels, and the probe set has none (pass labels in ProbeRows)",
+            LabelKind.Classes when targetKind is not (Model.TargetKind.TrueClass or Model.TargetKind.ClassIndex) =>
+                $"the row's true class (target 'true class') or one class's output (target 'class N') for {labels!.Select(ClassOf).Distinct().Count()}-class labels; the run attributes the {target?.Label ?? "logit"}",
+            LabelKind.Continuous when labels!.Any(l => !float.IsFinite(l)) => "finite labels, and some probe labels are NaN or infinite",
+            _ => null,
+        };
+    }
+
+    private static double Median(IReadOnlyList<float> labels)
+    {
+        var sorted = labels.Select(l => (double)l).Order().ToArray();
+        int n = sorted.Length;
+        return n % 2 == 1 ? sorted[n / 2] : (sorted[n / 2 - 1] + sorted[n / 2]) / 2;
+    }
 }

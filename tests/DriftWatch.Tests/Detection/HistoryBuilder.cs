@@ -12,6 +12,29 @@ namespace DriftWatch.Tests.Detection;
 /// </summary>
 internal sealed class HistoryBuilder
 {
+    /// <summary>How the probe rows are labelled and which output is attributed.</summary>
+    public enum LabelMode
+    {
+        /// <summary>0/1 labels, the logit attributed.</summary>
+        ZeroOne,
+
+        /// <summary>−1/+1 labels, the logit attributed.</summary>
+        PlusMinus,
+
+        /// <summary>Classes 0, 1, 2 (row r has class r mod 3), each row attributed towards its own true class.</summary>
+        ThreeClasses,
+
+        /// <summary>Classes 0, 1, 2, class 1's output attributed (one-vs-rest).</summary>
+        ClassOne,
+
+        /// <summary>Classes 0, 1, 2 with the logit attributed: the label rules cannot run and say so.</summary>
+        ClassesWithLogit,
+
+        /// <summary>A continuous target, above the median on odd rows and below it on even rows, a regression output attributed.</summary>
+        Regression,
+    }
+
+    private LabelMode _labels = LabelMode.ZeroOne;
     public const int Crate = 2;
     public const int Tray = 3;
     private int _perHalf = 128;
@@ -42,6 +65,12 @@ internal sealed class HistoryBuilder
     public HistoryBuilder WithValueCounts(IReadOnlyDictionary<string, IReadOnlyDictionary<long, int>> counts)
     {
         _counts = counts;
+        return this;
+    }
+
+    public HistoryBuilder WithLabels(LabelMode labels)
+    {
+        _labels = labels;
         return this;
     }
 
@@ -103,31 +132,57 @@ internal sealed class HistoryBuilder
     public FeatureSchema Schema { get; } = FeatureSchema.CreateBuilder()
         .AddDense("air temperature").AddDense("humidity").AddCategorical("crate id", 4).AddCategorical("tray", 4).AddDense("light hours").Build();
 
-    public float[] Labels => Enumerable.Range(0, Rows).Select(r => (float)(r % 2)).ToArray();
+    public float[] Labels => Enumerable.Range(0, Rows).Select(r => _labels switch
+    {
+        LabelMode.PlusMinus => r % 2 == 0 ? -1f : 1f,
+        LabelMode.ThreeClasses or LabelMode.ClassOne or LabelMode.ClassesWithLogit => r % 3,
+        LabelMode.Regression => (r % 2 == 0 ? -1f : 1f) * (0.5f + (r * 37 % 100) / 100f),
+        _ => r % 2,
+    }).ToArray();
+
+    public AttributionTarget Target => _labels switch
+    {
+        LabelMode.ThreeClasses => AttributionTarget.TrueClass,
+        LabelMode.ClassOne => AttributionTarget.Class(1),
+        LabelMode.Regression => AttributionTarget.Regression,
+        _ => AttributionTarget.Logit,
+    };
+
+    // The direction a score that points at row r's label has: the label's sign for binary labels, +1 for the row's own
+    // class, one-vs-rest for class 1's output, the side of the median for the continuous target.
+    private double Direction(int r) => _labels switch
+    {
+        LabelMode.ThreeClasses or LabelMode.ClassesWithLogit => 1,
+        LabelMode.ClassOne => r % 3 == 1 ? 1 : -1,
+        LabelMode.Regression or LabelMode.PlusMinus => r % 2 == 0 ? -1 : 1,
+        _ => 2 * (r % 2) - 1,
+    };
 
     // Ids: crate ids unique per row; trays cycle through 4 values.
     public long[] Categorical => Enumerable.Range(0, Rows).SelectMany(r => new long[] { CrateOf(r), r % 4 }).ToArray();
 
-    private long CrateOf(int row) => _sharedCrates && row < _perHalf - 1 ? _perHalf + row + 1 : row;
+    // Shared crates sit on the training row whose label differs: the next one for two labels, the one after for three classes.
+    private int ShareOffset => _labels is LabelMode.ThreeClasses or LabelMode.ClassOne or LabelMode.ClassesWithLogit ? 2 : 1;
+
+    private long CrateOf(int row) => _sharedCrates && row < _perHalf - ShareOffset ? _perHalf + row + ShareOffset : row;
 
     public RunContext Context()
     {
         var crates = Enumerable.Range(0, 700).ToDictionary(v => (long)v, _ => 1);
         var trays = Enumerable.Range(0, 4).ToDictionary(v => (long)v, _ => 200);
         var counts = _counts ?? new Dictionary<string, IReadOnlyDictionary<long, int>> { ["crate id"] = crates, ["tray"] = trays };
-        return new RunContext(Schema, _perHalf, _perHalf, Labels, Categorical, counts, _splitCheck);
+        return new RunContext(Schema, _perHalf, _perHalf, Labels, Categorical, counts, _splitCheck, Target);
     }
 
     public EpochInput Epoch(int epoch, double validationLoss = 0.5)
     {
         var random = new Random(_seed * 7919 + epoch);
-        var labels = Labels;
         int features = Schema.Count;
         var scores = new float[Rows * features];
         for (int r = 0; r < Rows; r++)
         {
             bool training = r >= _perHalf;
-            double label = 2 * labels[r] - 1;
+            double label = Direction(r);
             for (int f = 0; f < features; f++)
             {
                 double size = Math.Abs(1 + 0.3 * Gaussian(random));
@@ -155,10 +210,10 @@ internal sealed class HistoryBuilder
         return new EpochInput(epoch, metrics, map, ImmutableArray<Finding>.Empty);
     }
 
-    public List<Assessment> Run(int epochs, GatePolicy? policy = null, Func<int, double>? validation = null)
+    public List<Assessment> Run(int epochs, GatePolicy? policy = null, Func<int, double>? validation = null, int firstEpoch = 0)
     {
         var detector = new DivergenceDetector(Context(), policy ?? GatePolicy.Default);
-        return Enumerable.Range(0, epochs).Select(e => detector.Observe(Epoch(e, validation?.Invoke(e) ?? 0.5))).ToList();
+        return Enumerable.Range(firstEpoch, epochs).Select(e => detector.Observe(Epoch(e, validation?.Invoke(e) ?? 0.5))).ToList();
     }
 
     private static double Gaussian(Random random) =>

@@ -13,12 +13,15 @@ using static TorchSharp.torch;
 
 namespace DriftWatch.Tests.Detection;
 
-// Real data: Fisher's Iris (Fisher 1936; CSV copy with provenance in Data/iris.PROVENANCE.md), as "virginica or not".
+// Real data: Fisher's Iris (Fisher 1936; CSV copy with provenance in Data/iris.PROVENANCE.md), as "virginica or not"
+// and as its three species.
 public sealed class IrisTests
 {
     private static readonly string[] Measurements = ["sepal length", "sepal width", "petal length", "petal width"];
 
-    private sealed record Iris(float[] Values, bool Virginica);
+    private sealed record Iris(float[] Values, bool Virginica, int Species);
+
+    private static readonly string[] SpeciesNames = ["setosa", "versicolor", "virginica"];
 
     private static List<Iris> Load()
     {
@@ -26,7 +29,7 @@ public sealed class IrisTests
         return File.ReadAllLines(path).Skip(1).Where(l => l.Length > 0).Select(line =>
         {
             var cells = line.Split(',');
-            return new Iris(cells.Take(4).Select(c => float.Parse(c, CultureInfo.InvariantCulture)).ToArray(), cells[4] == "virginica");
+            return new Iris(cells.Take(4).Select(c => float.Parse(c, CultureInfo.InvariantCulture)).ToArray(), cells[4] == "virginica", Array.IndexOf(SpeciesNames, cells[4]));
         }).ToList();
     }
 
@@ -35,7 +38,7 @@ public sealed class IrisTests
         private readonly nn.Module<Tensor, Tensor>? _tag;
         private readonly nn.Module<Tensor, Tensor> _body;
 
-        public IrisNet(bool withTag)
+        public IrisNet(bool withTag, int outputs = 1)
             : base("iris-net")
         {
             torch.manual_seed(3);
@@ -48,7 +51,7 @@ public sealed class IrisTests
                 schema.AddCategorical("sorting tag", 4);
             }
             Schema = schema.Build();
-            _body = nn.Sequential(nn.Linear(Schema.ColumnCount, 32), nn.ReLU(), nn.Linear(32, 32), nn.ReLU(), nn.Linear(32, 1));
+            _body = nn.Sequential(nn.Linear(Schema.ColumnCount, 32), nn.ReLU(), nn.Linear(32, 32), nn.ReLU(), nn.Linear(32, outputs));
             RegisterComponents();
         }
 
@@ -65,8 +68,9 @@ public sealed class IrisTests
     }
 
     // Seeded split: 100 training and 50 held-out flowers, species kept in proportion. The optional 'sorting tag' is a
-    // 10-level id whose value gives the label away in 90% of training rows and is random in held-out rows.
-    private static (ProbeRows Training, ProbeRows HeldOut) Split(bool withTag)
+    // 10-level id whose value gives the label away in 90% of training rows and is random in held-out rows (for the three
+    // species: tags 0–2, 3–5 and 6–8 per species; 9 never leaks).
+    private static (ProbeRows Training, ProbeRows HeldOut) Split(bool withTag, bool species = false)
     {
         var data = Load();
         var random = new Random(5);
@@ -78,11 +82,13 @@ public sealed class IrisTests
         {
             var list = indices.ToList();
             var dense = list.SelectMany(i => data[i].Values.Select((v, c) => (float)((v - means[c]) / sds[c]))).ToArray();
-            var labels = list.Select(i => data[i].Virginica ? 1f : 0f).ToArray();
+            var labels = list.Select(i => species ? data[i].Species : data[i].Virginica ? 1f : 0f).ToArray();
             var tags = list.Select((i, k) =>
             {
                 bool leaks = training && random.NextDouble() < 0.9;
-                return leaks ? (long)(labels[k] > 0 ? random.Next(5) : 5 + random.Next(5)) : random.Next(10);
+                return !leaks ? random.Next(10)
+                    : species ? (long)(3 * labels[k] + random.Next(3))
+                    : (long)(labels[k] > 0 ? random.Next(5) : 5 + random.Next(5));
             }).ToArray();
             return new ProbeRows(dense, 4, withTag ? tags : [], withTag ? 1 : 0, labels);
         }
@@ -90,16 +96,16 @@ public sealed class IrisTests
         return (Rows(trainingRows, training: true), Rows(held.Order(), training: false));
     }
 
-    private static List<Verdict> Train(bool withTag, string store, out MonitoredRun run)
+    private static List<Verdict> Train(bool withTag, string store, out MonitoredRun run, bool species = false)
     {
-        var (training, heldOut) = Split(withTag);
-        using var model = new IrisNet(withTag);
+        var (training, heldOut) = Split(withTag, species);
+        using var model = new IrisNet(withTag, species ? 3 : 1);
         var optimizer = new DriftWatch.Hooks.Optimizers.Adam(model.parameters(), 0.01); // TorchSharp's Adam, its scalars held (DriftWatch.Hooks)
         var verdicts = new List<Verdict>();
         using var monitor = new TrainingMonitor(new MonitorOptions
         {
             StorePath = store,
-            RunName = withTag ? "iris-tagged" : "iris",
+            RunName = (withTag ? "iris-tagged" : "iris") + (species ? "-species" : ""),
             Schema = model.Schema,
             Probe = new ProbeSet(heldOut, training),
             Methods = [new IntegratedGradients(32)],
@@ -113,6 +119,9 @@ public sealed class IrisTests
         });
         Tensor Dense(ProbeRows rows) => torch.tensor(rows.Dense, [rows.Count, 4]);
         Tensor Cats(ProbeRows rows) => torch.tensor(rows.Categorical, [rows.Count, rows.CategoricalCount]);
+        Tensor Loss(ProbeRows rows) => species
+            ? nn.functional.cross_entropy(model.call(Dense(rows), Cats(rows)), torch.tensor(rows.Labels!.Select(l => (long)l).ToArray()))
+            : nn.functional.binary_cross_entropy_with_logits(model.call(Dense(rows), Cats(rows)).squeeze(1), torch.tensor(rows.Labels!));
         for (int epoch = 1; epoch <= 40; epoch++)
         {
             double trainLoss, validationLoss;
@@ -122,14 +131,14 @@ public sealed class IrisTests
                 for (int step = 0; step < 5; step++)
                 {
                     optimizer.zero_grad();
-                    var loss = nn.functional.binary_cross_entropy_with_logits(model.call(Dense(training), Cats(training)).squeeze(1), torch.tensor(training.Labels!));
+                    var loss = Loss(training);
                     loss.backward();
                     optimizer.step();
                 }
                 model.eval();
                 using var noGrad = torch.no_grad();
-                trainLoss = nn.functional.binary_cross_entropy_with_logits(model.call(Dense(training), Cats(training)).squeeze(1), torch.tensor(training.Labels!)).item<float>();
-                validationLoss = nn.functional.binary_cross_entropy_with_logits(model.call(Dense(heldOut), Cats(heldOut)).squeeze(1), torch.tensor(heldOut.Labels!)).item<float>();
+                trainLoss = Loss(training).item<float>();
+                validationLoss = Loss(heldOut).item<float>();
             }
             verdicts.Add(monitor.EndEpoch(model, epoch, new EpochMetrics(trainLoss, validationLoss)));
         }
@@ -166,6 +175,23 @@ public sealed class IrisTests
         using var temp = new TempFolder();
         var verdicts = Train(withTag: true, temp.File("iris.litedb"), out _);
 
+        var flagged = verdicts.SelectMany(v => v.Findings).Where(f => f.Feature.Length > 0).ToList();
+        Assert.Contains(flagged, f => f.Feature == "sorting tag" && (f.Kind == FindingKind.Leak || f.Kind == FindingKind.MemorisedIdentifier));
+        Assert.All(flagged, f => Assert.Equal("sorting tag", f.Feature));
+        Assert.Contains(verdicts, v => v.Kind == VerdictKind.Halt);
+    }
+
+    [Fact]
+    public void ATagThatLeaksTheSpeciesInTrainingRowsIsNamedWithEachRowAttributedTowardsItsOwnSpecies()
+    {
+        // Three classes (setosa, versicolor, virginica), one output per species; the monitor's default target for class
+        // labels attributes each flower towards its own species, so the label rules read the tag's alignment.
+        using var temp = new TempFolder();
+        var verdicts = Train(withTag: true, temp.File("iris.litedb"), out var run, species: true);
+
+        using (var store = RunStore.OpenForReading(temp.File("iris.litedb")))
+            Assert.Equal("true class", store.GetRun(run.Name).Target);
+        Assert.DoesNotContain(verdicts.SelectMany(v => v.Reasons), r => r.StartsWith("not checked:", StringComparison.Ordinal));
         var flagged = verdicts.SelectMany(v => v.Findings).Where(f => f.Feature.Length > 0).ToList();
         Assert.Contains(flagged, f => f.Feature == "sorting tag" && (f.Kind == FindingKind.Leak || f.Kind == FindingKind.MemorisedIdentifier));
         Assert.All(flagged, f => Assert.Equal("sorting tag", f.Feature));

@@ -23,6 +23,8 @@ internal sealed class StoreBuilder
     private double[]? _losses;
     private double[]? _validationLosses;
     private bool _lastUncommitted;
+    private int _classes = 2;
+    private (int From, int To)[] _stories = [];
 
     public StoreBuilder WithRun(string name)
     {
@@ -62,6 +64,17 @@ internal sealed class StoreBuilder
         return this;
     }
 
+    /// <summary>
+    /// Feature <paramref name="feature"/> gets a Leak finding (a Halt) at every epoch of each story, each finding covering
+    /// from its story's first epoch to its own and saying "since epoch" that first epoch.
+    /// </summary>
+    public StoreBuilder WithLeakStories(int feature, params (int From, int To)[] stories)
+    {
+        _flagged = feature;
+        _stories = stories;
+        return this;
+    }
+
     /// <summary>The run's epochs carry these numbers, in this order, instead of 1 to the epoch count.</summary>
     public StoreBuilder WithEpochNumbers(params int[] epochs)
     {
@@ -90,6 +103,13 @@ internal sealed class StoreBuilder
         return this;
     }
 
+    /// <summary>The probe rows carry class labels 0 … <paramref name="classes"/> − 1 (row r has class r mod K) instead of 0/1.</summary>
+    public StoreBuilder WithClassLabels(int classes)
+    {
+        _classes = classes;
+        return this;
+    }
+
     public StoreBuilder WithoutStatistics()
     {
         _statistics = false;
@@ -105,7 +125,7 @@ internal sealed class StoreBuilder
         var random = new Random(_seed);
         var labels = new float[rows];
         for (int r = 0; r < rows; r++)
-            labels[r] = r % 2;
+            labels[r] = r % _classes;
         var run = store.AddRun(new RunDocument
         {
             Name = _run,
@@ -180,7 +200,10 @@ internal sealed class StoreBuilder
                     },
                 });
             }
-            bool halt = _flagged >= 0 && epoch >= _haltFrom;
+            var story = _stories.FirstOrDefault(t => epoch >= t.From && epoch <= t.To);
+            bool inStory = story != default;
+            bool halt = _flagged >= 0 && (epoch >= _haltFrom || inStory);
+            int from = inStory ? story.From : _haltFrom;
             var findings = halt
                 ? new List<FindingDocument>
                 {
@@ -191,8 +214,8 @@ internal sealed class StoreBuilder
                         Severity = nameof(VerdictKind.Halt),
                         Size = 0.2,
                         NoiseFloor = 0.05,
-                        Epochs = [_haltFrom, epoch],
-                        Evidence = $"'{_features[_flagged]}' takes more attribution on training rows than held-out rows",
+                        Epochs = [from, epoch],
+                        Evidence = $"'{_features[_flagged]}' takes more attribution on training rows than held-out rows" + (inStory ? $" since epoch {from} (at epoch {epoch})" : ""),
                     },
                 }
                 : [];

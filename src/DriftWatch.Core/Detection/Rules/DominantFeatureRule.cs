@@ -34,7 +34,10 @@ public sealed class DominantFeatureRule(DominantFeatureSettings settings, int pa
         "dominance",
         SeverityRule.AlwaysCaution,
         EvaluationRole.Advisory,
-        a => $"{a.Features} decides on both halves; that may be genuine, but check how it is produced before trusting it.");
+        a => $"{a.Features} decides on both halves; that may be genuine, but check how it is produced before trusting it.")
+    {
+        Measure = new FindingMeasure("lead in held-out share over the runner-up", "noise floor", ""),
+    };
 
     private static string Sentence(string name, double share, double next, int since) =>
         Format($"'{name}' decides on both halves: {share:P1} of held-out attribution against {next:P1} for the next feature, since epoch {since}; ")

@@ -91,6 +91,17 @@ public sealed record FindingKindInfo(
     /// <summary>Whether this version has a rule for the kind (false for a kind read from a newer store).</summary>
     public bool IsKnown { get; init; } = true;
 
+    /// <summary>
+    /// What a finding's <see cref="Finding.Size"/> and <see cref="Finding.NoiseFloor"/> are, and in which unit, so a table
+    /// never shows a percentage threshold as if it were an attribution noise floor. Default: for the <c>gap</c> family, a
+    /// training-minus-held-out gap of share or alignment against its noise floor; otherwise a statistic against its noise floor.
+    /// </summary>
+    public FindingMeasure Measure
+    {
+        get => field ?? (Family == "gap" ? FindingMeasure.Gap : FindingMeasure.Statistic);
+        init;
+    }
+
     /// <summary>The severity a finding of this kind asks for under <paramref name="policy"/>.</summary>
     public VerdictKind SeverityUnder(GatePolicy policy)
     {
@@ -110,6 +121,28 @@ public sealed record FindingKindInfo(
     {
         IsKnown = false,
     };
+}
+
+/// <summary>What a finding kind's size and the value it is judged against measure.</summary>
+/// <param name="Size">What the size is, e.g. <c>share or alignment gap</c> or <c>generalisation loss</c>.</param>
+/// <param name="Against">What it is judged against, e.g. <c>noise floor</c> or <c>threshold</c>.</param>
+/// <param name="Unit">The unit both are written in, e.g. <c>%</c>; empty for a plain fraction.</param>
+public sealed record FindingMeasure(string Size, string Against, string Unit)
+{
+    /// <summary>A training-minus-held-out gap of share or alignment (a fraction) against its row-bootstrap noise floor.</summary>
+    public static FindingMeasure Gap { get; } = new("share or alignment gap", "noise floor", "");
+
+    /// <summary>No size: the finding is an event (a failed step), not a measurement.</summary>
+    public static FindingMeasure None { get; } = new("", "", "");
+
+    /// <summary>A statistic against its noise floor, both plain numbers.</summary>
+    public static FindingMeasure Statistic { get; } = new("statistic", "noise floor", "");
+
+    /// <summary>A value with its unit, e.g. <c>5.2 %</c> or <c>0.120</c>; <c>-</c> when not finite.</summary>
+    public string Write(double value) =>
+        !double.IsFinite(value) || Size.Length == 0 ? "-"
+        : Unit.Length == 0 ? value.ToString("0.000", System.Globalization.CultureInfo.InvariantCulture)
+        : value.ToString("0.0", System.Globalization.CultureInfo.InvariantCulture) + " " + Unit;
 }
 
 /// <summary>What every rule reads of one epoch: the run, the policy, the epoch's statistics and what came before.</summary>

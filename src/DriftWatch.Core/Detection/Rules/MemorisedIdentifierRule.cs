@@ -36,7 +36,10 @@ public sealed class MemorisedIdentifierRule(MemorisedIdentifierSettings settings
         "gap",
         SeverityRule.PolicyDecides,
         EvaluationRole.NamesFault,
-        a => $"{a.Features} behaves like an identifier the model memorised: consider dropping it or grouping its rare values. The feature chart shows the rows it separates.");
+        a => $"{a.Features} behaves like an identifier the model memorised: consider dropping it or grouping its rare values. The feature chart shows the rows it separates.")
+    {
+        Measure = new FindingMeasure("alignment gap", "noise floor", ""),
+    };
 
     private static string Sentence(string name, EpochStatistics s, int f, string how) =>
         Format($"identifier-like '{name}' agrees with the label on training rows (alignment {s.AlignmentTraining[f]:+0.00;-0.00}) ")
@@ -90,29 +93,52 @@ public sealed class MemorisedIdentifierRule(MemorisedIdentifierSettings settings
     // Supporting evidence, never a rule on its own: a held-out row whose identifier value also sits on a training probe
     // row "echoes" that row when the feature's attribution points at the training row's label (the majority label when
     // several rows share the value) rather than at its own. Only values shared within the probe set can be checked, so
-    // the sentence says how many rows that was.
+    // the sentence says how many rows that was. With the row's true class as target a score points towards the row's own
+    // class when positive, so a held-out row points at the training rows' class when its score is positive and that class
+    // is its own, or negative and it is not; with a one-sign direction per row (binary, one class's output, a continuous
+    // target) the votes are the training rows' directions summed.
     private static string Echoes(DetectorRun run, int feature, Attribution.AttributionMap map)
     {
         var context = run.Context;
-        if (!context.HasBinaryLabels)
+        if (context.AlignmentSigns is not { } signs)
             return "";
-        var trainingVotes = new Dictionary<long, int>();
+        bool ownClass = context.Target.IsPerRow;
+        int Vote(int row) => ownClass ? Probing.LabelKinds.ClassOf(context.Labels![row]) : (int)signs[row];
+        var trainingVotes = new Dictionary<long, Dictionary<int, int>>();
         foreach (int row in run.TrainingRows)
         {
             long id = context.IdOf(row, feature);
-            trainingVotes[id] = trainingVotes.GetValueOrDefault(id) + (int)context.AlignmentSigns!.Value[row];
+            if (!trainingVotes.TryGetValue(id, out var votes))
+                trainingVotes[id] = votes = [];
+            votes[Vote(row)] = votes.GetValueOrDefault(Vote(row)) + 1;
         }
         int shared = 0, echoed = 0, differing = 0, echoedDiffering = 0;
         foreach (int row in run.HeldOutRows)
         {
-            if (!trainingVotes.TryGetValue(context.IdOf(row, feature), out int votes) || votes == 0)
+            if (!trainingVotes.TryGetValue(context.IdOf(row, feature), out var votes))
                 continue;
+            // The training rows' label: the majority class, or for one-sign directions the sign of their sum (none on a tie).
+            int training;
+            if (ownClass)
+            {
+                var top = votes.OrderByDescending(v => v.Value).ThenBy(v => v.Key).ToArray();
+                if (top.Length > 1 && top[0].Value == top[1].Value)
+                    continue;
+                training = top[0].Key;
+            }
+            else
+            {
+                training = Math.Sign(votes.Sum(v => v.Key * v.Value));
+                if (training == 0)
+                    continue;
+            }
             double score = map[row, feature];
-            bool towardsTraining = score * votes > 0;
+            bool differs = ownClass ? training != Vote(row) : Vote(row) * training < 0;
+            bool towardsTraining = ownClass ? (differs ? score < 0 : score > 0) : score * training > 0;
             shared++;
             if (towardsTraining)
                 echoed++;
-            if ((int)context.AlignmentSigns!.Value[row] * votes < 0)
+            if (differs)
             {
                 differing++;
                 if (towardsTraining)

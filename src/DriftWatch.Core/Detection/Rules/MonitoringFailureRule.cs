@@ -14,7 +14,10 @@ public sealed class MonitoringFailureRule : IFindingRule
         null,
         SeverityRule.AlwaysCaution,
         EvaluationRole.Health,
-        _ => NumericalTroubleRule.HealthAdvice);
+        _ => NumericalTroubleRule.HealthAdvice)
+    {
+        Measure = FindingMeasure.None,
+    };
 
     /// <inheritdoc/>
     public FindingKindInfo Info => Kind;

@@ -15,13 +15,16 @@ public sealed record OverfittingSettings(double GeneralisationLossThreshold)
 }
 
 /// <summary>
-/// <b>Overfitting</b>: Prechelt's generalisation loss GL above the policy's threshold (Prechelt 1998), with the features
-/// whose training/held-out share gap widened since the best-validation epoch as the diagnosis.
+/// <b>Overfitting</b>: Prechelt's generalisation loss GL above the policy's threshold (Prechelt 1998). Its diagnosis tells
+/// one story with the epoch's other findings: when they name features it points to those and nothing else; when none
+/// does, it names the features whose training/held-out share gap widened since the best-validation epoch, or says the
+/// overfitting is diffuse. Its span runs from the first epoch of the current stretch above the threshold.
 /// </summary>
 /// <param name="settings">What the rule reads from the policy.</param>
 public sealed class OverfittingRule(OverfittingSettings settings) : IFindingRule
 {
     private readonly OverfittingSettings _settings = settings ?? throw new ArgumentNullException(nameof(settings));
+    private int? _since;
 
     /// <summary>The overfitting kind's words and advice.</summary>
     public static FindingKindInfo Kind { get; } = new(
@@ -33,7 +36,10 @@ public sealed class OverfittingRule(OverfittingSettings settings) : IFindingRule
         EvaluationRole.LossRule,
         a => a.BestEpoch is int best
             ? $"Validation loss rose past the policy's threshold: the lowest was at epoch {best.ToString(System.Globalization.CultureInfo.InvariantCulture)}, whose snapshot the store keeps."
-            : "Validation loss rose past the policy's threshold: consider the weights of the epoch with the lowest validation loss.");
+            : "Validation loss rose past the policy's threshold: consider the weights of the epoch with the lowest validation loss.")
+    {
+        Measure = new FindingMeasure("generalisation loss", "threshold", "%"),
+    };
 
     /// <inheritdoc/>
     public FindingKindInfo Info => Kind;
@@ -48,11 +54,24 @@ public sealed class OverfittingRule(OverfittingSettings settings) : IFindingRule
         ArgumentNullException.ThrowIfNull(findings);
         double gl = epoch.GeneralisationLoss;
         if (!(gl > _settings.GeneralisationLossThreshold))
+        {
+            _since = null;
             return;
+        }
+        _since ??= epoch.Epoch;
         string diagnosis = "";
         var s = epoch.Trusted ? epoch.Statistics : null;
         var best = epoch.BestShareGap;
-        if (s is not null && !best.IsDefaultOrEmpty)
+        var named = findings.Where(f => f.Feature.Length > 0).ToList();
+        if (named.Count > 0)
+        {
+            // The features the epoch's other findings name are the diagnosis; no second, unrelated list beside them.
+            diagnosis = "; see the findings on " + string.Join(", ", named
+                .GroupBy(f => f.Feature)
+                .Select(g => $"'{g.Key}' ({string.Join(", ", g.Select(f => f.Kind.Info.PlainWords).Distinct())})"))
+                + " at this epoch";
+        }
+        else if (s is not null && !best.IsDefaultOrEmpty)
         {
             var widened = Enumerable.Range(0, s.ShareGap.Length)
                 .Where(f => s.ShareGap[f] - best[f] > s.ShareGapWidth[f])
@@ -64,7 +83,7 @@ public sealed class OverfittingRule(OverfittingSettings settings) : IFindingRule
                 ? "; no feature's training/held-out gap widened beyond its noise floor — the overfitting is diffuse"
                 : "; features whose training/held-out gap widened since the best epoch: " + string.Join(", ", widened);
         }
-        findings.Add(new Finding(FindingKind.Overfitting, Kind.SeverityUnder(epoch.Run.Policy), "", gl, _settings.GeneralisationLossThreshold, EpochSpan.At(epoch.Epoch),
-            Format($"validation loss is {gl:0.0}% above its best so far (generalisation loss, threshold {_settings.GeneralisationLossThreshold:0.#}%)") + diagnosis));
+        findings.Add(new Finding(FindingKind.Overfitting, Kind.SeverityUnder(epoch.Run.Policy), "", gl, _settings.GeneralisationLossThreshold, new EpochSpan(_since.Value, epoch.Epoch),
+            Format($"validation loss is {gl:0.0}% above its best so far (generalisation loss, threshold {_settings.GeneralisationLossThreshold:0.#}%; above it since epoch {_since.Value})") + diagnosis));
     }
 }

@@ -35,7 +35,10 @@ public sealed class ProbableLeakRule(ProbableLeakSettings settings) : IFindingRu
         "dominance",
         SeverityRule.PolicyDecides,
         EvaluationRole.NamesFault,
-        a => $"Check whether {a.Features} is derived from the label: it nearly fixes the label on held-out rows too, a pipeline fault the validation loss cannot show.");
+        a => $"Check whether {a.Features} is derived from the label: it nearly fixes the label on held-out rows too, a pipeline fault the validation loss cannot show.")
+    {
+        Measure = new FindingMeasure("purity lower bound (share of probe rows)", "required bound", ""),
+    };
 
     private static string Sentence(string name, double share, double next, PurityResult pure) =>
         Format($"'{name}' decides on both halves ({share:P1} held-out share, next {next:P1}), ")
@@ -80,7 +83,9 @@ public sealed class ProbableLeakRule(ProbableLeakSettings settings) : IFindingRu
     }
 
     // For a categorical feature: over the whole probe set (both halves), how often the sign of the feature's attribution
-    // agrees with the row's ±1 label, with its one-sided 95% Wilson lower bound. The rule runs only when the feature
+    // agrees with the direction the row's label points (RunContext.AlignmentSigns: ±1 binary labels, one-vs-rest for one
+    // class's output, +1 towards the row's own class for the true-class target, the side of the median for a continuous
+    // target), with its one-sided 95% Wilson lower bound. The rule runs only when the feature
     // decides on both halves, so both halves are evidence of the same property: a leak makes every value point at the
     // label; a genuine feature, however strong, has values whose effect is weak or is overruled by other features.
     // Pooling doubles the rows behind the bound; the held-out half alone must also reach it (as a plain share), so a
@@ -88,7 +93,7 @@ public sealed class ProbableLeakRule(ProbableLeakSettings settings) : IFindingRu
     private static PurityResult? Purity(DetectorRun run, int feature, Attribution.AttributionMap map)
     {
         var context = run.Context;
-        if (context.CategoricalInput[feature] < 0 || !context.HasBinaryLabels)
+        if (context.CategoricalInput[feature] < 0 || context.AlignmentSigns is null)
             return null;
         var values = new HashSet<long>();
         int Agreeing(IEnumerable<int> rows)
