@@ -143,7 +143,7 @@ internal static class CheckCommand
             ["weights_command"] = weights?.Command,
             ["findings"] = latest?.Findings.Select(f =>
             {
-                var measure = FindingMeasure.Of(f, statistics, features.IndexOf(f.Feature));
+                var measure = FindingMeasures.Of(f, statistics, features.IndexOf(f.Feature));
                 return new Dictionary<string, object?>
                 {
                     ["kind"] = f.Kind.ToString(),

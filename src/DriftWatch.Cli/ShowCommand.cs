@@ -108,7 +108,7 @@ internal static class ShowCommand
             ["findings"] = RunFindings.Summarise(history).Select(f =>
             {
                 var statistics = history.Epochs.FirstOrDefault(e => e.Epoch == f.FlaggedEpochs[^1])?.Statistics;
-                var measure = Detection.FindingMeasure.Of(f.Kind, f.Size, f.NoiseFloor, statistics, history.FeatureNames.IndexOf(f.Feature));
+                var measure = Detection.FindingMeasures.Of(f.Kind, f.Size, f.NoiseFloor, statistics, history.FeatureNames.IndexOf(f.Feature));
                 return new Dictionary<string, object?>
                 {
                     ["kind"] = f.Kind.ToString(),

@@ -51,10 +51,10 @@ public sealed record ImportanceRow(
 /// <param name="Feature">The feature, or empty for a run-level finding.</param>
 /// <param name="Severity">Continue, Caution or Halt: what the finding asked for at the span's last epoch.</param>
 /// <param name="Statistic">The finding's size at the span's last epoch, in <paramref name="Unit"/>; null when the kind has none.</param>
-/// <param name="Measure">What <paramref name="Statistic"/> is (<see cref="FindingMeasure.Statistic"/>).</param>
-/// <param name="Unit">The unit of the statistic and its bound (<see cref="FindingMeasure.Unit"/>).</param>
+/// <param name="Measure">What <paramref name="Statistic"/> is (<see cref="Detection.Rules.FindingMeasure.Statistic"/>).</param>
+/// <param name="Unit">The unit of the statistic and its bound (<see cref="Detection.Rules.FindingMeasure.Unit"/>).</param>
 /// <param name="Bound">The noise floor or policy bound the statistic was judged against, in <paramref name="Unit"/>; null when none.</param>
-/// <param name="BoundKind"><c>noise_floor</c>, <c>policy_bound</c> or <c>none</c> (<see cref="FindingMeasure.Bound"/>).</param>
+/// <param name="BoundKind"><c>noise_floor</c>, <c>policy_bound</c> or <c>none</c> (<see cref="Detection.Rules.FindingMeasure.Bound"/>).</param>
 /// <param name="Evidence">The evidence sentence at the span's last epoch.</param>
 /// <param name="SeenOnlyBy">The methods whose maps alone showed it, comma-separated; empty for the verdict's method's own findings.</param>
 /// <param name="Agreement">Spearman ρ of held-out importance between methods at the span's last epoch, or null.</param>
@@ -179,7 +179,7 @@ public sealed class RunTables
         var findings = FindingSpans.Collapse(store.StoredVerdicts(run.Id)).Select(span =>
         {
             var f = span.Latest;
-            var measure = FindingMeasure.Of(f, statistics.GetValueOrDefault(span.ToEpoch), index.GetValueOrDefault(f.Feature, -1));
+            var measure = FindingMeasures.Of(f, statistics.GetValueOrDefault(span.ToEpoch), index.GetValueOrDefault(f.Feature, -1));
             return new FindingRow(
                 run.Name,
                 span.FromEpoch,

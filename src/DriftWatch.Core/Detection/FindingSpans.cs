@@ -1,4 +1,5 @@
 using System.Collections.Immutable;
+using DriftWatch.Detection.Rules;
 
 namespace DriftWatch.Detection;
 
@@ -61,27 +62,12 @@ public static class FindingSpans
 }
 
 /// <summary>What a finding's statistic and bound measure, so tables never mix units (a GL percentage, a share, an alignment).</summary>
-/// <param name="Statistic">
-/// What <see cref="Finding.Size"/> is: <c>share_gap</c>, <c>alignment_gap</c>, <c>lead</c> (top held-out share minus the
-/// runner-up's), <c>sign_agreement_lower_bound</c>, <c>generalisation_loss</c>, <c>relative_convergence_delta</c>,
-/// <c>value</c> (a metric or count the evidence names), or <c>none</c>.
-/// </param>
-/// <param name="Unit">
-/// The unit of both the statistic and its bound: <c>share</c> (fraction of attribution, 0 to 1), <c>alignment</c> (−1 to 1),
-/// <c>fraction</c> (of rows or of |F(x) − F(x′)|), <c>percent</c>, or empty when none applies.
-/// </param>
-/// <param name="Bound">
-/// What <see cref="Finding.NoiseFloor"/> is: <c>noise_floor</c> (the 90% bootstrap width of the statistic, which the rule
-/// multiplies by the policy's widths), <c>policy_bound</c> (a threshold taken from the policy), or <c>none</c>.
-/// </param>
-public sealed record FindingMeasure(string Statistic, string Unit, string Bound)
+public static class FindingMeasures
 {
-    /// <summary>Whether the finding has a bound at all (false for <c>none</c>).</summary>
-    public bool HasBound => Bound != "none";
-
     /// <summary>
-    /// What <paramref name="finding"/>'s statistic and bound measure. A leak is judged on its share gap or its alignment gap;
-    /// which one is read from the epoch's stored <paramref name="statistics"/> (the value the finding's size equals).
+    /// What <paramref name="finding"/>'s statistic and bound measure: its kind's <see cref="FindingKindInfo.Measure"/>, made exact
+    /// where one kind has two faces — a leak or an overfitted feature judged on its share gap or its alignment gap (read from the
+    /// epoch's stored <paramref name="statistics"/>: the value the finding's size equals), numerical trouble with or without a tolerance.
     /// </summary>
     /// <param name="finding">The finding.</param>
     /// <param name="statistics">The statistics of the epoch whose verdict lists the finding, or null when none are stored.</param>
@@ -100,25 +86,21 @@ public sealed record FindingMeasure(string Statistic, string Unit, string Bound)
     /// <param name="feature">The finding's feature index in the run's schema, or −1.</param>
     public static FindingMeasure Of(FindingKind kind, double size, double noiseFloor, EpochStatistics? statistics, int feature)
     {
-        var finding = (Kind: kind, Size: size, NoiseFloor: noiseFloor);
-        if (finding.Kind == FindingKind.Leak)
+        var declared = kind.Info.Measure;
+        if (declared.Statistic == FindingMeasure.Gap.Statistic)
         {
-            bool share = statistics is not null && feature >= 0 && feature < statistics.ShareGap.Length && statistics.ShareGap[feature].Equals(finding.Size);
-            bool alignment = statistics is not null && feature >= 0 && feature < statistics.AlignmentGap.Length && statistics.AlignmentGap[feature].Equals(finding.Size);
-            return share ? new("share_gap", "share", "noise_floor")
-                : alignment ? new("alignment_gap", "alignment", "noise_floor")
-                : new("share_or_alignment_gap", "", "noise_floor");
+            bool share = statistics is not null && feature >= 0 && feature < statistics.ShareGap.Length && statistics.ShareGap[feature].Equals(size);
+            bool alignment = statistics is not null && feature >= 0 && feature < statistics.AlignmentGap.Length && statistics.AlignmentGap[feature].Equals(size);
+            return share ? declared with { Size = "share gap", Statistic = "share_gap", Unit = "share" }
+                : alignment ? declared with { Size = "alignment gap", Statistic = "alignment_gap", Unit = "alignment" }
+                : declared;
         }
-        if (finding.Kind == FindingKind.MemorisedIdentifier)
-            return new("alignment_gap", "alignment", "noise_floor");
-        if (finding.Kind == FindingKind.DominantFeature)
-            return new("lead", "share", "noise_floor");
-        if (finding.Kind == FindingKind.ProbableLeak)
-            return new("sign_agreement_lower_bound", "fraction", "policy_bound");
-        if (finding.Kind == FindingKind.Overfitting)
-            return new("generalisation_loss", "percent", "policy_bound");
-        if (finding.Kind == FindingKind.NumericalTrouble)
-            return finding.NoiseFloor > 0 ? new("relative_convergence_delta", "fraction", "policy_bound") : new("value", "", "none");
-        return new("none", "", "none");
+        if (kind == FindingKind.NumericalTrouble)
+        {
+            return noiseFloor > 0
+                ? new FindingMeasure("mean convergence delta over mean |F(x) − F(x′)|", "tolerance", "") { Statistic = "relative_convergence_delta", Unit = "fraction", Bound = "policy_bound" }
+                : new FindingMeasure("value", "", "") { Statistic = "value", Bound = "none" };
+        }
+        return declared;
     }
 }

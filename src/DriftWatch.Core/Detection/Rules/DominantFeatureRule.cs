@@ -36,7 +36,7 @@ public sealed class DominantFeatureRule(DominantFeatureSettings settings, int pa
         EvaluationRole.Advisory,
         a => $"{a.Features} decides on both halves; that may be genuine, but check how it is produced before trusting it.")
     {
-        Measure = new FindingMeasure("lead in held-out share over the runner-up", "noise floor", ""),
+        Measure = new FindingMeasure("lead in held-out share over the runner-up", "noise floor", "") { Statistic = "lead", Unit = "share" },
     };
 
     private static string Sentence(string name, double share, double next, int since) =>

@@ -98,7 +98,7 @@ public sealed record FindingKindInfo(
     /// </summary>
     public FindingMeasure Measure
     {
-        get => field ?? (Family == "gap" ? FindingMeasure.Gap : FindingMeasure.Statistic);
+        get => field ?? (Family == "gap" ? FindingMeasure.Gap : FindingMeasure.Plain);
         init;
     }
 
@@ -123,26 +123,47 @@ public sealed record FindingKindInfo(
     };
 }
 
-/// <summary>What a finding kind's size and the value it is judged against measure.</summary>
-/// <param name="Size">What the size is, e.g. <c>share or alignment gap</c> or <c>generalisation loss</c>.</param>
-/// <param name="Against">What it is judged against, e.g. <c>noise floor</c> or <c>threshold</c>.</param>
-/// <param name="Unit">The unit both are written in, e.g. <c>%</c>; empty for a plain fraction.</param>
-public sealed record FindingMeasure(string Size, string Against, string Unit)
+/// <summary>What a finding kind's size and the value it is judged against measure, in words for people and in names for tables.</summary>
+/// <param name="Size">What the size is, in words, e.g. <c>share or alignment gap</c> or <c>generalisation loss</c>.</param>
+/// <param name="Against">What it is judged against, in words, e.g. <c>noise floor</c> or <c>threshold</c>.</param>
+/// <param name="Symbol">The unit symbol both are written with, e.g. <c>%</c>; empty for a plain number.</param>
+public sealed record FindingMeasure(string Size, string Against, string Symbol)
 {
+    /// <summary>
+    /// The size's name in tables and JSON: <c>share_gap</c>, <c>alignment_gap</c>, <c>share_or_alignment_gap</c>, <c>lead</c>,
+    /// <c>sign_agreement_lower_bound</c>, <c>generalisation_loss</c>, <c>relative_convergence_delta</c>, <c>statistic</c>, or <c>none</c>.
+    /// </summary>
+    public string Statistic { get; init; } = "statistic";
+
+    /// <summary>
+    /// The unit of the size and its bound in tables: <c>share</c> (fraction of attribution, 0 to 1), <c>alignment</c> (−1 to 1),
+    /// <c>fraction</c> (of rows or of |F(x) − F(x′)|), <c>percent</c>, or empty when none applies.
+    /// </summary>
+    public string Unit { get; init; } = "";
+
+    /// <summary>
+    /// What <see cref="Finding.NoiseFloor"/> is in tables: <c>noise_floor</c> (the 90% bootstrap width of the statistic, which the
+    /// rule multiplies by the policy's widths), <c>policy_bound</c> (a threshold taken from the policy), or <c>none</c>.
+    /// </summary>
+    public string Bound { get; init; } = "noise_floor";
+
+    /// <summary>Whether the finding has a bound at all (false for <c>none</c>).</summary>
+    public bool HasBound => Bound != "none";
+
     /// <summary>A training-minus-held-out gap of share or alignment (a fraction) against its row-bootstrap noise floor.</summary>
-    public static FindingMeasure Gap { get; } = new("share or alignment gap", "noise floor", "");
+    public static FindingMeasure Gap { get; } = new("share or alignment gap", "noise floor", "") { Statistic = "share_or_alignment_gap" };
 
     /// <summary>No size: the finding is an event (a failed step), not a measurement.</summary>
-    public static FindingMeasure None { get; } = new("", "", "");
+    public static FindingMeasure None { get; } = new("", "", "") { Statistic = "none", Bound = "none" };
 
     /// <summary>A statistic against its noise floor, both plain numbers.</summary>
-    public static FindingMeasure Statistic { get; } = new("statistic", "noise floor", "");
+    public static FindingMeasure Plain { get; } = new("statistic", "noise floor", "");
 
     /// <summary>A value with its unit, e.g. <c>5.2 %</c> or <c>0.120</c>; <c>-</c> when not finite.</summary>
     public string Write(double value) =>
         !double.IsFinite(value) || Size.Length == 0 ? "-"
-        : Unit.Length == 0 ? value.ToString("0.000", System.Globalization.CultureInfo.InvariantCulture)
-        : value.ToString("0.0", System.Globalization.CultureInfo.InvariantCulture) + " " + Unit;
+        : Symbol.Length == 0 ? value.ToString("0.000", System.Globalization.CultureInfo.InvariantCulture)
+        : value.ToString("0.0", System.Globalization.CultureInfo.InvariantCulture) + " " + Symbol;
 }
 
 /// <summary>What every rule reads of one epoch: the run, the policy, the epoch's statistics and what came before.</summary>

@@ -38,7 +38,7 @@ public sealed class MemorisedIdentifierRule(MemorisedIdentifierSettings settings
         EvaluationRole.NamesFault,
         a => $"{a.Features} behaves like an identifier the model memorised: consider dropping it or grouping its rare values. The feature chart shows the rows it separates.")
     {
-        Measure = new FindingMeasure("alignment gap", "noise floor", ""),
+        Measure = new FindingMeasure("alignment gap", "noise floor", "") { Statistic = "alignment_gap", Unit = "alignment" },
     };
 
     private static string Sentence(string name, EpochStatistics s, int f, string how) =>

@@ -4,8 +4,10 @@ namespace DriftWatch.Detection.Rules;
 /// <b>Overfitted feature</b>: the model relies on a feature that is not identifier-like more for training rows (share or
 /// alignment gap beyond the half-exchange null, as for a leak), but the feature's column passes the split-consistency
 /// check — it relates to the label the same way in training and held-out rows — so the model is fitting training rows on
-/// a genuine feature, not reading a leak. Runs only with a split-consistency check; a Caution unless the policy's
-/// <c>haltOn</c> lists it.
+/// a genuine feature, not reading a leak. Raised only while the loss rule also sees overfitting (GL beyond the policy's α):
+/// the loss says when, the attributions say on which feature — a genuine feature's gap alone, while the validation loss
+/// still falls, is ordinary fitting and is not named. Runs only with a split-consistency check; a Caution unless the
+/// policy's <c>haltOn</c> lists it.
 /// </summary>
 /// <param name="patience">Consecutive flagged epochs before a finding (the policy's patience).</param>
 public sealed class OverfittedFeatureRule(int patience) : IFindingRule
@@ -39,11 +41,12 @@ public sealed class OverfittedFeatureRule(int patience) : IFindingRule
             return;
         var check = Reliance.Decided(run);
         var (byShare, byAlignment) = Reliance.Of(s, run.Policy);
+        bool lossOverfits = epoch.GeneralisationLoss > run.Policy.GeneralisationLossThreshold;
         for (int f = 0; f < s.ShareGap.Length; f++)
         {
             var input = Reliance.CheckOf(run, check, f);
             bool overfitted = !run.IdentifierLike[f] && (byShare[f] || byAlignment[f]) && input is { Fails: false };
-            if (_streaks.Observe(f, overfitted, epoch.Epoch) is not int since)
+            if (_streaks.Observe(f, overfitted, epoch.Epoch) is not int since || !lossOverfits)
                 continue;
             string name = run.FeatureName(f);
             string evidence = Reliance.Sentence(name, s, f, since, byShare[f], run.Policy.HalfExchangeResplits)

@@ -38,7 +38,7 @@ public sealed class OverfittingRule(OverfittingSettings settings) : IFindingRule
             ? $"Validation loss rose past the policy's threshold: the lowest was at epoch {best.ToString(System.Globalization.CultureInfo.InvariantCulture)}, whose snapshot the store keeps."
             : "Validation loss rose past the policy's threshold: consider the weights of the epoch with the lowest validation loss.")
     {
-        Measure = new FindingMeasure("generalisation loss", "threshold", "%"),
+        Measure = new FindingMeasure("generalisation loss", "threshold", "%") { Statistic = "generalisation_loss", Unit = "percent", Bound = "policy_bound" },
     };
 
     /// <inheritdoc/>

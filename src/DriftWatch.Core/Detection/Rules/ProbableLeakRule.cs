@@ -37,7 +37,7 @@ public sealed class ProbableLeakRule(ProbableLeakSettings settings) : IFindingRu
         EvaluationRole.NamesFault,
         a => $"Check whether {a.Features} is derived from the label: it nearly fixes the label on held-out rows too, a pipeline fault the validation loss cannot show.")
     {
-        Measure = new FindingMeasure("purity lower bound (share of probe rows)", "required bound", ""),
+        Measure = new FindingMeasure("purity lower bound (share of probe rows)", "required bound", "") { Statistic = "sign_agreement_lower_bound", Unit = "fraction", Bound = "policy_bound" },
     };
 
     private static string Sentence(string name, double share, double next, PurityResult pure) =>

@@ -18,7 +18,15 @@ public sealed class SplitInconsistencyRule : IFindingRule
         null,
         SeverityRule.AlwaysCaution,
         EvaluationRole.Advisory,
-        a => $"Check how {a.Features} is produced for training rows and for held-out rows: alone it predicts the label better where the model trains. The model does not lean on it yet; if it starts to, the run gets a leak finding.");
+        a => $"Check how {a.Features} is produced for training rows and for held-out rows: alone it predicts the label better where the model trains. The model does not lean on it yet; if it starts to, the run gets a leak finding.")
+    {
+        Measure = new FindingMeasure("training-minus-held-out score of the column alone", "95th percentile of the side-exchange null", "")
+        {
+            Statistic = "split_score_gap",
+            Unit = "score",
+            Bound = "null_bound",
+        },
+    };
 
     /// <inheritdoc/>
     public FindingKindInfo Info => Kind;
