@@ -29,7 +29,7 @@ public sealed class DriftChart : IChart
         var verdictKey = ChartKit.NewKey(scale);
         var shaded = ChartKit.ShadeVerdicts(verdicts, history);
         DrawVerdicts(verdicts, verdictKey.Legend, history, scale);
-        ChartKit.VerdictKey(verdictKey.Legend, shaded);
+        ChartKit.VerdictKey(verdictKey.Legend, shaded, history);
 
         var ranks = ChartKit.NewPlot(scale);
         var ranksKey = ChartKit.NewKey(scale);

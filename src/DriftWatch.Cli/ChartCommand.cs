@@ -43,7 +43,7 @@ internal static class ChartCommand
             "chart",
             "Render charts of a run as PNG files and print their paths, one a line.\n"
             + "  trend       share of importance per feature across epochs (held-out solid, training dashed) in its noise-floor band, "
-            + "rings where a finding names the feature; losses beneath\n"
+            + "rings at the first and last epoch a finding names the feature; losses beneath\n"
             + "  divergence  training half against held-out half for flagged and top features: shares with bands, label alignment beneath\n"
             + "  heatmap     epoch × feature: held-out share (--value share), mean signed attribution (signed) or training minus held-out share (gap); "
             + "taller than --height's default with many features, so every name stays readable\n"

@@ -423,7 +423,7 @@ public static class RunReport
 
     private static string Caption(ChartKind kind, RunHistory history) => kind switch
     {
-        ChartKind.Trend => "Trend: share of importance per feature (held-out solid, training dashed) in its noise-floor band; rings where a finding names the feature; losses beneath.",
+        ChartKind.Trend => "Trend: share of importance per feature (held-out solid, training dashed) in its noise-floor band; rings at the first and last epoch a finding names the feature; losses beneath.",
         ChartKind.Divergence => "Divergence: training half against held-out half for flagged and top features, shares with noise bands above, label alignment below.",
         ChartKind.Heatmap => "Heatmap: held-out share per epoch and feature, largest features on top; dots where a finding names the feature.",
         ChartKind.Drift => "Drift: verdicts, drift score and rank agreement with the best epoch, generalisation gap and generalisation loss.",
