@@ -34,7 +34,8 @@ internal readonly record struct TextScale
 /// <param name="Key">A plot used only to host the row's legend, or null for none.</param>
 /// <param name="Weight">The row's share of the picture's height, relative to the other rows.</param>
 /// <param name="ShowsXLabel">Whether the row's plots carry an x-axis label (needs more room beneath).</param>
-internal sealed record PanelRow(IReadOnlyList<Plot> Columns, Plot? Key, float Weight, bool ShowsXLabel);
+/// <param name="TitleLines">Lines of each plot's own title, for the room above it; 0 leaves that to <c>columnTitles</c>.</param>
+internal sealed record PanelRow(IReadOnlyList<Plot> Columns, Plot? Key, float Weight, bool ShowsXLabel, int TitleLines = 0);
 
 /// <summary>Drawing helpers every chart shares: the house style, verdict shading, lines broken at NaN, panel layout and PNG output.</summary>
 internal static class ChartKit
@@ -426,7 +427,7 @@ internal static class ChartKit
         {
             var row = rows[i];
             float height = i == rows.Count - 1 ? size.Height - top : MathF.Round(available * row.Weight / totalWeight);
-            float padTop = (i == 0 && columnTitles ? 40 : 12) * scale.Factor;
+            float padTop = (rows[i].TitleLines > 0 ? 12 + 19 * rows[i].TitleLines : i == 0 && columnTitles ? 40 : 12) * scale.Factor;
             float padBottom = (row.ShowsXLabel ? 62 : 34) * scale.Factor;
             float columnWidth = panelWidth / row.Columns.Count;
             for (int c = 0; c < row.Columns.Count; c++)
@@ -482,6 +483,22 @@ internal static class ChartKit
         using var image = surface.Snapshot();
         using var png = image.Encode(SKEncodedImageFormat.Png, 100);
         OutputFile.Write(path, png.SaveTo);
+    }
+
+    /// <summary>The gate policy the run was judged under, read from the history; the default when none was stored or it cannot be read.</summary>
+    public static GatePolicy PolicyOf(RunHistory history)
+    {
+        ArgumentNullException.ThrowIfNull(history);
+        if (string.IsNullOrWhiteSpace(history.Policy))
+            return GatePolicy.Default;
+        try
+        {
+            return GatePolicy.Parse(history.Policy, "stored policy");
+        }
+        catch (DriftWatchException)
+        {
+            return GatePolicy.Default;
+        }
     }
 
     /// <summary>Throws the usual error when a history has no complete epoch.</summary>

@@ -23,6 +23,9 @@ internal sealed class StoreBuilder
     private double[]? _losses;
     private double[]? _validationLosses;
     private bool _lastUncommitted;
+    private FindingKind _kind = FindingKind.Leak;
+    private VerdictKind _severity = VerdictKind.Halt;
+    private bool _findingAnyFeature;
 
     public StoreBuilder WithRun(string name)
     {
@@ -59,6 +62,20 @@ internal sealed class StoreBuilder
     {
         _flagged = feature;
         _haltFrom = fromEpoch;
+        return this;
+    }
+
+    /// <summary>
+    /// A finding of <paramref name="kind"/> (naming feature <paramref name="feature"/>, or none for a run-level kind when
+    /// it is −1) at every epoch from <paramref name="fromEpoch"/> on, asking for <paramref name="severity"/>.
+    /// </summary>
+    public StoreBuilder WithFinding(FindingKind kind, int feature, int fromEpoch, VerdictKind severity = VerdictKind.Halt)
+    {
+        _kind = kind;
+        _flagged = feature;
+        _haltFrom = fromEpoch;
+        _severity = severity;
+        _findingAnyFeature = true;
         return this;
     }
 
@@ -174,25 +191,27 @@ internal sealed class StoreBuilder
                         AlignmentTraining = [.. t.Alignment ?? []],
                         AlignmentGap = [.. (t.Alignment ?? []).Zip(h.Alignment ?? [], (a, b) => a - b)],
                         AlignmentGapWidth = [.. (h.Alignment ?? []).Select(_ => 0.2)],
+                        LeadWidthHeldOut = 0.02,
+                        LeadWidthTraining = 0.025,
                         Drift = position == 0 ? double.NaN : 0.1 / epoch,
                         RankAgreementWithBest = Math.Max(-1, 1 - 0.05 * epoch),
                         GeneralisationLoss = Math.Max(0, (epoch - 3) * 4.0),
                     },
                 });
             }
-            bool halt = _flagged >= 0 && epoch >= _haltFrom;
+            bool halt = (_flagged >= 0 || _findingAnyFeature) && epoch >= _haltFrom;
             var findings = halt
                 ? new List<FindingDocument>
                 {
                     new()
                     {
-                        Kind = nameof(FindingKind.Leak),
-                        Feature = _features[_flagged],
-                        Severity = nameof(VerdictKind.Halt),
+                        Kind = _kind.Name,
+                        Feature = _flagged >= 0 ? _features[_flagged] : "",
+                        Severity = _severity.ToString(),
                         Size = 0.2,
                         NoiseFloor = 0.05,
                         Epochs = [_haltFrom, epoch],
-                        Evidence = $"'{_features[_flagged]}' takes more attribution on training rows than held-out rows",
+                        Evidence = _flagged >= 0 ? $"'{_features[_flagged]}' takes more attribution on training rows than held-out rows" : $"metric 'train_loss' is NaN at epoch {epoch}",
                     },
                 }
                 : [];
@@ -200,7 +219,7 @@ internal sealed class StoreBuilder
             {
                 RunId = run.Id,
                 Epoch = epoch,
-                Kind = halt ? nameof(VerdictKind.Halt) : nameof(VerdictKind.Continue),
+                Kind = halt ? _severity.ToString() : nameof(VerdictKind.Continue),
                 Reasons = [.. findings.Select(f => f.Evidence)],
                 Findings = findings,
             });
