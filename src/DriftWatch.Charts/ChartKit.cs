@@ -406,7 +406,7 @@ internal static class ChartKit
         using var surface = Surface(size.Width, size.Height);
         var canvas = surface.Canvas;
         canvas.Clear(ChartPalette.Background.ToSKColor());
-        using (var titlePaint = new SKPaint { Color = new SKColor(0x22, 0x22, 0x22), IsAntialias = true })
+        using (var titlePaint = new SKPaint { Color = ChartPalette.Ink.ToSKColor(), IsAntialias = true })
         {
             float y = 8 * scale.Factor;
             foreach (var (text, font, height) in titleLines)

@@ -192,7 +192,8 @@ public sealed partial class EvidenceChart : IChart
             {
                 foreach (var (from, to) in spans)
                 {
-                    var bracket = ChartKit.AddLine(plot, [from, to], [top, top], ChartPalette.Ink, LinePattern.Solid, 2.2f * scale.Factor, MarkerShape.VerticalBar, 12 * scale.Factor);
+                    // A quarter epoch beyond each end, so a one-epoch span still shows as a short bracket.
+                    var bracket = ChartKit.AddLine(plot, [from - 0.25, to + 0.25], [top, top], ChartPalette.Ink, LinePattern.Solid, 2.2f * scale.Factor, MarkerShape.VerticalBar, 12 * scale.Factor);
                     bracket.MarkerLineWidth = 2.2f * scale.Factor;
                 }
                 key.Legend.ManualItems.Add(ChartKit.LineItem("finding raised (first to last epoch)", ChartPalette.Ink, LinePattern.Solid, 2.2f * scale.Factor, MarkerShape.VerticalBar, 12 * scale.Factor));

@@ -88,6 +88,14 @@ internal static class EvidencePlans
     private static EvidenceLine Of(string label, Func<EpochStatistics, double> value, EvidenceRole role, double scale = 1) =>
         new(label, e => e.Statistics is { Trusted: true } s ? value(s) * scale : null, role);
 
+    // The halves' own values come from the epoch's map, as the detector's statistics do (for the method it reads): they
+    // are drawn for any method and for runs that stored no statistics; bounds need the stored noise floors.
+    private static EvidenceLine Alignment(string label, int f, bool training, EvidenceRole role) =>
+        new(label, e => (training ? e.TrainingAlignment : e.HeldOutAlignment) is { Length: > 0 } a && a.Length > f ? a[f] : null, role);
+
+    private static EvidenceLine AlignmentGap(int f) =>
+        new("alignment gap (training − held-out)", e => e.TrainingAlignment.Length > f && e.HeldOutAlignment.Length > f ? e.TrainingAlignment[f] - e.HeldOutAlignment[f] : null, EvidenceRole.Statistic);
+
     private static IReadOnlyList<EvidencePanel> Leak(EvidenceInput input)
     {
         var p = input.Policy;
@@ -99,9 +107,9 @@ internal static class EvidencePlans
                 "label alignment: training half against held-out half",
                 "label alignment",
                 [
-                    Of("alignment gap (training − held-out)", s => s.AlignmentGap[f], EvidenceRole.Statistic),
-                    Of("held-out alignment", s => s.AlignmentHeldOut[f], EvidenceRole.HeldOut),
-                    Of("training alignment", s => s.AlignmentTraining[f], EvidenceRole.Training),
+                    AlignmentGap(f),
+                    Alignment("held-out alignment", f, training: false, EvidenceRole.HeldOut),
+                    Alignment("training alignment", f, training: true, EvidenceRole.Training),
                     Of($"bound: max({Number(p.LeakAlignmentWidths)} × noise floor, {Number(p.LeakMinimumAlignmentGap)})",
                         s => Math.Max(p.LeakAlignmentWidths * s.AlignmentGapWidth[f], p.LeakMinimumAlignmentGap), EvidenceRole.Bound),
                 ],
@@ -112,7 +120,7 @@ internal static class EvidencePlans
             "share of importance: training half minus held-out half",
             "share gap (points of %)",
             [
-                Of("share gap (training − held-out)", s => s.ShareGap[f], EvidenceRole.Statistic, 100),
+                new("share gap (training − held-out)", e => e.IsAttributed ? (e.TrainingShare[f] - e.HeldOutShare[f]) * 100 : null, EvidenceRole.Statistic),
                 Of($"bound: max({Number(p.LeakWidths)} × noise floor, {Number(p.LeakMinimumGap * 100)} points)",
                     s => Math.Max(p.LeakWidths * s.ShareGapWidth[f], p.LeakMinimumGap), EvidenceRole.Bound, 100),
             ],
@@ -128,15 +136,15 @@ internal static class EvidencePlans
         if (!HasAlignment(input.History, f))
             return [Unavailable("label alignment", "no label alignment stored (labels not binary)")];
         var cusum = Cusum(input.History, f, p);
-        return
-        [
+        var panels = new List<EvidencePanel>
+        {
             new EvidencePanel(
                 "label alignment: training half against held-out half",
                 "label alignment",
                 [
-                    Of("alignment gap (training − held-out)", s => s.AlignmentGap[f], EvidenceRole.Statistic),
-                    Of("held-out alignment", s => s.AlignmentHeldOut[f], EvidenceRole.HeldOut),
-                    Of("training alignment", s => s.AlignmentTraining[f], EvidenceRole.Training),
+                    AlignmentGap(f),
+                    Alignment("held-out alignment", f, training: false, EvidenceRole.HeldOut),
+                    Alignment("training alignment", f, training: true, EvidenceRole.Training),
                     Of($"bound: {Number(p.IdentifierWidths)} × noise floor", s => p.IdentifierWidths * s.AlignmentGapWidth[f], EvidenceRole.Bound),
                 ],
                 ("noise floor: ±90% bootstrap width", e => e.Statistics is { Trusted: true } s && s.AlignmentGapWidth.Length > f ? (-s.AlignmentGapWidth[f], s.AlignmentGapWidth[f]) : null),
@@ -150,7 +158,8 @@ internal static class EvidencePlans
                 ],
                 null,
                 "fires: sum above the decision line"),
-        ];
+        };
+        return panels;
     }
 
     private static IReadOnlyList<EvidencePanel> Dominance(EvidenceInput input) => [DominancePanel(input)];
@@ -165,8 +174,8 @@ internal static class EvidencePlans
             "lead over the next feature's share",
             "lead (points of %)",
             [
-                Of("held-out lead", s => Lead(s.ShareHeldOut, f), EvidenceRole.HeldOut, 100),
-                Of("training lead", s => Lead(s.ShareTraining, f), EvidenceRole.Training, 100),
+                new("held-out lead", e => e.IsAttributed ? Lead(e.HeldOutShare, f) * 100 : null, EvidenceRole.HeldOut),
+                new("training lead", e => e.IsAttributed ? Lead(e.TrainingShare, f) * 100 : null, EvidenceRole.Training),
                 Of($"held-out bound: {Number(p.DominanceWidths)} × noise floor", s => p.DominanceWidths * s.LeadWidthHeldOut, EvidenceRole.HeldOutBound, 100),
                 Of($"training bound: {Number(p.DominanceWidths)} × noise floor", s => p.DominanceWidths * s.LeadWidthTraining, EvidenceRole.TrainingBound, 100),
             ],
@@ -236,7 +245,7 @@ internal static class EvidencePlans
         policy.Patience == 1 ? "an epoch" : $"{policy.Patience.ToString(CultureInfo.InvariantCulture)} epochs running";
 
     private static bool HasAlignment(RunHistory history, int f) =>
-        f >= 0 && history.Epochs.Any(e => e.Statistics is { Trusted: true } s && s.AlignmentGap.Length > f && s.AlignmentGapWidth.Length > f);
+        f >= 0 && history.Epochs.Any(e => e.HeldOutAlignment.Length > f && e.TrainingAlignment.Length > f);
 
     /// <summary>
     /// The memorised-identifier rule's CUSUM of the alignment gap, recomputed from the stored statistics as the rule does:
