@@ -39,8 +39,11 @@ internal sealed record DemoOptions
     /// <summary>Continue a run the store already has, from the epoch after its last complete one.</summary>
     public bool Resume { get; init; }
 
-    /// <summary>Train every epoch even when the gate advises stopping.</summary>
+    /// <summary>Train every epoch even when the gate advises stopping (the command line's default; <c>--stop-at-halt</c> turns it off).</summary>
     public bool KeepTraining { get; init; }
+
+    /// <summary>Whether the run name was given (<c>--run</c>); a derived name that is taken gets a suffix instead of an error.</summary>
+    public bool RunNamed { get; init; }
 
     public bool Help { get; init; }
 
@@ -67,17 +70,20 @@ internal sealed record DemoOptions
           --rows N           training rows, 100–100000 (default: {DefaultRows}); validation rows stay 1000
           --steps N          Integrated Gradients steps, 2–1024 (default: {DefaultSteps}; --small: {SmallSteps})
           --run NAME         run name in the store, matched exactly: Night-7 and night-7 are two runs (default: scenario
-                             and seed, e.g. default-seed1, plus -small, -rowsN or -stepsN when those differ from the defaults)
+                             and seed, e.g. default-seed1, plus -small, -rowsN or -stepsN when those differ from the defaults;
+                             when the store has that run already, a new run beside it: default-seed1-2, then -3, …)
           --resume           continue the run named by --run (or the derived name) from the epoch after its last complete
                              one: the weights come from that epoch's snapshot in the store, Adam's state from
                              STORE.training-state/ (fresh when missing); without a stored epoch it starts at epoch 1
-          --keep-training    train every epoch even when the gate advises stopping (verdicts are still printed and stored)
+          --stop-at-halt     stop training at the first Halt verdict; by default every epoch is trained with the gate
+                             advising, and where it would have stopped is marked in the output and on every chart
+          --keep-training    train every epoch whatever the gate says (the default; kept for older scripts)
           --small            quick settings for CI: {SmallEpochs} epochs, {SmallProbePerHalf} probe rows per half, {SmallSteps} steps
                              (options given explicitly still win)
           -h, --help         show this help
 
-        Exit codes: 0 done (whatever the verdicts), 2 bad input (a bad option, a run name already in the store without
-        --resume, or a run that cannot be resumed),
+        Exit codes: 0 done (whatever the verdicts), 2 bad input (a bad option, a name given with --run that is already in
+        the store without --resume, or a run that cannot be resumed),
         3 an internal error.
         """;
 
@@ -89,7 +95,7 @@ internal sealed record DemoOptions
         string? store = null, run = null;
         int? epochs = null, seed = null, rows = null, steps = null;
         var variant = GreenhouseVariant.Default;
-        bool small = false, help = false, resume = false, keepTraining = false;
+        bool small = false, help = false, resume = false, stopAtHalt = false;
 
         for (int i = 0; i < args.Count; i++)
         {
@@ -124,7 +130,10 @@ internal sealed record DemoOptions
                     resume = true;
                     break;
                 case "--keep-training" when inline is null:
-                    keepTraining = true;
+                    stopAtHalt = false;
+                    break;
+                case "--stop-at-halt" when inline is null:
+                    stopAtHalt = true;
                     break;
                 case "--store":
                     store = Value("a file path such as runs/greenhouse.litedb");
@@ -155,7 +164,7 @@ internal sealed record DemoOptions
                     break;
                 default:
                     throw new DriftWatchException(
-                        $"unknown option '{arg}'; valid options are --store, --scenario, --epochs, --seed, --rows, --steps, --run, --resume, --keep-training, --small and --help");
+                        $"unknown option '{arg}'; valid options are --store, --scenario, --epochs, --seed, --rows, --steps, --run, --resume, --stop-at-halt, --keep-training, --small and --help");
             }
         }
 
@@ -170,7 +179,8 @@ internal sealed record DemoOptions
             ProbePerHalf = small ? SmallProbePerHalf : DefaultProbePerHalf,
             Small = small,
             Resume = resume,
-            KeepTraining = keepTraining,
+            KeepTraining = !stopAtHalt,
+            RunNamed = run is not null,
             Help = help,
         };
         return options with { RunName = run ?? options.DerivedRunName() };

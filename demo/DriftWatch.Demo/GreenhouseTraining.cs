@@ -21,6 +21,13 @@ internal static class GreenhouseTraining
     public static int Run(DemoOptions options, TextWriter output)
     {
         var total = Stopwatch.StartNew();
+        // Running the demo again starts a new run beside the old one, unless --resume continues it or --run names it.
+        string? taken = null;
+        if (!options.Resume && !options.RunNamed && RunExists(Path.GetFullPath(options.StorePath), options.RunName))
+        {
+            taken = options.RunName;
+            options = options with { RunName = FreeName(Path.GetFullPath(options.StorePath), options.RunName) };
+        }
         var scenario = ScenarioBuilder.For(options.Variant)
             .WithSeed(options.Seed)
             .WithTrainingRows(options.Rows)
@@ -83,21 +90,25 @@ internal static class GreenhouseTraining
             output.WriteLine($"resumed   {resumed}");
         if (monitor.TookOver is not null)
             output.WriteLine($"writer    {monitor.TookOver}");
+        if (taken is not null)
+            output.WriteLine($"run       the store has run '{taken}' already; this is a new run beside it, '{options.RunName}' (--resume continues the old one)");
         if (firstEpoch > options.Epochs)
             output.WriteLine(Invariant($"          it already has {firstEpoch - 1} epochs, as many as --epochs {options.Epochs} asks; nothing to train"));
         output.WriteLine();
 
+        int? firstHalt = null;
         var records = GreenhouseTrainer.Train(scenario, model, monitor, options.Epochs, options.Seed, stopOnHalt: !options.KeepTraining, firstEpoch: firstEpoch, optimizerState: optimizerState, onEpoch: record =>
         {
             output.WriteLine(Invariant(
                 $"epoch {record.Epoch,3}  train loss {record.TrainLoss:F4}  validation loss {record.ValidationLoss:F4}  accuracy {record.Accuracy:F3}  verdict {record.Verdict.Kind,-8}  monitor {record.MonitorSeconds:F2} s"));
             foreach (var finding in record.Verdict.Findings)
                 output.WriteLine($"          {finding.Severity.ToString().ToLowerInvariant()}: {finding.Evidence}");
-            if (record.Verdict.Kind == VerdictKind.Halt)
+            if (record.Verdict.Kind == VerdictKind.Halt && firstHalt is null)
             {
+                firstHalt = record.Epoch;
                 output.WriteLine(options.KeepTraining
-                    ? "          the gate advises stopping; --keep-training goes on"
-                    : $"          the gate advises stopping; training stops at epoch {record.Epoch}");
+                    ? Invariant($"          the gate advises stopping here (epoch {record.Epoch}); training goes on to show the run's story (--stop-at-halt stops here)")
+                    : Invariant($"          the gate advises stopping; training stops at epoch {record.Epoch}"));
             }
         });
 
@@ -113,11 +124,16 @@ internal static class GreenhouseTraining
             output.WriteLine(Invariant(
                 $"lowest validation loss {best.Metrics[EpochMetrics.ValidationLossKey]:F4} at epoch {best.Epoch}; {records.Count} epochs trained in {total.Elapsed.TotalSeconds:F1} s, {stored.Count} in the store"));
         }
-        string chart = RenderTrend(reading, options.RunName, monitorOptions.StorePath);
+        var stoppedAt = reading.Verdicts(monitor.Run.Id).Where(v => v.Kind == nameof(VerdictKind.Halt)).Select(v => (int?)v.Epoch).Min();
+        if (options.KeepTraining && stoppedAt is int stop)
+            output.WriteLine(Invariant($"gate      first Halt at epoch {stop}: stopping on Halt would have ended the run there (marked on every chart)"));
+        var (evidence, chart) = RenderCharts(reading, options.RunName, monitorOptions.StorePath);
         string validation = WriteValidationRows(scenario, model.Schema, options.RunName, monitorOptions.StorePath);
         string store = Quote(monitorOptions.StorePath);
         string run = Quote(options.RunName);
         output.WriteLine($"store     {monitorOptions.StorePath}");
+        if (evidence is not null)
+            output.WriteLine($"evidence  {evidence.Value.Path} ({evidence.Value.What})");
         output.WriteLine($"chart     {chart}");
         output.WriteLine($"rows      {validation} (the {ValidationRows} validation rows, labelled, for a pruning what-if)");
         string driftwatch = CliCommand.Prefix(Environment.CurrentDirectory, Environment.GetEnvironmentVariable("PATH"), out string? publishFirst);
@@ -142,14 +158,41 @@ internal static class GreenhouseTraining
         return run is null ? -1 : reading.Epochs(run.Id).Select(e => e.Epoch).DefaultIfEmpty(-1).Max();
     }
 
-    private static string RenderTrend(RunStore store, string runName, string storePath)
+    // The evidence chart of the run's most severe finding (when it has one) and the trend chart, beside the store.
+    private static ((string Path, string What)? Evidence, string Trend) RenderCharts(RunStore store, string runName, string storePath)
     {
-        var history = Charts.RunHistory.Load(store, runName);
+        var history = Charts.RunHistory.Load(store, runName, rowsOfFlagged: true);
         string folder = Path.Combine(Path.GetDirectoryName(storePath)!, "charts");
         Directory.CreateDirectory(folder);
         string path = Path.Combine(folder, Charts.ChartFiles.FileName(runName, "trend", history.Method));
         new Charts.TrendChart().Render(history, path, Charts.ChartSize.Default);
-        return path;
+        if (Charts.ChartCatalog.MostSevere(history) is not { } worst)
+            return (null, path);
+        var evidence = new Charts.EvidenceChart(worst.Kind);
+        var (kind, feature) = evidence.Choose(history);
+        string evidencePath = Path.Combine(folder, Charts.ChartFiles.FileName(runName, evidence.Name, history.Method));
+        evidence.Render(history, evidencePath, Charts.ChartSize.Default);
+        string what = $"evidence of the most severe finding: {worst.Severity} for {kind.Info.PlainWords}{(feature is null ? "" : $" of '{feature}'")}";
+        return ((evidencePath, what), path);
+    }
+
+    // The first of NAME-2, NAME-3, … the store does not have.
+    private static string FreeName(string storePath, string runName)
+    {
+        for (int suffix = 2; ; suffix++)
+        {
+            string name = Invariant($"{runName}-{suffix}");
+            if (!RunExists(storePath, name))
+                return name;
+        }
+    }
+
+    private static bool RunExists(string storePath, string runName)
+    {
+        if (!File.Exists(storePath))
+            return false;
+        using var reading = RunStore.OpenForReading(storePath);
+        return reading.FindRun(runName) is not null;
     }
 
     // The validation rows as CSV beside the store (dense features, categorical ids, label), so `driftwatch prune` can

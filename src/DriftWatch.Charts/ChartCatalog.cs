@@ -1,3 +1,5 @@
+using DriftWatch.Detection;
+using DriftWatch.Detection.Rules;
 using DriftWatch.Options;
 using DriftWatch.Storage;
 
@@ -6,6 +8,9 @@ namespace DriftWatch.Charts;
 /// <summary>The kinds of chart of one run.</summary>
 public enum ChartKind
 {
+    /// <summary><see cref="EvidenceChart"/>: the statistic a finding's rule judges, against its bound.</summary>
+    Evidence,
+
     /// <summary><see cref="TrendChart"/>.</summary>
     Trend,
 
@@ -43,6 +48,15 @@ public sealed record ChartOptions
     /// <summary>The feature of the feature detail chart (also drawn first in the divergence chart); null picks <see cref="ChartCatalog.DefaultFeature"/>.</summary>
     public string? Feature { get; init; }
 
+    /// <summary>The kind of finding whose evidence chart to draw; null draws the run's most severe finding's (<see cref="ChartCatalog.MostSevere"/>).</summary>
+    /// <exception cref="DriftWatchException">A kind this version has no evidence chart for.</exception>
+    public FindingKind? EvidenceKind
+    {
+        get;
+        init => field = value is not FindingKind k || EvidencePlans.For(k) is not null ? value
+            : throw new DriftWatchException($"no evidence chart for finding kind '{DisplayText.Clean(k.Name, 40)}'; known kinds: {string.Join(", ", EvidencePlans.ByKind.Keys.Select(ChartCatalog.Spelling))}");
+    }
+
     /// <summary>What the heatmap shows. Default <see cref="HeatmapValue.Share"/>.</summary>
     /// <exception cref="DriftWatchException">Not one of the named values.</exception>
     public HeatmapValue HeatmapValue
@@ -60,10 +74,61 @@ public sealed record ChartOptions
 public static class ChartCatalog
 {
     /// <summary>Every kind, in the order a report shows them.</summary>
-    public static IReadOnlyList<ChartKind> All { get; } = [ChartKind.Trend, ChartKind.Divergence, ChartKind.Heatmap, ChartKind.Drift, ChartKind.Feature];
+    public static IReadOnlyList<ChartKind> All { get; } = [ChartKind.Evidence, ChartKind.Trend, ChartKind.Divergence, ChartKind.Heatmap, ChartKind.Drift, ChartKind.Feature];
 
     /// <summary>The kind's name as the command line spells it.</summary>
     public static string Spelling(ChartKind kind) => kind.ToString().ToLowerInvariant();
+
+    /// <summary>A finding kind as the command line spells it: its stored name in lower case, words joined by hyphens (<c>memorised-identifier</c>).</summary>
+    public static string Spelling(FindingKind kind)
+    {
+        var text = new System.Text.StringBuilder();
+        foreach (char c in kind.Name)
+        {
+            if (char.IsUpper(c) && text.Length > 0)
+                text.Append('-');
+            text.Append(char.ToLowerInvariant(c));
+        }
+        return text.ToString();
+    }
+
+    /// <summary>Parses a finding kind as <see cref="Spelling(FindingKind)"/> spells it (or its stored name), among the kinds with an evidence chart.</summary>
+    /// <exception cref="DriftWatchException">Not such a kind.</exception>
+    public static FindingKind ParseFinding(string text)
+    {
+        ArgumentNullException.ThrowIfNull(text);
+        string word = text.Trim();
+        foreach (var kind in EvidencePlans.ByKind.Keys)
+        {
+            if (string.Equals(Spelling(kind), word, StringComparison.OrdinalIgnoreCase) || string.Equals(kind.Name, word, StringComparison.OrdinalIgnoreCase))
+                return kind;
+        }
+        throw new DriftWatchException($"--finding must be one of {string.Join(", ", EvidencePlans.ByKind.Keys.Select(Spelling))}; got '{DisplayText.Clean(text, 40)}'");
+    }
+
+    /// <summary>Every finding of the run with the epoch whose verdict holds it, in epoch order.</summary>
+    public static IEnumerable<(int Epoch, Finding Finding)> Findings(RunHistory history)
+    {
+        ArgumentNullException.ThrowIfNull(history);
+        return history.Epochs.SelectMany(e => e.Findings.Select(f => (e.Epoch, f)));
+    }
+
+    /// <summary>
+    /// The run's most severe finding: Halt before Caution, then the kind first in verdict order (<see cref="FindingRules.Kinds"/>),
+    /// then the earliest; only kinds with an evidence chart count. Null when the run has none.
+    /// </summary>
+    public static Finding? MostSevere(RunHistory history) =>
+        Findings(history)
+            .Where(f => EvidencePlans.For(f.Finding.Kind) is not null)
+            .OrderByDescending(f => f.Finding.Severity)
+            .ThenBy(f => FindingRules.IndexOf(f.Finding.Kind) is int i and >= 0 ? i : int.MaxValue)
+            .ThenBy(f => f.Epoch)
+            .Select(f => f.Finding)
+            .FirstOrDefault();
+
+    /// <summary>The charts drawn when none is named: the evidence chart of the run's most severe finding, then the trend chart; the trend chart alone for a run with no finding.</summary>
+    public static IReadOnlyList<ChartKind> Leading(RunHistory history) =>
+        MostSevere(history) is null ? [ChartKind.Trend] : [ChartKind.Evidence, ChartKind.Trend];
 
     /// <summary>Parses a kind as the command line spells it; <c>all</c> gives every kind.</summary>
     /// <exception cref="DriftWatchException">Not a known kind.</exception>
@@ -100,6 +165,7 @@ public static class ChartCatalog
         ArgumentNullException.ThrowIfNull(choices);
         return kind switch
         {
+            ChartKind.Evidence => new EvidenceChart(choices.EvidenceKind, choices.Feature),
             ChartKind.Trend => new TrendChart(choices.TopFeatures),
             ChartKind.Divergence => new DivergenceChart(choices.DivergenceFeatures, choices.Feature),
             ChartKind.Heatmap => new HeatmapChart(choices.HeatmapValue),
@@ -132,8 +198,16 @@ public static class ChartCatalog
         ArgumentNullException.ThrowIfNull(folder);
         var charts = kinds.Select(k => (Kind: k, Chart: Create(k, history, choices))).ToList();
         var detail = charts.Select(c => c.Chart).OfType<FeatureDetailChart>().FirstOrDefault();
-        if (detail is not null && !history.Rows.Any(r => r.Feature == detail.Feature))
-            history = history.WithRows(store, [detail.Feature]);
+        var needed = new List<string>();
+        if (detail is not null)
+            needed.Add(detail.Feature);
+        foreach (var evidence in charts.Select(c => c.Chart).OfType<EvidenceChart>())
+        {
+            if (evidence.Choose(history) is var (kind, feature) && feature is not null && EvidencePlans.For(kind) is { NeedsRows: true })
+                needed.Add(feature);
+        }
+        if (needed.Any(f => !history.Rows.Any(r => r.Feature == f)))
+            history = history.WithRows(store, [.. needed.Concat(history.Rows.Select(r => r.Feature)).Distinct(StringComparer.Ordinal)]);
 
         var written = new List<(ChartKind, string)>();
         foreach (var (kind, chart) in charts)

@@ -34,7 +34,8 @@ internal readonly record struct TextScale
 /// <param name="Key">A plot used only to host the row's legend, or null for none.</param>
 /// <param name="Weight">The row's share of the picture's height, relative to the other rows.</param>
 /// <param name="ShowsXLabel">Whether the row's plots carry an x-axis label (needs more room beneath).</param>
-internal sealed record PanelRow(IReadOnlyList<Plot> Columns, Plot? Key, float Weight, bool ShowsXLabel);
+/// <param name="TitleLines">Lines of each plot's own title, for the room above it; 0 leaves that to <c>columnTitles</c>.</param>
+internal sealed record PanelRow(IReadOnlyList<Plot> Columns, Plot? Key, float Weight, bool ShowsXLabel, int TitleLines = 0);
 
 /// <summary>Drawing helpers every chart shares: the house style, verdict shading, lines broken at NaN, panel layout and PNG output.</summary>
 internal static class ChartKit
@@ -42,11 +43,11 @@ internal static class ChartKit
     /// <summary>Legend names longer than this are shortened with an ellipsis.</summary>
     public const int LegendNameLength = 34;
 
-    /// <summary>Caution verdicts: a faint grey band over their epochs.</summary>
-    public static Color CautionShade { get; } = ChartPalette.Muted.WithAlpha(0.05);
+    /// <summary>The first Caution verdict's mark: a thin dotted grey line.</summary>
+    public static Color CautionMark { get; } = ChartPalette.Muted;
 
-    /// <summary>Halt verdicts: a darker grey band over their epochs.</summary>
-    public static Color HaltShade { get; } = ChartPalette.Ink.WithAlpha(0.085);
+    /// <summary>The first Halt verdict's mark: a dashed dark line, where stopping on Halt would have ended the run.</summary>
+    public static Color HaltMark { get; } = ChartPalette.Ink;
 
     /// <summary>A new plot in the house style: bundled font, sized ticks, integer epochs, no built-in legend.</summary>
     public static Plot NewPlot(TextScale scale, bool integerX = true)
@@ -85,42 +86,78 @@ internal static class ChartKit
         plot.Axes.SetLimitsX(history.Epochs[0].Epoch - 0.5, history.Epochs[^1].Epoch + 0.5);
     }
 
-    /// <summary>Shades each streak of Caution or Halt verdicts; call before drawing data so the shading lies beneath.</summary>
-    /// <returns>Which kinds were shaded, for the legend.</returns>
+    /// <summary>
+    /// Marks the first Caution (when it comes before the first Halt) and the first Halt verdict with a thin vertical line
+    /// each: where the gate first worried and where stopping on Halt would have ended the run. Nothing is shaded, so a
+    /// long run stays as readable after its first Halt as before it.
+    /// </summary>
+    /// <returns>Which marks were drawn, for the legend.</returns>
     public static (bool Caution, bool Halt) ShadeVerdicts(Plot plot, RunHistory history)
     {
-        bool caution = false;
-        bool halt = false;
-        var epochs = history.Epochs;
-        int i = 0;
-        while (i < epochs.Length)
-        {
-            var kind = epochs[i].Verdict;
-            if (kind is not (VerdictKind.Caution or VerdictKind.Halt))
-            {
-                i++;
-                continue;
-            }
-            int j = i;
-            while (j + 1 < epochs.Length && epochs[j + 1].Verdict == kind && epochs[j + 1].Epoch == epochs[j].Epoch + 1)
-                j++;
-            var span = plot.Add.HorizontalSpan(epochs[i].Epoch - 0.5, epochs[j].Epoch + 0.5, kind == VerdictKind.Halt ? HaltShade : CautionShade);
-            span.LineWidth = 0;
-            span.IsDraggable = false;
-            caution |= kind == VerdictKind.Caution;
-            halt |= kind == VerdictKind.Halt;
-            i = j + 1;
-        }
+        var (caution, halt) = FirstVerdicts(history);
+        if (caution is int c)
+            VerticalMark(plot, c, CautionMark, LinePattern.Dotted, 1.4f);
+        if (halt is int h)
+            VerticalMark(plot, h, HaltMark, LinePattern.Dashed, 1.8f);
+        return (caution is not null, halt is not null);
+    }
+
+    /// <summary>The first Caution epoch (only when no Halt came before it) and the first Halt epoch, or null.</summary>
+    public static (int? Caution, int? Halt) FirstVerdicts(RunHistory history)
+    {
+        ArgumentNullException.ThrowIfNull(history);
+        int? halt = history.Epochs.FirstOrDefault(e => e.Verdict == VerdictKind.Halt)?.Epoch;
+        int? caution = history.Epochs.FirstOrDefault(e => e.Verdict == VerdictKind.Caution)?.Epoch;
+        if (caution is int c && halt is int h && c >= h)
+            caution = null;
         return (caution, halt);
     }
 
-    /// <summary>Adds legend entries for the verdict shading that was drawn.</summary>
-    public static void VerdictKey(Legend legend, (bool Caution, bool Halt) shaded)
+    private static void VerticalMark(Plot plot, double x, Color color, LinePattern pattern, float width)
     {
+        var line = plot.Add.VerticalLine(x, width, color, pattern);
+        line.IsDraggable = false;
+        line.ExcludeFromLegend = true;
+    }
+
+    /// <summary>Adds legend entries for the verdict marks that were drawn, naming their epochs.</summary>
+    public static void VerdictKey(Legend legend, (bool Caution, bool Halt) shaded, RunHistory? history = null)
+    {
+        var (caution, halt) = history is null ? (null, null) : FirstVerdicts(history);
+        string At(int? epoch) => epoch is int e ? $" (epoch {Integer(e)})" : "";
         if (shaded.Caution)
-            legend.ManualItems.Add(new LegendItem { LabelText = "Caution verdict", FillColor = CautionShade, OutlineColor = ChartPalette.Muted, OutlineWidth = 1 });
+            legend.ManualItems.Add(LineItem("first Caution" + At(caution), CautionMark, LinePattern.Dotted, 1.4f));
         if (shaded.Halt)
-            legend.ManualItems.Add(new LegendItem { LabelText = "Halt verdict (advice)", FillColor = HaltShade, OutlineColor = ChartPalette.Muted, OutlineWidth = 1 });
+            legend.ManualItems.Add(LineItem("first Halt: stopping would end here" + At(halt), HaltMark, LinePattern.Dashed, 1.8f));
+    }
+
+    /// <summary>
+    /// The spans of consecutive stored epochs where <paramref name="flagged"/> holds, first to last epoch each: finding
+    /// marks go at a span's start and end, not at every epoch.
+    /// </summary>
+    public static List<(int First, int Last)> Spans(RunHistory history, Func<EpochRecord, bool> flagged)
+    {
+        ArgumentNullException.ThrowIfNull(history);
+        ArgumentNullException.ThrowIfNull(flagged);
+        var spans = new List<(int First, int Last)>();
+        int? first = null;
+        int last = 0;
+        foreach (var epoch in history.Epochs)
+        {
+            if (flagged(epoch))
+            {
+                first ??= epoch.Epoch;
+                last = epoch.Epoch;
+            }
+            else if (first is int f)
+            {
+                spans.Add((f, last));
+                first = null;
+            }
+        }
+        if (first is int open)
+            spans.Add((open, last));
+        return spans;
     }
 
     /// <summary>Adds a line with markers.</summary>
@@ -368,8 +405,8 @@ internal static class ChartKit
 
         using var surface = Surface(size.Width, size.Height);
         var canvas = surface.Canvas;
-        canvas.Clear(SKColors.White);
-        using (var titlePaint = new SKPaint { Color = new SKColor(0x22, 0x22, 0x22), IsAntialias = true })
+        canvas.Clear(ChartPalette.Background.ToSKColor());
+        using (var titlePaint = new SKPaint { Color = ChartPalette.Ink.ToSKColor(), IsAntialias = true })
         {
             float y = 8 * scale.Factor;
             foreach (var (text, font, height) in titleLines)
@@ -390,7 +427,7 @@ internal static class ChartKit
         {
             var row = rows[i];
             float height = i == rows.Count - 1 ? size.Height - top : MathF.Round(available * row.Weight / totalWeight);
-            float padTop = (i == 0 && columnTitles ? 40 : 12) * scale.Factor;
+            float padTop = (rows[i].TitleLines > 0 ? 12 + 19 * rows[i].TitleLines : i == 0 && columnTitles ? 40 : 12) * scale.Factor;
             float padBottom = (row.ShowsXLabel ? 62 : 34) * scale.Factor;
             float columnWidth = panelWidth / row.Columns.Count;
             for (int c = 0; c < row.Columns.Count; c++)
@@ -446,6 +483,22 @@ internal static class ChartKit
         using var image = surface.Snapshot();
         using var png = image.Encode(SKEncodedImageFormat.Png, 100);
         OutputFile.Write(path, png.SaveTo);
+    }
+
+    /// <summary>The gate policy the run was judged under, read from the history; the default when none was stored or it cannot be read.</summary>
+    public static GatePolicy PolicyOf(RunHistory history)
+    {
+        ArgumentNullException.ThrowIfNull(history);
+        if (string.IsNullOrWhiteSpace(history.Policy))
+            return GatePolicy.Default;
+        try
+        {
+            return GatePolicy.Parse(history.Policy, "stored policy");
+        }
+        catch (DriftWatchException)
+        {
+            return GatePolicy.Default;
+        }
     }
 
     /// <summary>Throws the usual error when a history has no complete epoch.</summary>

@@ -2,38 +2,62 @@ using ScottPlot;
 
 namespace DriftWatch.Charts;
 
-/// <summary>Colours of every chart: colour-blind-safe, never a red/green pair.</summary>
+/// <summary>
+/// Every colour a chart draws, declared here and nowhere else (a convention test checks it). Our own colours, chosen so
+/// that no two series colours, nor a series colour and the white background, run together for viewers with a protan,
+/// deutan or tritan colour-vision deficiency (checked by simulation in the tests); no library's default cycle and no
+/// published named scheme. One orange only, and never a red/green pair: a cool blue means positive, the orange
+/// negative and a light grey zero.
+/// </summary>
 internal static class ChartPalette
 {
-    /// <summary>Positive values.</summary>
-    public static Color Positive { get; } = Color.FromHex("#1F77B4");
+    /// <summary>Deep blue: positive values, the held-out half, the first series.</summary>
+    public static Color Positive { get; } = Color.FromHex("#16407A");
 
-    /// <summary>Negative values.</summary>
-    public static Color Negative { get; } = Color.FromHex("#FF7F0E");
+    /// <summary>The one orange: negative values, the training half, the second series.</summary>
+    public static Color Negative { get; } = Color.FromHex("#E07B1A");
 
-    /// <summary>Zero.</summary>
+    /// <summary>Zero: a light grey.</summary>
     public static Color Zero { get; } = Color.FromHex("#D9D9D9");
+
+    /// <summary>The darkest blue of the signed and sequential colour ramps.</summary>
+    public static Color DeepPositive { get; } = Color.FromHex("#0B2447");
+
+    /// <summary>The darkest end of the orange ramp (a darker shade of the same orange).</summary>
+    public static Color DeepNegative { get; } = Color.FromHex("#6E3507");
 
     /// <summary>Text and axis lines.</summary>
     public static Color Ink { get; } = Color.FromHex("#222222");
 
-    /// <summary>Secondary text and verdict marks.</summary>
+    /// <summary>Secondary text, bounds and verdict marks.</summary>
     public static Color Muted { get; } = Color.FromHex("#666666");
 
+    /// <summary>A mid grey between <see cref="Zero"/> and <see cref="Muted"/> (mixed neurons).</summary>
+    public static Color MidGrey { get; } = Color.FromHex("#8C8C8C");
+
+    /// <summary>The picture's background and cells with no value.</summary>
+    public static Color Background { get; } = Color.FromHex("#FFFFFF");
+
+    /// <summary>The held-out half's lines.</summary>
+    public static Color HeldOut => Positive;
+
+    /// <summary>The training half's lines.</summary>
+    public static Color Training => Negative;
+
     /// <summary>
-    /// One colour per feature line: the Okabe–Ito palette (Okabe and Ito 2008, "Color Universal Design"),
-    /// reordered so the first lines get the most distinct colours and yellow, the hardest on white, comes last.
+    /// One colour per series, in the order lines take them: the two half colours first, then colours that differ from
+    /// them and each other in lightness as well as hue; the lightest come last.
     /// </summary>
     public static IReadOnlyList<Color> Categorical { get; } =
     [
-        Color.FromHex("#0072B2"), // blue
-        Color.FromHex("#E69F00"), // orange
-        Color.FromHex("#009E73"), // bluish green
-        Color.FromHex("#CC79A7"), // reddish purple
-        Color.FromHex("#56B4E9"), // sky blue
-        Color.FromHex("#D55E00"), // vermillion
-        Color.FromHex("#000000"), // black
-        Color.FromHex("#B8A000"), // yellow, darkened from #F0E442 so it reads on white
+        Positive,                 // deep blue
+        Negative,                 // orange
+        Color.FromHex("#1F6E70"), // dark teal
+        Color.FromHex("#D27BB2"), // orchid pink
+        Color.FromHex("#262626"), // charcoal
+        Color.FromHex("#9A88D6"), // lavender
+        Color.FromHex("#82CBEF"), // pale sky
+        Color.FromHex("#EADF78"), // straw
     ];
 
     /// <summary>Marker shapes paired with <see cref="Categorical"/>, so lines differ by more than colour.</summary>

@@ -82,8 +82,8 @@ public sealed class DivergenceChart : IChart
 
         var shareRow = new List<Plot>();
         var alignmentRow = new List<Plot>();
-        var heldOutColor = ChartPalette.Categorical[0];
-        var trainingColor = ChartPalette.Categorical[5];
+        var heldOutColor = ChartPalette.HeldOut;
+        var trainingColor = ChartPalette.Training;
         float width = 2.2f * scale.Factor;
         float marker = attributed.Count <= 40 ? 6 * scale.Factor : 0;
         bool anyBand = false;
@@ -183,7 +183,7 @@ public sealed class DivergenceChart : IChart
             alignmentKey.Legend.ManualItems.Add(ChartKit.LineItem("training alignment", trainingColor, LinePattern.Dashed, width, MarkerShape.FilledSquare, marker));
             alignmentKey.Legend.ManualItems.Add(ChartKit.FillItem("held-out ± gap noise floor", ChartPalette.Muted.WithAlpha(0.22)));
         }
-        ChartKit.VerdictKey(alignmentKey.Legend, shaded);
+        ChartKit.VerdictKey(alignmentKey.Legend, shaded, history);
 
         string[] title =
         [

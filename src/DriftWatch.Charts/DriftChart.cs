@@ -29,7 +29,7 @@ public sealed class DriftChart : IChart
         var verdictKey = ChartKit.NewKey(scale);
         var shaded = ChartKit.ShadeVerdicts(verdicts, history);
         DrawVerdicts(verdicts, verdictKey.Legend, history, scale);
-        ChartKit.VerdictKey(verdictKey.Legend, shaded);
+        ChartKit.VerdictKey(verdictKey.Legend, shaded, history);
 
         var ranks = ChartKit.NewPlot(scale);
         var ranksKey = ChartKit.NewKey(scale);
@@ -152,17 +152,5 @@ public sealed class DriftChart : IChart
         return ChartKit.Segments(history.Epochs, e => byEpoch.TryGetValue(e.Epoch, out double v) ? v : null);
     }
 
-    private static double Threshold(RunHistory history)
-    {
-        if (string.IsNullOrWhiteSpace(history.Policy))
-            return GatePolicy.Default.GeneralisationLossThreshold;
-        try
-        {
-            return GatePolicy.Parse(history.Policy, "stored policy").GeneralisationLossThreshold;
-        }
-        catch (DriftWatchException)
-        {
-            return GatePolicy.Default.GeneralisationLossThreshold;
-        }
-    }
+    private static double Threshold(RunHistory history) => ChartKit.PolicyOf(history).GeneralisationLossThreshold;
 }

@@ -60,8 +60,8 @@ public sealed class FeatureDetailChart : IChart
         var drawn = Thin(rows.Epochs.Select(e => e.Epoch).ToList()).ToHashSet();
         var epochs = rows.Epochs.Where(e => drawn.Contains(e.Epoch)).ToList();
         int spacing = epochs.Count < 2 ? 1 : Math.Max(1, epochs.Zip(epochs.Skip(1), (a, b) => b.Epoch - a.Epoch).Min());
-        var heldOutColor = ChartPalette.Categorical[0];
-        var trainingColor = ChartPalette.Categorical[5];
+        var heldOutColor = ChartPalette.HeldOut;
+        var trainingColor = ChartPalette.Training;
         var values = new List<double>();
         if (epochs.Count == 0)
         {
@@ -84,7 +84,7 @@ public sealed class FeatureDetailChart : IChart
             if (outliers)
                 key.Legend.ManualItems.Add(ChartKit.MarkerItem("row beyond 1.5 IQR", ChartPalette.Muted, MarkerShape.OpenCircle, 6 * scale.Factor));
         }
-        ChartKit.VerdictKey(key.Legend, shaded);
+        ChartKit.VerdictKey(key.Legend, shaded, history);
         ChartKit.FitY(plot, values, includeZero: true);
         ChartKit.EpochAxis(plot, history);
         if (spacing > 1)

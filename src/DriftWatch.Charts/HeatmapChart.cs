@@ -118,7 +118,7 @@ public sealed class HeatmapChart : IChart
             if (top <= 0)
                 top = 1;
             var map = ChartKit.CellGrid(plot, cells, layout.First, layout.Last);
-            map.NaNCellColor = Colors.White;
+            map.NaNCellColor = ChartPalette.Background;
             map.Colormap = Value == HeatmapValue.Share ? new SequentialColormap() : new DivergingColormap();
             map.ManualRange = Value == HeatmapValue.Share ? new ScottPlot.Range(0, top) : new ScottPlot.Range(-top, top);
             var bar = plot.Add.ColorBar(map, Edge.Right);
@@ -167,7 +167,7 @@ public sealed class HeatmapChart : IChart
                 key.Legend.ManualItems.Add(ChartKit.MarkerItem("a finding names the feature at that epoch", ChartPalette.Ink, MarkerShape.FilledCircle, 7 * scale.Factor));
             }
             if (cells.Cast<double>().Any(double.IsNaN))
-                key.Legend.ManualItems.Add(ChartKit.FillItem("not attributed", Colors.White));
+                key.Legend.ManualItems.Add(ChartKit.FillItem("not attributed", ChartPalette.Background));
             plot.Axes.SetLimitsX(layout.First - 0.5, layout.Last + 0.5);
             plot.Axes.SetLimitsY(-0.5, rows.Count - 0.5);
             if (layout.Ticks(size.Width) is { } epochTicks)
@@ -207,7 +207,7 @@ public sealed class HeatmapChart : IChart
     {
         public string Name => "DriftWatch grey to blue";
 
-        public Color GetColor(double position) => Ramp(ChartPalette.Positive, DeepPositive, Math.Clamp(position, 0, 1));
+        public Color GetColor(double position) => Ramp(ChartPalette.Positive, ChartPalette.DeepPositive, Math.Clamp(position, 0, 1));
     }
 
     // Orange below zero, light grey at zero, blue above; the range is symmetric, so grey sits at position 0.5. The neuron map uses it too.
@@ -218,14 +218,9 @@ public sealed class HeatmapChart : IChart
         public Color GetColor(double position)
         {
             double p = Math.Clamp(position, 0, 1);
-            return p < 0.5 ? Ramp(ChartPalette.Negative, DeepNegative, (0.5 - p) * 2) : Ramp(ChartPalette.Positive, DeepPositive, (p - 0.5) * 2);
+            return p < 0.5 ? Ramp(ChartPalette.Negative, ChartPalette.DeepNegative, (0.5 - p) * 2) : Ramp(ChartPalette.Positive, ChartPalette.DeepPositive, (p - 0.5) * 2);
         }
     }
-
-    // Dark ends of the two hues, so large values stand out from middling ones.
-    private static Color DeepPositive { get; } = Color.FromHex("#08306B");
-
-    private static Color DeepNegative { get; } = Color.FromHex("#7F2704");
 
     // Light grey at 0, the palette's hue at 0.6, its dark end at 1.
     private static Color Ramp(Color hue, Color deep, double t) =>

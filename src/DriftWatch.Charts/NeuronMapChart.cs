@@ -23,7 +23,7 @@ public enum NeuronMapValue
 public sealed class NeuronMapChart
 {
     /// <summary>Mixed units: a mid grey, darker than inactive's light grey, so the classes differ in lightness as well as hue.</summary>
-    internal static Color MixedColour { get; } = Color.FromHex("#8C8C8C");
+    internal static Color MixedColour { get; } = ChartPalette.MidGrey;
 
     private static readonly NeuronClass[] ClassOrder = [NeuronClass.ConsistentlyNegative, NeuronClass.Inactive, NeuronClass.Mixed, NeuronClass.Positive];
 
@@ -83,7 +83,7 @@ public sealed class NeuronMapChart
             }
         }
         var map = ChartKit.CellGrid(plot, cells, layout.First, layout.Last);
-        map.NaNCellColor = Colors.White;
+        map.NaNCellColor = ChartPalette.Background;
         float right = 14;
         if (Value == NeuronMapValue.Class)
         {
@@ -108,7 +108,7 @@ public sealed class NeuronMapChart
             key.Legend.ManualItems.Add(ChartKit.FillItem("near zero", ChartPalette.Zero));
         }
         if (cells.Cast<double>().Any(double.IsNaN))
-            key.Legend.ManualItems.Add(ChartKit.FillItem("no layer map at that epoch", Colors.White));
+            key.Legend.ManualItems.Add(ChartKit.FillItem("no layer map at that epoch", ChartPalette.Background));
 
         // Unit names on the left, every one when there is room, else every k-th.
         float dataHeight = size.Height * 0.78f;

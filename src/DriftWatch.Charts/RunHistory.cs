@@ -156,6 +156,12 @@ public sealed class RunHistory
     /// <summary>Per feature, <c>Dense</c> or <c>Categorical</c>, in schema order.</summary>
     public ImmutableArray<string> FeatureKinds { get; }
 
+    /// <summary>
+    /// Per probe row (held-out rows first), the direction its label points a score (+1 positive class, −1 negative), as
+    /// the label rules read it; null when the labels are not binary or were not stored.
+    /// </summary>
+    internal double[]? AlignmentSigns => _run.ProbeLabels is { } labels ? Probing.LabelKinds.AlignmentSigns(FloatBytes.ToFloats(labels)) : null;
+
     /// <summary>Per-row attributions of the features asked for when loading (see <see cref="Load"/>), in the order asked.</summary>
     public ImmutableArray<FeatureRows> Rows { get; }
 

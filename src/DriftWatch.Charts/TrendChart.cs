@@ -6,8 +6,8 @@ namespace DriftWatch.Charts;
 
 /// <summary>
 /// Share of importance per feature across epochs for the top features, held-out half solid and training half dashed,
-/// each held-out line in its noise-floor band, with a ring at every epoch where a finding names the feature;
-/// beneath, an aligned panel of train and validation loss. Epochs with a Caution or Halt verdict are shaded on both.
+/// each held-out line in its noise-floor band, with a ring at the first and last epoch of each span where a finding names the feature;
+/// beneath, an aligned panel of train and validation loss. The first Caution and the first Halt are marked on both.
 /// </summary>
 public sealed class TrendChart : IChart
 {
@@ -56,7 +56,7 @@ public sealed class TrendChart : IChart
         var ranked = last?.TopByHeldOutShare(TopFeatures) ?? [];
         DrawShares(shares, sharesKey.Legend, history, ranked, scale);
         DrawLosses(losses, lossesKey.Legend, history, scale);
-        ChartKit.VerdictKey(lossesKey.Legend, shaded);
+        ChartKit.VerdictKey(lossesKey.Legend, shaded, history);
 
         shares.YLabel("share of mean |attribution| (%)", scale.AxisLabel);
         losses.YLabel("loss", scale.AxisLabel);
@@ -131,17 +131,18 @@ public sealed class TrendChart : IChart
                 ChartKit.AddLine(plot, [.. points.Select(p => p.First)], [.. points.Select(p => p.Second)], color, LinePattern.Solid, 0, shape, markerSize);
             }
 
-            // A ring around the held-out point at every epoch where a finding names this feature.
+            // A ring around the held-out point at the first and last epoch of each span where a finding names this
+            // feature: a span reads as its two ends, however many epochs it covers.
             string name = history.FeatureNames[feature];
-            // On long runs a ring at every flagged epoch would bury the line; every stride-th one is drawn, like the markers.
-            var rings = attributed
-                .Where(e => e.Findings.Any(f => f.Feature == name) && double.IsFinite(e.HeldOutShare[feature]))
-                .Where((_, i) => i % stride == 0)
+            var shareAt = attributed.ToDictionary(e => e.Epoch, e => e.HeldOutShare[feature]);
+            var ends = ChartKit.Spans(history, e => e.Findings.Any(f => f.Feature == name))
+                .SelectMany(span => span.First == span.Last ? new[] { span.First } : [span.First, span.Last])
+                .Where(epoch => shareAt.TryGetValue(epoch, out double share) && double.IsFinite(share))
                 .ToList();
-            if (rings.Count > 0)
+            if (ends.Count > 0)
             {
-                double[] ringXs = [.. rings.Select(e => (double)e.Epoch)];
-                double[] ringYs = [.. rings.Select(e => e.HeldOutShare[feature] * 100)];
+                double[] ringXs = [.. ends.Select(e => (double)e)];
+                double[] ringYs = [.. ends.Select(e => shareAt[e] * 100)];
                 var marks = plot.Add.Markers(ringXs, ringYs, MarkerShape.OpenCircle, 17 * scale.Factor, ChartPalette.Ink);
                 marks.MarkerLineWidth = 1.6f * scale.Factor;
                 flagged = true;
@@ -165,7 +166,7 @@ public sealed class TrendChart : IChart
         if (banded)
             legend.ManualItems.Add(ChartKit.FillItem("noise floor (90% band)", ChartPalette.Muted.WithAlpha(0.25)));
         if (flagged)
-            legend.ManualItems.Add(ChartKit.MarkerItem("a finding names it", ChartPalette.Ink, MarkerShape.OpenCircle, 13 * scale.Factor));
+            legend.ManualItems.Add(ChartKit.MarkerItem("a finding names it: first and last epoch", ChartPalette.Ink, MarkerShape.OpenCircle, 13 * scale.Factor));
     }
 
     private static void DrawLosses(Plot plot, Legend legend, RunHistory history, TextScale scale)

@@ -14,13 +14,20 @@ internal static class ChartCommand
     {
         var run = CommonOptions.Run();
         var method = CommonOptions.Method();
-        var kind = new Option<string>("--kind")
+        var kind = new Option<string?>("--kind")
         {
-            Description = "Which chart: trend, divergence, heatmap, drift, feature, or all of them.",
+            Description = "Which chart: evidence, trend, divergence, heatmap, drift, feature, or all of them. "
+                + "Default: the evidence chart of the run's most severe finding, then the trend chart (the trend chart alone when nothing was found).",
             HelpName = "KIND",
-            DefaultValueFactory = _ => "trend",
         };
-        kind.AcceptOnlyFromAmong("trend", "divergence", "heatmap", "drift", "feature", "all");
+        kind.AcceptOnlyFromAmong([.. ChartCatalog.All.Select(ChartCatalog.Spelling), "all"]);
+        var finding = new Option<string?>("--finding")
+        {
+            Description = "The finding kind whose evidence chart to draw: "
+                + string.Join(", ", FindingKinds()) + ". Default: the kind of the run's most severe finding.",
+            HelpName = "FINDING",
+        };
+        finding.AcceptOnlyFromAmong([.. FindingKinds()]);
         var feature = CommonOptions.Feature();
         var value = CommonOptions.HeatmapValueOption();
         var top = CommonOptions.Bounded(
@@ -42,15 +49,19 @@ internal static class ChartCommand
         var command = new Command(
             "chart",
             "Render charts of a run as PNG files and print their paths, one a line.\n"
+            + "  evidence    the statistic a finding's rule judges (per half where it has halves) against its noise band or bound, "
+            + "a bracket over the epochs the finding was raised (--finding KIND; default: the most severe finding)\n"
             + "  trend       share of importance per feature across epochs (held-out solid, training dashed) in its noise-floor band, "
-            + "rings where a finding names the feature; losses beneath\n"
+            + "rings at the first and last epoch a finding names the feature; losses beneath\n"
             + "  divergence  training half against held-out half for flagged and top features: shares with bands, label alignment beneath\n"
             + "  heatmap     epoch × feature: held-out share (--value share), mean signed attribution (signed) or training minus held-out share (gap); "
             + "taller than --height's default with many features, so every name stays readable\n"
             + "  drift       verdicts, drift score, rank agreement with the best epoch, generalisation gap and loss\n"
             + "  feature     per-row attributions of one feature (--feature NAME; default: the first flagged) as box plots per epoch and half\n"
-            + "Epochs with a Caution or Halt verdict are shaded. Attributions describe the model, not causes.\n"
+            + "The first Caution and the first Halt are marked by a vertical line. Attributions describe the model, not causes.\n"
             + "Examples:\n"
+            + "  driftwatch chart night-7\n"
+            + "  driftwatch chart night-7 --kind evidence --finding memorised-identifier\n"
             + "  driftwatch chart night-7 --kind all --out charts\n"
             + "  driftwatch chart night-7 --kind feature --feature \"crate id\" --width 1600 --height 900\n"
             + ExitCodes.ReadingCommandsHelp)
@@ -58,6 +69,7 @@ internal static class ChartCommand
             run,
             method,
             kind,
+            finding,
             feature,
             value,
             top,
@@ -68,9 +80,10 @@ internal static class ChartCommand
         };
         command.SetAction(parse =>
         {
-            var kinds = ChartCatalog.Parse(parse.GetValue(kind)!);
+            string? named = parse.GetValue(kind);
             var choices = new ChartOptions
             {
+                EvidenceKind = parse.GetValue(finding) is { } f ? ChartCatalog.ParseFinding(f) : null,
                 TopFeatures = parse.GetValue(top),
                 DivergenceFeatures = parse.GetValue(columns),
                 Feature = parse.GetValue(feature),
@@ -83,11 +96,13 @@ internal static class ChartCommand
             IReadOnlyList<(ChartKind Kind, string Path)> written;
             using (var runStore = CommonOptions.OpenStore(parse, store))
             {
-                var history = RunHistory.Load(runStore, parse.GetValue(run)!, parse.GetValue(method)!, rowsOfFlagged: kinds.Contains(ChartKind.Feature) && choices.Feature is null);
+                var history = RunHistory.Load(runStore, parse.GetValue(run)!, parse.GetValue(method)!, rowsOfFlagged: named is "feature" or "all" && choices.Feature is null);
                 if (history.Epochs.IsEmpty)
                     throw new DriftWatchException($"run '{DisplayText.Clean(history.RunName)}' has no complete epochs yet; nothing to chart");
-                if (choices.Feature is { } named && history.FeatureIndex(named) < 0)
-                    throw new DriftWatchException($"run '{DisplayText.Clean(history.RunName)}' has no feature '{DisplayText.Clean(named)}'; its features: {DisplayText.Clean(string.Join(", ", history.FeatureNames), 400)}");
+                if (choices.Feature is { } chosen && history.FeatureIndex(chosen) < 0)
+                    throw new DriftWatchException($"run '{DisplayText.Clean(history.RunName)}' has no feature '{DisplayText.Clean(chosen)}'; its features: {DisplayText.Clean(string.Join(", ", history.FeatureNames), 400)}");
+                // --finding alone asks for that evidence chart.
+                var kinds = named is not null ? ChartCatalog.Parse(named) : choices.EvidenceKind is not null ? [ChartKind.Evidence] : ChartCatalog.Leading(history);
                 written = Progress.Run(parse, "Rendering charts", kinds.Count, step =>
                     ChartCatalog.RenderAll(runStore, history, kinds, choices, folder, size, k => step($"{ChartCatalog.Spelling(k)} chart")));
             }
@@ -97,4 +112,7 @@ internal static class ChartCommand
         });
         return command;
     }
+
+    private static IEnumerable<string> FindingKinds() =>
+        DriftWatch.Detection.Rules.FindingRules.Kinds.Select(k => ChartCatalog.Spelling(k.Kind));
 }

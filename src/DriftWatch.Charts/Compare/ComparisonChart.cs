@@ -78,11 +78,11 @@ public sealed class ComparisonChart
         var heldOut = ChartKit.Segments(epochs, e => matching[e.Epoch].HeldOutSpearman);
         var training = ChartKit.Segments(epochs, e => matching[e.Epoch].TrainingSpearman);
         foreach (var (x, y) in heldOut)
-            ChartKit.AddLine(ranks, x, y, ChartPalette.Categorical[0], LinePattern.Solid, width, MarkerShape.FilledCircle, marker);
+            ChartKit.AddLine(ranks, x, y, ChartPalette.HeldOut, LinePattern.Solid, width, MarkerShape.FilledCircle, marker);
         foreach (var (x, y) in training)
-            ChartKit.AddLine(ranks, x, y, ChartPalette.Categorical[5], LinePattern.Dashed, width, MarkerShape.FilledSquare, marker);
-        rankKey.Legend.ManualItems.Add(ChartKit.LineItem("held-out half", ChartPalette.Categorical[0], LinePattern.Solid, width, MarkerShape.FilledCircle, marker));
-        rankKey.Legend.ManualItems.Add(ChartKit.LineItem("training half", ChartPalette.Categorical[5], LinePattern.Dashed, width, MarkerShape.FilledSquare, marker));
+            ChartKit.AddLine(ranks, x, y, ChartPalette.Training, LinePattern.Dashed, width, MarkerShape.FilledSquare, marker);
+        rankKey.Legend.ManualItems.Add(ChartKit.LineItem("held-out half", ChartPalette.HeldOut, LinePattern.Solid, width, MarkerShape.FilledCircle, marker));
+        rankKey.Legend.ManualItems.Add(ChartKit.LineItem("training half", ChartPalette.Training, LinePattern.Dashed, width, MarkerShape.FilledSquare, marker));
         ChartKit.FitY(ranks, heldOut.Concat(training).SelectMany(p => p.Ys).Append(1), floor: -1.05, ceiling: 1.05);
         ranks.YLabel("Spearman ρ, A vs B", scale.AxisLabel);
         ranks.XLabel("epoch", scale.AxisLabel);

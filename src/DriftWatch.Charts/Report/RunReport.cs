@@ -19,14 +19,22 @@ public sealed record ReportOptions
             : throw new DriftWatchException($"report Method is empty; name an attribution method such as '{RunHistory.DefaultMethod}' or leave it out");
     } = RunHistory.DefaultMethod;
 
-    /// <summary>The charts to include, in order. Default: every kind.</summary>
+    /// <summary>The charts to include, in order, after the findings (each finding has its own evidence chart beside it). Default: every kind but <see cref="ChartKind.Evidence"/>.</summary>
     /// <exception cref="DriftWatchException">Null, or a kind that is not one of <see cref="ChartCatalog.All"/>.</exception>
     public IReadOnlyList<ChartKind> Charts
     {
         get;
         init => field = value is not null && value.All(ChartCatalog.All.Contains) ? value
             : throw new DriftWatchException($"report Charts must hold kinds among {string.Join(", ", ChartCatalog.All.Select(ChartCatalog.Spelling))} (or none); got {(value is null ? "null" : string.Join(", ", value.Select(k => (int)k)))}");
-    } = ChartCatalog.All;
+    } = [.. ChartCatalog.All.Where(k => k != ChartKind.Evidence)];
+
+    /// <summary>The most findings shown beside their own evidence chart (the most severe first); the findings table lists them all. Default 8.</summary>
+    /// <exception cref="DriftWatchException">Negative.</exception>
+    public int EvidenceCharts
+    {
+        get;
+        init => field = value >= 0 ? value : throw new DriftWatchException($"report EvidenceCharts must be 0 or more; got {value}");
+    } = 8;
 
     /// <summary>What the charts draw.</summary>
     /// <exception cref="DriftWatchException">Null.</exception>
@@ -44,7 +52,7 @@ public sealed record ReportOptions
 /// <summary>The files a report wrote.</summary>
 /// <param name="Html">The self-contained HTML file.</param>
 /// <param name="Markdown">The Markdown summary, which links to the PNGs.</param>
-/// <param name="Charts">The chart PNGs, in a folder beside the two.</param>
+/// <param name="Charts">The chart PNGs, in a folder beside the two: the findings' evidence charts first, then the charts asked for.</param>
 public sealed record ReportFiles(string Html, string Markdown, IReadOnlyList<string> Charts);
 
 /// <summary>
@@ -91,8 +99,10 @@ public static class RunReport
         string chartFolder = Path.Combine(folder, "charts");
         var charts = ChartCatalog.RenderAll(store, history, options.Charts, options.Choices, chartFolder, options.Size, k => progress?.Invoke($"{ChartCatalog.Spelling(k)} chart"));
 
-        progress?.Invoke("writing the report");
         var findings = RunFindings.Summarise(history);
+        var evidence = EvidenceOf(history, findings, options, chartFolder, progress);
+
+        progress?.Invoke("writing the report");
         var trust = RunTrust.Load(store, history);
         var now = options.Clock.GetUtcNow();
         string stem = ChartFiles.SafePart(history.RunName) + "-report";
@@ -101,15 +111,47 @@ public static class RunReport
         try
         {
             Directory.CreateDirectory(folder);
-            OutputFile.WriteText(html, Html(history, findings, trust, charts, store.Path, now));
-            OutputFile.WriteText(markdown, Markdown(history, findings, trust, charts, folder, store.Path, now));
+            OutputFile.WriteText(html, Html(history, findings, evidence, trust, charts, store.Path, now));
+            OutputFile.WriteText(markdown, Markdown(history, findings, evidence, trust, charts, folder, store.Path, now));
         }
         catch (Exception e) when (e is IOException or UnauthorizedAccessException)
         {
             throw new DriftWatchException($"cannot write the report to '{DisplayText.Clean(folder)}': {e.Message}", e);
         }
-        return new ReportFiles(html, markdown, [.. charts.Select(c => c.Path)]);
+        return new ReportFiles(html, markdown, [.. evidence.Select(e => e.Path), .. charts.Select(c => c.Path)]);
     }
+
+    // Each finding of the verdict's method (most severe first, as the table lists them) with its own evidence chart.
+    private static List<(FindingSummary Finding, string Path)> EvidenceOf(RunHistory history, IReadOnlyList<FindingSummary> findings, ReportOptions options, string chartFolder, Action<string>? progress)
+    {
+        var shown = new List<(FindingSummary, string)>();
+        foreach (var finding in findings.Where(f => f.SeenOnlyBy.IsEmpty && EvidencePlans.For(f.Kind) is not null && history.Method == history.PrimaryMethod).Take(options.EvidenceCharts))
+        {
+            var plan = EvidencePlans.For(finding.Kind)!;
+            string? feature = plan.NamesFeature && finding.Feature.Length > 0 ? finding.Feature : null;
+            if (plan.NamesFeature && (feature is null || history.FeatureIndex(feature) < 0))
+                continue;
+            progress?.Invoke($"evidence chart of {RunFindings.Describe(finding.Kind)}");
+            var chart = new EvidenceChart(finding.Kind, feature);
+            string name = feature is null ? chart.Name : $"{chart.Name}-{feature}";
+            string path = Path.Combine(chartFolder, ChartFiles.FileName(history.RunName, name, history.Method));
+            try
+            {
+                Directory.CreateDirectory(chartFolder);
+                chart.Render(history, path, options.Size);
+            }
+            catch (Exception e) when (e is IOException or UnauthorizedAccessException)
+            {
+                throw new DriftWatchException($"cannot write the chart to '{DisplayText.Clean(path)}': {e.Message}", e);
+            }
+            shown.Add((finding, path));
+        }
+        return shown;
+    }
+
+    private static string EvidenceCaption(FindingSummary finding) =>
+        $"{finding.Severity}: {RunFindings.Describe(finding)}{(finding.Feature.Length == 0 ? "" : $" of “{DisplayText.Clean(finding.Feature, 60)}”")}, "
+        + $"epochs {ReportText.Ranges(finding.FlaggedEpochs)}. {EvidencePlans.For(finding.Kind)!.Statistic}.";
 
     /// <summary>A one-line account of the verdicts: the latest and the first Halt.</summary>
     public static string Headline(RunHistory history)
@@ -126,7 +168,7 @@ public static class RunReport
         return text;
     }
 
-    private static string Html(RunHistory history, IReadOnlyList<FindingSummary> findings, IReadOnlyList<MapTrust> trust, IReadOnlyList<(ChartKind Kind, string Path)> charts, string storePath, DateTimeOffset now)
+    private static string Html(RunHistory history, IReadOnlyList<FindingSummary> findings, IReadOnlyList<(FindingSummary Finding, string Path)> evidence, IReadOnlyList<MapTrust> trust, IReadOnlyList<(ChartKind Kind, string Path)> charts, string storePath, DateTimeOffset now)
     {
         string scriptHash = Convert.ToBase64String(SHA256.HashData(Encoding.UTF8.GetBytes(PageCheckScript)));
         var h = new StringBuilder();
@@ -185,6 +227,13 @@ public static class RunReport
                 h.Append($"<td class=\"number\">{ReportText.Html(SizeText(f))}</td><td class=\"number\">{ReportText.Html(AgainstText(f))}</td><td>{ReportText.Html(f.Evidence)}</td></tr>\n");
             }
             h.Append("</tbody>\n</table>\n");
+            foreach (var (finding, path) in evidence)
+            {
+                string caption = EvidenceCaption(finding);
+                h.Append($"<div class=\"finding-evidence severity-{finding.Severity.ToString().ToLowerInvariant()}\" data-kind=\"{finding.Kind}\" data-feature=\"{ReportText.Html(finding.Feature)}\">");
+                h.Append($"<div class=\"finding-text\"><h3>{ReportText.Html(caption)}</h3><p>{ReportText.Html(finding.Evidence)}</p></div>");
+                h.Append($"<figure><img src=\"data:image/png;base64,{Convert.ToBase64String(File.ReadAllBytes(path))}\" alt=\"{ReportText.Html(caption)}\"></figure></div>\n");
+            }
         }
         h.Append("</section>\n");
 
@@ -249,7 +298,7 @@ public static class RunReport
         return h.ToString();
     }
 
-    private static string Markdown(RunHistory history, IReadOnlyList<FindingSummary> findings, IReadOnlyList<MapTrust> trust, IReadOnlyList<(ChartKind Kind, string Path)> charts, string folder, string storePath, DateTimeOffset now)
+    private static string Markdown(RunHistory history, IReadOnlyList<FindingSummary> findings, IReadOnlyList<(FindingSummary Finding, string Path)> evidence, IReadOnlyList<MapTrust> trust, IReadOnlyList<(ChartKind Kind, string Path)> charts, string folder, string storePath, DateTimeOffset now)
     {
         var m = new StringBuilder();
         m.Append($"# Run “{ReportText.Markdown(history.RunName)}”\n\n");
@@ -291,6 +340,12 @@ public static class RunReport
                 m.Append($"{ReportText.Integer(f.Since)} | {ReportText.Markdown(SizeText(f))} | {ReportText.Markdown(AgainstText(f))} | {ReportText.Markdown(f.Evidence)} |\n");
             }
             m.Append('\n');
+            foreach (var (finding, path) in evidence)
+            {
+                string caption = ReportText.Markdown(EvidenceCaption(finding));
+                string relative = Path.GetRelativePath(folder, path).Replace('\\', '/');
+                m.Append($"### {caption}\n\n{ReportText.Markdown(finding.Evidence)}\n\n![{caption}](<{relative}>)\n\n");
+            }
         }
 
         m.Append("## Trust in the maps\n\n");
@@ -442,7 +497,7 @@ public static class RunReport
 
     private static string Caption(ChartKind kind, RunHistory history) => kind switch
     {
-        ChartKind.Trend => "Trend: share of importance per feature (held-out solid, training dashed) in its noise-floor band; rings where a finding names the feature; losses beneath.",
+        ChartKind.Trend => "Trend: share of importance per feature (held-out solid, training dashed) in its noise-floor band; rings at the first and last epoch a finding names the feature; losses beneath.",
         ChartKind.Divergence => "Divergence: training half against held-out half for flagged and top features, shares with noise bands above, label alignment below.",
         ChartKind.Heatmap => "Heatmap: held-out share per epoch and feature, largest features on top; dots where a finding names the feature.",
         ChartKind.Drift => "Drift: verdicts, drift score and rank agreement with the best epoch, generalisation gap and generalisation loss.",
@@ -476,6 +531,10 @@ public static class RunReport
         .cell.none { background: #fff; }
         .legend .cell { width: 12px; height: 12px; margin-left: 10px; }
         figure { margin: 18px 0; }
+        .finding-evidence { display: flex; flex-wrap: wrap; gap: 16px; align-items: flex-start; margin: 18px 0; border-top: 1px solid #d9d9d9; }
+        .finding-evidence .finding-text { flex: 1 1 260px; }
+        .finding-evidence .finding-text h3 { font-size: 1em; }
+        .finding-evidence figure { flex: 3 1 640px; margin: 8px 0; }
         figure img { max-width: 100%; height: auto; border: 1px solid #d9d9d9; }
         figcaption { color: #444; font-size: 0.92em; }
         pre { background: #f8f8f8; padding: 8px; overflow-x: auto; }

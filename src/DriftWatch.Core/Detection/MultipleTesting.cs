@@ -30,6 +30,27 @@ public static class MultipleTesting
         return [.. rejected];
     }
 
+    /// <summary>
+    /// Benjamini–Hochberg adjusted p-values (Benjamini &amp; Hochberg 1995; the step-up "q-values" of common practice):
+    /// p̃₍ₖ₎ = min over j ≥ k of min(1, m p₍ⱼ₎ / j). A hypothesis is rejected at rate q by <see cref="BenjaminiHochberg"/>
+    /// exactly when its adjusted p-value is at most q. NaN stays NaN and does not count towards m.
+    /// </summary>
+    /// <param name="pValues">One p-value per hypothesis.</param>
+    public static ImmutableArray<double> BenjaminiHochbergAdjusted(IReadOnlyList<double> pValues)
+    {
+        ArgumentNullException.ThrowIfNull(pValues);
+        var tested = Enumerable.Range(0, pValues.Count).Where(i => !double.IsNaN(pValues[i])).OrderBy(i => pValues[i]).ThenBy(i => i).ToArray();
+        int m = tested.Length;
+        var adjusted = Enumerable.Repeat(double.NaN, pValues.Count).ToArray();
+        double running = 1;
+        for (int k = m; k >= 1; k--)
+        {
+            running = Math.Min(running, Math.Min(1, m * pValues[tested[k - 1]] / k));
+            adjusted[tested[k - 1]] = running;
+        }
+        return [.. adjusted];
+    }
+
     /// <summary>The permutation p-value (1 + #null ≥ observed) / (B + 1), which is never zero (Phipson &amp; Smyth 2010).</summary>
     /// <param name="exceeding">How many of the B null statistics are at least the observed one.</param>
     /// <param name="permutations">B, the number of null statistics.</param>

@@ -25,7 +25,7 @@ public sealed class ChartOptionsTests
         Assert.Equal("chart width must be between 400 and 8000 pixels; got 0",
             Assert.Throws<DriftWatchException>(() => new ReportOptions { Size = default }).Message);
         Assert.StartsWith("report Method is empty", Assert.Throws<DriftWatchException>(() => new ReportOptions { Method = " " }).Message);
-        Assert.StartsWith("report Charts must hold kinds among trend, divergence",
+        Assert.StartsWith("report Charts must hold kinds among evidence, trend, divergence",
             Assert.Throws<DriftWatchException>(() => new ReportOptions { Charts = [ChartKind.Trend, (ChartKind)42] }).Message);
         Assert.StartsWith("report Choices is null", Assert.Throws<DriftWatchException>(() => new ReportOptions { Choices = null! }).Message);
         Assert.StartsWith("report Clock is null", Assert.Throws<DriftWatchException>(() => new ReportOptions { Clock = null! }).Message);

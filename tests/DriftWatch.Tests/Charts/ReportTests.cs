@@ -44,7 +44,7 @@ public sealed class ReportTests : IClassFixture<DemoStoreFixture>
         Assert.Equal(files.Charts.Count.ToString(System.Globalization.CultureInfo.InvariantCulture), check.GetAttribute("data-images"));
         Assert.Equal(check.GetAttribute("data-images"), check.GetAttribute("data-decoded"));
         Assert.Equal("", check.GetAttribute("data-errors"));
-        Assert.Equal(5, files.Charts.Count);
+        Assert.Equal(5, files.Charts.Count(c => !Path.GetFileName(c).Contains("-evidence-", StringComparison.Ordinal)));
         // Nothing reached the browser's console: no script error, no blocked load (a content security policy violation logs one).
         Assert.DoesNotContain(":CONSOLE", log, StringComparison.Ordinal);
 
@@ -94,7 +94,11 @@ public sealed class ReportTests : IClassFixture<DemoStoreFixture>
         Assert.Contains(cells, r => r[0] == "Halt" && r[1] == "leak" && r[2] == "inspection tray");
 
         var images = html.QuerySelectorAll("img").Select(i => i.GetAttribute("src")!).ToList();
-        Assert.Equal(5, images.Count);
+        Assert.Equal(files.Charts.Count, images.Count);
+        Assert.Equal(5, images.Count(i => !i.Contains("-evidence-", StringComparison.Ordinal)));
+        // The planted leak's finding sits beside its own evidence chart, under a heading that names it.
+        Assert.Contains(images, i => i.Contains("-evidence-leak-inspection_tray", StringComparison.Ordinal));
+        Assert.Contains(html.QuerySelectorAll("h3"), h => h.TextContent.StartsWith("Halt: leak of “inspection tray”", StringComparison.Ordinal));
         Assert.All(images, src => Assert.True(File.Exists(Path.Combine(folder, src)), $"the Markdown links to {src}, which is not there"));
     }
 

@@ -22,7 +22,7 @@ public sealed class MorningCliTests : IClassFixture<DemoStoreFixture>
     private static string[] Lines(string text) => text.Split('\n', StringSplitOptions.RemoveEmptyEntries | StringSplitOptions.TrimEntries);
 
     [Fact]
-    public void ChartKindAllWritesFivePngsAndPrintsTheirPaths()
+    public void ChartKindAllWritesSixPngsAndPrintsTheirPaths()
     {
         string folder = Path.Combine(_fixture.Folder, "cli-all");
 
@@ -31,7 +31,7 @@ public sealed class MorningCliTests : IClassFixture<DemoStoreFixture>
         Assert.Equal(ExitCodes.Fine, code);
         Assert.Equal("", error);
         var paths = Lines(output);
-        Assert.Equal(5, paths.Length);
+        Assert.Equal(6, paths.Length);
         Assert.All(paths, p => Assert.True(File.Exists(p), p));
         Assert.Contains(paths, p => p.Contains("-feature-inspection_tray_", StringComparison.Ordinal));
     }

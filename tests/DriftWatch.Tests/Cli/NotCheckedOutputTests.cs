@@ -36,7 +36,7 @@ public sealed class NotCheckedOutputTests
         Assert.Equal([ExitCodes.Fine, ExitCodes.Fine, ExitCodes.Fine, ExitCodes.Fine], new[] { showCode, checkCode, replayCode, reportCode });
         Assert.Equal(expected, Count(show, Note));
         Assert.Equal(expected, Count(check, Note));
-        Assert.Equal(expected, Count(replay, "\"notChecked\":\"not checked:"));
+        Assert.Equal(expected, Count(replay, "\"not_checked\":\"not checked:"));
         string markdown = File.ReadAllText(report.Split('\n', StringSplitOptions.RemoveEmptyEntries | StringSplitOptions.TrimEntries)[1]);
         Assert.Equal(expected, Count(markdown, Note));
         if (expected == 1)

@@ -32,6 +32,56 @@ public sealed class DemoTests : IClassFixture<DemoStoreFixture>
     }
 
     [Fact]
+    public void TheDefaultDemoTrainsOnPastTheHaltNamesAnEvidenceChartAndARerunStartsANewRunBesideTheOld()
+    {
+        using var temp = new TempFolder();
+        string storePath = temp.File("story.litedb");
+        // Small settings keep it quick; the schedule is trained whole, the gate only advising.
+        var options = DemoOptions.Parse(["--small", "--epochs", "12", "--rows", "200", "--steps", "8", "--store", storePath]);
+        var output = new StringWriter();
+
+        Assert.Equal(0, GreenhouseTraining.Run(options, output));
+
+        string text = output.ToString();
+        var lines = text.Split('\n');
+        using (var store = RunStore.OpenForReading(storePath))
+        {
+            var run = store.GetRun(options.RunName);
+            Assert.True(store.Epochs(run.Id).Count >= 12, $"the run has {store.Epochs(run.Id).Count} epochs");
+            int firstHalt = store.Verdicts(run.Id).Where(v => v.Kind == nameof(VerdictKind.Halt)).Select(v => v.Epoch).DefaultIfEmpty(-1).Min();
+            // The planted tray leak (demo/README.md, ground truth) halts the gate; the output says where it would have stopped.
+            Assert.True(firstHalt > 0, text);
+            Assert.Contains($"gate      first Halt at epoch {firstHalt}: stopping on Halt would have ended the run there", text, StringComparison.Ordinal);
+        }
+        string evidence = lines.Single(l => l.StartsWith("evidence  ", StringComparison.Ordinal))["evidence  ".Length..];
+        string path = evidence[..evidence.IndexOf(" (", StringComparison.Ordinal)];
+        Assert.Contains("-evidence-", Path.GetFileName(path), StringComparison.Ordinal);
+        DriftWatch.Tests.Charts.PngAssert.IsChart(path, 1200, 700);
+        Assert.True(Array.FindIndex(lines, l => l.StartsWith("evidence  ", StringComparison.Ordinal)) < Array.FindIndex(lines, l => l.StartsWith("chart     ", StringComparison.Ordinal)));
+
+        // The same command again (one epoch here, to stay quick): a new run beside the old one, said in the output.
+        var again = DemoOptions.Parse(["--small", "--epochs", "1", "--rows", "200", "--steps", "8", "--store", storePath]);
+        var second = new StringWriter();
+        Assert.Equal(0, GreenhouseTraining.Run(again, second));
+        Assert.Contains($"this is a new run beside it, '{options.RunName}-2'", second.ToString(), StringComparison.Ordinal);
+        using (var store = RunStore.OpenForReading(storePath))
+        {
+            Assert.True(store.Epochs(store.GetRun(options.RunName).Id).Count >= 12);
+            Assert.Single(store.Epochs(store.GetRun(options.RunName + "-2").Id));
+        }
+    }
+
+    [Fact]
+    public void StopAtHaltIsOneFlagAwayAndAGivenRunNameIsKeptAsGiven()
+    {
+        Assert.True(DemoOptions.Parse([]).KeepTraining);
+        Assert.False(DemoOptions.Parse(["--stop-at-halt"]).KeepTraining);
+        Assert.True(DemoOptions.Parse(["--stop-at-halt", "--keep-training"]).KeepTraining);
+        Assert.True(DemoOptions.Parse(["--run", "x"]).RunNamed);
+        Assert.False(DemoOptions.Parse([]).RunNamed);
+    }
+
+    [Fact]
     public void ALeakedFeatureRunHaltsAndNamesTheLeak()
     {
         using var store = RunStore.OpenForReading(_fixture.StorePath);

@@ -42,13 +42,23 @@ public sealed class SplitCheckRuleTests
     [Fact]
     public void TheSameRelianceOnAColumnThatPassesTheCheckIsAnOverfittedFeatureNeverALeak()
     {
-        var run = new HistoryBuilder().WithLeak(0, fromEpoch: 3).WithSplitCheck(Check()).Run(7);
+        // The validation loss rises from epoch 3 (GL beyond the default α of 5 %, Prechelt 1998): the loss says the model
+        // overfits, the attributions say on which feature.
+        var run = new HistoryBuilder().WithLeak(0, fromEpoch: 3).WithSplitCheck(Check()).Run(7, validation: e => e < 3 ? 0.5 : 0.5 * (1 + 0.1 * (e - 2)));
         Assert.DoesNotContain(All(run), f => f.Kind == FindingKind.Leak);
         var overfitted = All(run).First(f => f.Kind == FindingKind.OverfittedFeature);
         Assert.Equal("air temperature", overfitted.Feature);
         Assert.Equal(VerdictKind.Caution, overfitted.Severity);
         Assert.Contains("not a leak", overfitted.Evidence, StringComparison.Ordinal);
         Assert.DoesNotContain(All(run), f => f.Kind == FindingKind.SplitInconsistency);
+    }
+
+    [Fact]
+    public void WhileTheValidationLossStillFallsTheSameRelianceNamesNoFeature()
+    {
+        // Ordinary fitting: a genuine feature's gap alone, with the validation loss still falling, is not an overfitted feature.
+        var run = new HistoryBuilder().WithLeak(0, fromEpoch: 3).WithSplitCheck(Check()).Run(7, validation: e => 0.5 - 0.01 * e);
+        Assert.DoesNotContain(All(run), f => f.Kind == FindingKind.Leak || f.Kind == FindingKind.OverfittedFeature);
     }
 
     [Fact]

@@ -309,15 +309,16 @@ public sealed class FollowTests : IClassFixture<PythonRunFixture>
         byte[] before = SHA256.HashData(File.ReadAllBytes(store));
 
         var (code, output, error) = Follow(folder, "--store", store, "--once");
+        Assert.Equal(before, SHA256.HashData(File.ReadAllBytes(store)));
         // Resuming the stored run from the damaged folder: the folder-wide gap and the changed schema are refused; a damaged
-        // snapshot of an epoch already stored is never loaded again. Either way nothing is added or changed.
+        // snapshot of an epoch already stored is never loaded again. Either way no epoch is added or changed (a resume
+        // that goes ahead marks and unmarks its writer, so the file's bytes may differ; its epochs may not).
         var resumed = Follow(folder, "--store", store, "--once", "--run", "greenhouse-py");
 
         Assert.Equal(ExitCodes.BadInput, code);
         Assert.Contains(expected, error);
         Assert.Single(error.Trim().Split('\n'));
         Assert.DoesNotContain("internal error", error + output);
-        Assert.Equal(before, SHA256.HashData(File.ReadAllBytes(store)));
         using var reading = RunStore.OpenForReading(store);
         Assert.Null(reading.FindRun(damage));
         Assert.Equal(4, reading.Epochs(reading.GetRun("greenhouse-py").Id).Count);

@@ -21,6 +21,19 @@ public sealed class SplitCheckTests
     }
 
     [Fact]
+    public void AdjustedPValuesRejectExactlyWhereTheStepUpProcedureDoes()
+    {
+        // The same worked example: the fourth-smallest p-value 0.0095 adjusts to 15 × 0.0095 / 4 = 0.0356 (≤ 0.05); the fifth,
+        // 0.0201, to 15 × 0.0201 / 5 = 0.0603 (> 0.05) — arithmetic from the definition (Benjamini & Hochberg 1995).
+        var adjusted = MultipleTesting.BenjaminiHochbergAdjusted(WorkedExample);
+        Assert.Equal(15 * 0.0095 / 4, adjusted[4], 12);
+        Assert.Equal(15 * 0.0201 / 5, adjusted[0], 12);
+        foreach (double q in new[] { 0.01, 0.05, 0.1, 0.2 })
+            Assert.Equal(MultipleTesting.BenjaminiHochberg(WorkedExample, q).ToArray(), adjusted.Select(a => a <= q).ToArray());
+        Assert.True(double.IsNaN(MultipleTesting.BenjaminiHochbergAdjusted([double.NaN, 0.01])[0]));
+    }
+
+    [Fact]
     public void BenjaminiHochbergSkipsNaNAndRejectsNothingAboveEveryThreshold()
     {
         var rejected = MultipleTesting.BenjaminiHochberg([double.NaN, 0.01, 0.9], 0.05);

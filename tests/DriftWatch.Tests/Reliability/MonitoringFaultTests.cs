@@ -99,7 +99,10 @@ public sealed class MonitoringFaultTests
             int code = CliApp.Run(args, new StringWriter(), error);
             Assert.True(code is ExitCodes.Fine or ExitCodes.Halt, $"{string.Join(' ', args)} exited {code}: {error}");
         }
-        Assert.Single(Directory.GetFiles(temp.File("charts"), "*.png"));
+        // Without --kind: the evidence chart of the run's most severe finding (its numerical trouble), then the trend chart.
+        var pngs = Directory.GetFiles(temp.File("charts"), "*.png").Select(Path.GetFileName).ToList();
+        Assert.Equal(2, pngs.Count);
+        Assert.Contains(pngs, p => p!.Contains("-evidence-", StringComparison.Ordinal));
         Finalizers.RunNow();
     }
 

@@ -25,6 +25,9 @@ internal sealed class StoreBuilder
     private bool _lastUncommitted;
     private int _classes = 2;
     private (int From, int To)[] _stories = [];
+    private FindingKind _kind = FindingKind.Leak;
+    private VerdictKind _severity = VerdictKind.Halt;
+    private bool _findingAnyFeature;
 
     public StoreBuilder WithRun(string name)
     {
@@ -72,6 +75,20 @@ internal sealed class StoreBuilder
     {
         _flagged = feature;
         _stories = stories;
+        return this;
+    }
+
+    /// <summary>
+    /// A finding of <paramref name="kind"/> (naming feature <paramref name="feature"/>, or none for a run-level kind when
+    /// it is −1) at every epoch from <paramref name="fromEpoch"/> on, asking for <paramref name="severity"/>.
+    /// </summary>
+    public StoreBuilder WithFinding(FindingKind kind, int feature, int fromEpoch, VerdictKind severity = VerdictKind.Halt)
+    {
+        _kind = kind;
+        _flagged = feature;
+        _haltFrom = fromEpoch;
+        _severity = severity;
+        _findingAnyFeature = true;
         return this;
     }
 
@@ -194,6 +211,8 @@ internal sealed class StoreBuilder
                         AlignmentTraining = [.. t.Alignment ?? []],
                         AlignmentGap = [.. (t.Alignment ?? []).Zip(h.Alignment ?? [], (a, b) => a - b)],
                         AlignmentGapWidth = [.. (h.Alignment ?? []).Select(_ => 0.2)],
+                        LeadWidthHeldOut = 0.02,
+                        LeadWidthTraining = 0.025,
                         Drift = position == 0 ? double.NaN : 0.1 / epoch,
                         RankAgreementWithBest = Math.Max(-1, 1 - 0.05 * epoch),
                         GeneralisationLoss = Math.Max(0, (epoch - 3) * 4.0),
@@ -202,20 +221,22 @@ internal sealed class StoreBuilder
             }
             var story = _stories.FirstOrDefault(t => epoch >= t.From && epoch <= t.To);
             bool inStory = story != default;
-            bool halt = _flagged >= 0 && (epoch >= _haltFrom || inStory);
+            bool halt = (_flagged >= 0 || _findingAnyFeature) && (epoch >= _haltFrom || inStory);
             int from = inStory ? story.From : _haltFrom;
             var findings = halt
                 ? new List<FindingDocument>
                 {
                     new()
                     {
-                        Kind = nameof(FindingKind.Leak),
-                        Feature = _features[_flagged],
-                        Severity = nameof(VerdictKind.Halt),
+                        Kind = _kind.Name,
+                        Feature = _flagged >= 0 ? _features[_flagged] : "",
+                        Severity = _severity.ToString(),
                         Size = 0.2,
                         NoiseFloor = 0.05,
                         Epochs = [from, epoch],
-                        Evidence = $"'{_features[_flagged]}' takes more attribution on training rows than held-out rows" + (inStory ? $" since epoch {from} (at epoch {epoch})" : ""),
+                        Evidence = _flagged >= 0
+                            ? $"'{_features[_flagged]}' takes more attribution on training rows than held-out rows" + (inStory ? $" since epoch {from} (at epoch {epoch})" : "")
+                            : $"metric 'train_loss' is NaN at epoch {epoch}",
                     },
                 }
                 : [];
@@ -223,7 +244,7 @@ internal sealed class StoreBuilder
             {
                 RunId = run.Id,
                 Epoch = epoch,
-                Kind = halt ? nameof(VerdictKind.Halt) : nameof(VerdictKind.Continue),
+                Kind = halt ? _severity.ToString() : nameof(VerdictKind.Continue),
                 Reasons = [.. findings.Select(f => f.Evidence)],
                 Findings = findings,
             });
