@@ -56,6 +56,20 @@ public sealed class PythonRunFixture : IDisposable
 
     public string ReferencePath => Path.Combine(Root, "reference.csv");
 
+    /// <summary>Whether Python with torch is here; CI must have it (it fails there), elsewhere the test says why it did not run.</summary>
+    public bool Available(ITestOutputHelper log)
+    {
+        if (Unavailable is null)
+            return true;
+        if (Environment.GetEnvironmentVariable("CI") is { Length: > 0 })
+            Assert.Fail($"CI must run the PyTorch and follow tests: {Unavailable}");
+        log.WriteLine($"not run: {Unavailable}; CI installs it (.ci/run)");
+        return false;
+    }
+
+    /// <summary>A fresh store path in the fixture's folder.</summary>
+    public string NewStore() => Path.Combine(Root, Guid.NewGuid().ToString("N")[..12] + ".litedb");
+
     /// <summary>
     /// The largest difference between <paramref name="scores"/> (rows × features) and PyTorch's own Integrated Gradients of
     /// the eager model at <see cref="ReferenceEpoch"/> (train_small_run.py: torch.autograd, midpoint rule, 64 steps, zero
@@ -334,17 +348,9 @@ public sealed class FollowTests : IClassFixture<PythonRunFixture>
         Assert.True(resumed.Code == resumedCode, resumed.Output + resumed.Error);
     }
 
-    private bool Available()
-    {
-        if (_run.Unavailable is null)
-            return true;
-        if (Environment.GetEnvironmentVariable("CI") is { Length: > 0 })
-            Assert.Fail($"CI must run the follow tests: {_run.Unavailable}");
-        _log.WriteLine($"not run: {_run.Unavailable}; CI installs it (.ci/run)");
-        return false;
-    }
+    private bool Available() => _run.Available(_log);
 
-    private string NewStore() => Path.Combine(_run.Root, Guid.NewGuid().ToString("N")[..12] + ".litedb");
+    private string NewStore() => _run.NewStore();
 
     private static void Rewrite(string path, string from, string to)
     {

@@ -297,17 +297,9 @@ public sealed class PyTorchLoopTests : IClassFixture<PythonRunFixture>
             verdictTimeout.ToString(CultureInfo.InvariantCulture));
     }
 
-    private bool Available()
-    {
-        if (_run.Unavailable is null)
-            return true;
-        if (Environment.GetEnvironmentVariable("CI") is { Length: > 0 })
-            Assert.Fail($"CI must run the PyTorch tests: {_run.Unavailable}");
-        _log.WriteLine($"not run: {_run.Unavailable}; CI installs it (.ci/run)");
-        return false;
-    }
+    private bool Available() => _run.Available(_log);
 
-    private string NewStore() => Path.Combine(_run.Root, Guid.NewGuid().ToString("N")[..12] + ".litedb");
+    private string NewStore() => _run.NewStore();
 
     private static (int Code, string Output, string Error) Follow(params string[] arguments) => Cli(["follow", .. arguments]);
 

@@ -117,8 +117,7 @@ public sealed class LeakRule(LeakSettings settings, int patience) : IFindingRule
             string evidence = Reliance.Sentence(name, s, f, since, byShare[f], run.Policy.HalfExchangeResplits)
                 + "; and its column relates to the label differently in training and held-out rows (" + Reliance.CheckSentence(input!, check!)
                 + "): it carries the label only where the model trained — a leaked signal";
-            findings.Add(new Finding(FindingKind.Leak, Kind.SeverityUnder(run.Policy), name,
-                byShare[f] ? s.ShareGap[f] : s.AlignmentGap[f], byShare[f] ? s.ShareGapWidth[f] : s.AlignmentGapWidth[f], new EpochSpan(since, epoch.Epoch), evidence));
+            findings.Add(Reliance.Finding(Kind, run, s, f, byShare[f], new EpochSpan(since, epoch.Epoch), evidence));
         }
     }
 }

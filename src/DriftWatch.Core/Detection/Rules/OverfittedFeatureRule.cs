@@ -52,8 +52,7 @@ public sealed class OverfittedFeatureRule(int patience) : IFindingRule
             string evidence = Reliance.Sentence(name, s, f, since, byShare[f], run.Policy.HalfExchangeResplits)
                 + "; but its column relates to the label the same way in training and held-out rows (" + Reliance.CheckSentence(input!, check!)
                 + "): the model overfits on this feature — not a leak";
-            findings.Add(new Finding(FindingKind.OverfittedFeature, Kind.SeverityUnder(run.Policy), name,
-                byShare[f] ? s.ShareGap[f] : s.AlignmentGap[f], byShare[f] ? s.ShareGapWidth[f] : s.AlignmentGapWidth[f], new EpochSpan(since, epoch.Epoch), evidence));
+            findings.Add(Reliance.Finding(Kind, run, s, f, byShare[f], new EpochSpan(since, epoch.Epoch), evidence));
         }
     }
 }

@@ -44,6 +44,11 @@ internal static class Reliance
         return check.Find(definition.Kind == FeatureKind.Dense ? RawInputKind.Dense : RawInputKind.Categorical, position);
     }
 
+    /// <summary>A finding of <paramref name="kind"/> on feature <paramref name="f"/>, sized by the gap the reliance test read (share or alignment) against its noise floor.</summary>
+    public static Finding Finding(FindingKindInfo kind, DetectorRun run, EpochStatistics s, int f, bool byShare, EpochSpan span, string evidence) =>
+        new(kind.Kind, kind.SeverityUnder(run.Policy), run.FeatureName(f),
+            byShare ? s.ShareGap[f] : s.AlignmentGap[f], byShare ? s.ShareGapWidth[f] : s.AlignmentGapWidth[f], span, evidence);
+
     /// <summary>What the attributions say: the gap the null rejected, with its p-value, since when.</summary>
     public static string Sentence(string name, EpochStatistics s, int f, int since, bool byShare, int resplits) => byShare
         ? Format($"the model relies on '{name}' more for training rows: {s.ShareTraining[f]:P1} of attribution there against {s.ShareHeldOut[f]:P1} on held-out rows ")
