@@ -517,11 +517,13 @@ public static class RunReport
         .read-first { background: #f3f3f3; border-left: 6px solid #666; padding: 10px 14px; }
         table { border-collapse: collapse; width: 100%; font-size: 0.92em; }
         th, td { border: 1px solid #d9d9d9; padding: 4px 8px; text-align: left; vertical-align: top; overflow-wrap: break-word; }
-        table.findings td:nth-child(-n+5), table.findings th { white-space: nowrap; }
-        table.findings td:nth-child(3) { white-space: normal; min-width: 8em; }
+        table.findings td:nth-child(-n+5), table.findings th:nth-child(-n+5) { white-space: nowrap; }
+        table.findings td:nth-child(2), table.findings td:nth-child(3) { white-space: normal; min-width: 8em; }
         thead th { background: #f3f3f3; }
         table.facts th { width: 16em; background: #f8f8f8; font-weight: normal; color: #444; }
         td.number { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+        table.findings td.number { white-space: normal; min-width: 7em; }
+        table.findings td:last-child { min-width: 24em; }
         tr.severity-halt td:first-child { font-weight: bold; }
         .timeline { display: flex; flex-wrap: wrap; gap: 2px; margin: 8px 0; }
         .cell { display: inline-block; width: 14px; height: 22px; border: 1px solid #999; vertical-align: middle; }
